@@ -1,0 +1,151 @@
+//! Closed-form marginal likelihood of the natural-conjugate prior and the choice of the
+//! overall tightness `λ` by maximising it (Giannone, Lenza and Primiceri 2015).
+//!
+//! `ln p(Y) = −(nT/2) ln π + (n/2)(ln|Ω̄| − ln|Ω0|) + (ν0/2) ln|S0| − (ν̄/2) ln|S̄|
+//!            + ln Γ_n(ν̄/2) − ln Γ_n(ν0/2)`,
+//! `ln Γ_n(a) = n(n−1)/4 · ln π + Σ_{j=1}^{n} ln Γ(a + (1−j)/2)`.
+//! With dummy rows the prior is the base prior updated by the dummies:
+//! `ln p(Y) = ln p_base([Y_d; Y]) − ln p_base(Y_d)`.
+
+use std::f64::consts::PI;
+
+use nalgebra::DMatrix;
+use statrs::function::gamma::ln_gamma;
+
+use super::{
+    ModelError,
+    data::Regression,
+    posterior::{Posterior, conjugate, log_det_diag},
+    prior::{MinnesotaPrior, PriorMoments},
+};
+
+/// `ln Γ_n(a)`, the multivariate log-gamma function.
+pub fn ln_mvgamma(n: usize, a: f64) -> f64 {
+    let nf = n as f64;
+    nf * (nf - 1.0) / 4.0 * PI.ln()
+        + (1..=n)
+            .map(|j| ln_gamma(a + (1.0 - j as f64) / 2.0))
+            .sum::<f64>()
+}
+
+/// Posterior and log marginal likelihood of the base prior updated by `(y, x)`.
+fn base(
+    y: &DMatrix<f64>,
+    x: &DMatrix<f64>,
+    prior: &PriorMoments,
+) -> Result<(f64, Posterior), ModelError> {
+    let post = conjugate(y, x, prior)?;
+    let (n, t) = (y.ncols(), y.nrows() as f64);
+    let nf = n as f64;
+    let s0_logdet: f64 = prior.s0.diagonal().iter().map(|v| v.ln()).sum();
+    let value = -nf * t / 2.0 * PI.ln()
+        + nf / 2.0 * (post.log_det_omega() - log_det_diag(&prior.omega0))
+        + prior.nu0 / 2.0 * s0_logdet
+        - post.nu_bar / 2.0 * post.log_det_s()
+        + ln_mvgamma(n, post.nu_bar / 2.0)
+        - ln_mvgamma(n, prior.nu0 / 2.0);
+    Ok((value, post))
+}
+
+/// Posterior and `ln p(Y | prior)`, dummy observations included.
+pub fn posterior_and_log_ml(
+    reg: &Regression,
+    prior: &MinnesotaPrior,
+) -> Result<(f64, Posterior), ModelError> {
+    let moments = prior.moments(reg.p);
+    match prior.dummies(reg) {
+        None => base(&reg.y, &reg.x, &moments),
+        Some((yd, xd)) => {
+            let (ld, _) = base(&yd, &xd, &moments)?;
+            let y = stack(&yd, &reg.y);
+            let x = stack(&xd, &reg.x);
+            let (lall, post) = base(&y, &x, &moments)?;
+            Ok((lall - ld, post))
+        }
+    }
+}
+
+fn stack(top: &DMatrix<f64>, bottom: &DMatrix<f64>) -> DMatrix<f64> {
+    let mut m = DMatrix::zeros(top.nrows() + bottom.nrows(), top.ncols());
+    m.rows_mut(0, top.nrows()).copy_from(top);
+    m.rows_mut(top.nrows(), bottom.nrows()).copy_from(bottom);
+    m
+}
+
+/// Result of the tightness search.
+#[derive(Debug, Clone, PartialEq)]
+pub struct TightnessChoice {
+    pub lambda: f64,
+    pub log_ml: f64,
+    /// The optimum sits at an end of the search range.
+    pub on_boundary: bool,
+}
+
+/// Search range of `ln λ` and grid size (ALGORITHMS §2.7).
+const LN_LAMBDA_RANGE: (f64, f64) = (-6.907755278982137, 1.6094379124341003);
+const GRID: usize = 25;
+const LN_LAMBDA_TOL: f64 = 1e-7;
+
+/// Maximise `ln p(Y | λ)` over `λ ∈ [1e-3, 5]`: a grid of 25 values of `ln λ`, then
+/// golden-section search in the bracket around the best grid point.
+pub fn choose_tightness(
+    reg: &Regression,
+    template: &MinnesotaPrior,
+) -> Result<TightnessChoice, ModelError> {
+    let eval = |ln_lambda: f64| -> Result<f64, ModelError> {
+        let prior = MinnesotaPrior {
+            lambda: ln_lambda.exp(),
+            ..template.clone()
+        };
+        Ok(posterior_and_log_ml(reg, &prior)?.0)
+    };
+    let (lo, hi) = LN_LAMBDA_RANGE;
+    let step = (hi - lo) / (GRID - 1) as f64;
+    let mut best = (0, f64::NEG_INFINITY);
+    for g in 0..GRID {
+        let v = eval(lo + step * g as f64)?;
+        if v > best.1 {
+            best = (g, v);
+        }
+    }
+    let left = lo + step * best.0.saturating_sub(1) as f64;
+    let right = (lo + step * (best.0 + 1) as f64).min(hi);
+    let (x, fx) = golden_max(left, right, &eval)?;
+    let (x, fx) = if fx >= best.1 {
+        (x, fx)
+    } else {
+        (lo + step * best.0 as f64, best.1)
+    };
+    Ok(TightnessChoice {
+        lambda: x.exp(),
+        log_ml: fx,
+        on_boundary: (x - lo).abs() < 1e-4 || (hi - x).abs() < 1e-4,
+    })
+}
+
+fn golden_max(
+    mut a: f64,
+    mut b: f64,
+    f: &dyn Fn(f64) -> Result<f64, ModelError>,
+) -> Result<(f64, f64), ModelError> {
+    let g = (5f64.sqrt() - 1.0) / 2.0;
+    let mut c = b - g * (b - a);
+    let mut d = a + g * (b - a);
+    let (mut fc, mut fd) = (f(c)?, f(d)?);
+    while b - a > LN_LAMBDA_TOL {
+        if fc > fd {
+            b = d;
+            d = c;
+            fd = fc;
+            c = b - g * (b - a);
+            fc = f(c)?;
+        } else {
+            a = c;
+            c = d;
+            fc = fd;
+            d = a + g * (b - a);
+            fd = f(d)?;
+        }
+    }
+    Ok(if fc > fd { (c, fc) } else { (d, fd) })
+}

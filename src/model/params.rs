@@ -1,0 +1,115 @@
+//! One set of VAR parameters θ = (B, Σ).
+//!
+//! `y_t = b0 + B_1 y_{t-1} + … + B_p y_{t-p} + u_t`, `u_t ~ N(0, Σ)`.
+//! Stacked coefficients `B` (k×n, k = 1 + n p): row 0 is `b0'`, row `1 + (l-1) n + j`,
+//! column `i` is `(B_l)_{ij}`, the effect of series `j` at lag `l` on series `i`.
+
+use nalgebra::{DMatrix, DVector};
+
+use super::ModelError;
+
+/// VAR coefficients and innovation covariance, with the lag matrices unpacked.
+#[derive(Debug, Clone)]
+pub struct Params {
+    /// Intercept `b0` (n).
+    pub intercept: DVector<f64>,
+    /// `lags[l-1] = B_l` (n×n), `(B_l)_{ij}` = effect of series j at lag l on series i.
+    pub lags: Vec<DMatrix<f64>>,
+    /// Innovation covariance `Σ` (n×n).
+    pub sigma: DMatrix<f64>,
+}
+
+impl Params {
+    /// Unpack a stacked k×n coefficient matrix.
+    pub fn from_stacked(coefs: &DMatrix<f64>, sigma: DMatrix<f64>) -> Params {
+        let n = coefs.ncols();
+        let p = (coefs.nrows() - 1) / n;
+        let intercept = coefs.row(0).transpose();
+        let lags = (0..p)
+            .map(|l| coefs.rows(1 + l * n, n).transpose())
+            .collect();
+        Params {
+            intercept,
+            lags,
+            sigma,
+        }
+    }
+
+    /// Build from fixed coefficients given by the user, checking shapes and Σ.
+    pub fn fixed(
+        intercept: Vec<f64>,
+        lags: Vec<Vec<Vec<f64>>>,
+        sigma: Vec<Vec<f64>>,
+    ) -> Result<Params, ModelError> {
+        let n = intercept.len();
+        let square = |name: &str, rows: &[Vec<f64>]| -> Result<DMatrix<f64>, ModelError> {
+            if rows.len() != n || rows.iter().any(|r| r.len() != n) {
+                return Err(ModelError::Shape {
+                    what: name.to_string(),
+                    expected: format!("{n}×{n} (one row per series, {n} numbers each)"),
+                });
+            }
+            if rows.iter().flatten().any(|v| !v.is_finite()) {
+                return Err(ModelError::NotFinite {
+                    what: name.to_string(),
+                });
+            }
+            Ok(DMatrix::from_fn(n, n, |i, j| rows[i][j]))
+        };
+        if lags.is_empty() {
+            return Err(ModelError::Shape {
+                what: "lags".into(),
+                expected: "at least one lag matrix".into(),
+            });
+        }
+        if intercept.iter().any(|v| !v.is_finite()) {
+            return Err(ModelError::NotFinite {
+                what: "intercept".into(),
+            });
+        }
+        let lag_mats = lags
+            .iter()
+            .enumerate()
+            .map(|(l, m)| square(&format!("lags[{}] (lag {})", l, l + 1), m))
+            .collect::<Result<Vec<_>, _>>()?;
+        let sigma = square("sigma", &sigma)?;
+        if (&sigma - sigma.transpose()).amax() > 1e-10 * sigma.amax().max(1.0) {
+            return Err(ModelError::SigmaNotSymmetric);
+        }
+        if sigma.clone().cholesky().is_none() {
+            return Err(ModelError::SigmaNotPositiveDefinite {
+                what: "the fixed residual covariance sigma".into(),
+            });
+        }
+        Ok(Params {
+            intercept: DVector::from_vec(intercept),
+            lags: lag_mats,
+            sigma,
+        })
+    }
+
+    pub fn n(&self) -> usize {
+        self.intercept.len()
+    }
+
+    pub fn p(&self) -> usize {
+        self.lags.len()
+    }
+
+    /// Largest modulus of the companion matrix's eigenvalues (≥ 1: explosive or unit root).
+    pub fn spectral_radius(&self) -> f64 {
+        let (n, p) = (self.n(), self.p());
+        let np = n * p;
+        let mut f = DMatrix::zeros(np, np);
+        for (l, b) in self.lags.iter().enumerate() {
+            f.view_mut((0, l * n), (n, n)).copy_from(b);
+        }
+        for i in n..np {
+            f[(i, i - n)] = 1.0;
+        }
+        f.complex_eigenvalues()
+            .iter()
+            .map(|z| z.norm())
+            .fold(0.0, f64::max)
+    }
+}

@@ -1,0 +1,104 @@
+//! Tables written by the headless commands: `fans.csv`, `draws.csv` and `about.txt`
+//! (what was run, and the caution every forecast export carries).
+
+pub mod fans;
+
+use std::path::Path;
+
+pub use fans::{FanRow, Kind, QUANTILES, fans};
+
+use crate::scenario::Setup;
+
+/// Shown with every screen and export that shows forecasts.
+pub const CAUTION: &str = "Model-based scenarios, not predictions or advice. Decisions rest with \
+the institution's own governance, local rules and qualified staff.";
+
+/// Errors while writing tables.
+#[derive(Debug, thiserror::Error)]
+pub enum ReportError {
+    #[error("cannot write {}: {source}", path.display())]
+    Io {
+        path: std::path::PathBuf,
+        source: std::io::Error,
+    },
+    #[error("cannot write {}: {source}", path.display())]
+    Csv {
+        path: std::path::PathBuf,
+        source: csv::Error,
+    },
+}
+
+fn csv_writer(path: &Path) -> Result<csv::Writer<std::fs::File>, ReportError> {
+    csv::Writer::from_path(path).map_err(|source| ReportError::Csv {
+        path: path.to_path_buf(),
+        source,
+    })
+}
+
+/// `fans.csv`: `series,period,horizon,kind,units,mean,q05,q16,q25,q50,q75,q84,q95`.
+pub fn write_fans(path: &Path, rows: &[FanRow]) -> Result<(), ReportError> {
+    let err = |source| ReportError::Csv {
+        path: path.to_path_buf(),
+        source,
+    };
+    let mut w = csv_writer(path)?;
+    w.write_record([
+        "series", "period", "horizon", "kind", "units", "mean", "q05", "q16", "q25", "q50", "q75",
+        "q84", "q95",
+    ])
+    .map_err(err)?;
+    for r in rows {
+        let mut rec = vec![
+            r.series.clone(),
+            r.period.to_string(),
+            r.horizon.to_string(),
+            r.kind.label().to_string(),
+            r.units.label(),
+            r.mean.to_string(),
+        ];
+        rec.extend(r.quantiles.iter().map(|q| q.to_string()));
+        w.write_record(&rec).map_err(err)?;
+    }
+    w.flush().map_err(|source| ReportError::Io {
+        path: path.to_path_buf(),
+        source,
+    })
+}
+
+/// `draws.csv`: `draw,series,period,value`, values in each series' display units.
+pub fn write_draws(path: &Path, setup: &Setup, paths: &[Vec<f64>]) -> Result<(), ReportError> {
+    let err = |source| ReportError::Csv {
+        path: path.to_path_buf(),
+        source,
+    };
+    let mut w = csv_writer(path)?;
+    w.write_record(["draw", "series", "period", "value"])
+        .map_err(err)?;
+    let last = setup.last_period();
+    for (d, path_values) in paths.iter().enumerate() {
+        for t in 1..=setup.file.horizon {
+            for i in 0..setup.n() {
+                let v = fans::display_path_value(setup, path_values, i, t);
+                w.write_record([
+                    d.to_string(),
+                    setup.names[i].clone(),
+                    last.offset(t as i64).to_string(),
+                    v.to_string(),
+                ])
+                .map_err(err)?;
+            }
+        }
+    }
+    w.flush().map_err(|source| ReportError::Io {
+        path: path.to_path_buf(),
+        source,
+    })
+}
+
+/// `about.txt`: the run summary and the caution.
+pub fn write_about(path: &Path, summary: &str) -> Result<(), ReportError> {
+    std::fs::write(path, format!("{summary}\n\n{CAUTION}\n")).map_err(|source| ReportError::Io {
+        path: path.to_path_buf(),
+        source,
+    })
+}

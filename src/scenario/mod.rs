@@ -1,0 +1,102 @@
+//! Scenarios: the RON file ([`schema`]), people's units turned into rows ([`units`]), and
+//! the bridge to the engine ([`setup`]).
+
+pub mod schema;
+pub mod setup;
+pub mod units;
+
+use std::path::{Path, PathBuf};
+
+pub use schema::{Centre, FixedSpec, ModelSpec, PinSpec, ScenarioFile, SeriesSpec, Units};
+pub use setup::Setup;
+
+use crate::dataset::DatasetError;
+use crate::model::ModelError;
+
+/// Everything that can be wrong with a scenario; messages name the file, field, series or pin.
+#[derive(Debug, thiserror::Error)]
+pub enum ScenarioError {
+    #[error("cannot read scenario {}: {source}", path.display())]
+    Io {
+        path: PathBuf,
+        source: std::io::Error,
+    },
+    #[error("{}:{line}:{column}: {message}", path.display())]
+    Syntax {
+        path: PathBuf,
+        line: usize,
+        column: usize,
+        message: String,
+    },
+    #[error("{field}: {why}")]
+    Invalid { field: String, why: String },
+    #[error("{field}: unknown series {name:?} (the choices are {known})")]
+    UnknownSeries {
+        field: String,
+        name: String,
+        known: String,
+    },
+    #[error("{field}: unknown shock {name:?} (shocks are named after the model series: {known})")]
+    UnknownShock {
+        field: String,
+        name: String,
+        known: String,
+    },
+    #[error("{field} ({label}): {why}")]
+    Pin {
+        field: String,
+        label: String,
+        why: String,
+    },
+    #[error(
+        "too few observations: the estimation window {window} has {rows} periods, but {lags} lags need at least {} (lags + 3)",
+        lags + 3
+    )]
+    TooFewObservations {
+        rows: usize,
+        lags: usize,
+        window: String,
+    },
+    #[error(transparent)]
+    Dataset(#[from] DatasetError),
+    #[error("model: {source}")]
+    Model { source: ModelError },
+}
+
+fn ron_options() -> ron::Options {
+    ron::Options::default().with_default_extension(ron::extensions::Extensions::IMPLICIT_SOME)
+}
+
+/// Parse scenario text; `path` is used in messages only.
+pub fn parse(text: &str, path: &Path) -> Result<ScenarioFile, ScenarioError> {
+    ron_options()
+        .from_str(text)
+        .map_err(|e| ScenarioError::Syntax {
+            path: path.to_path_buf(),
+            line: e.span.start.line,
+            column: e.span.start.col,
+            message: e.code.to_string(),
+        })
+}
+
+/// Read and parse a scenario file.
+pub fn read(path: &Path) -> Result<ScenarioFile, ScenarioError> {
+    let text = std::fs::read_to_string(path).map_err(|source| ScenarioError::Io {
+        path: path.to_path_buf(),
+        source,
+    })?;
+    parse(&text, path)
+}
+
+/// Read a scenario and load its dataset.
+pub fn load(path: &Path) -> Result<Setup, ScenarioError> {
+    Setup::new(read(path)?, path)
+}
+
+/// The scenario as RON text, readable and parseable by [`parse`].
+pub fn to_text(file: &ScenarioFile) -> String {
+    let config = ron::ser::PrettyConfig::new()
+        .struct_names(false)
+        .extensions(ron::extensions::Extensions::IMPLICIT_SOME);
+    ron::ser::to_string_pretty(file, config).unwrap_or_else(|e| format!("// cannot write: {e}"))
+}

@@ -1,0 +1,185 @@
+//! The scenario file: a RON document, read with `implicit_some` so optional fields are
+//! written plainly. Unknown fields are errors naming the field.
+//!
+//! ```ron
+//! (
+//!     name: "Baseline",
+//!     narrative: "Growth slows, unemployment edges up.",
+//!     dataset: "economy.csv",              // relative to the scenario file
+//!     series: [
+//!         (name: "output", transform: log100, centre: random_walk, display: year_on_year),
+//!         (name: "unemployment"),
+//!     ],
+//!     model: minnesota((lags: 4, tightness: auto)),
+//!     ordering: ["output", "unemployment"], // recursive identification (default: series order)
+//!     drivers: ["output"],                  // shocks allowed to move (default: all)
+//!     horizon: 12, draws: 1000, seed: 7,
+//!     pins: [
+//!         (series: "unemployment", period: "2027Q2", units: level, value: 6.5),
+//!         (shock: "output", period: "2026Q1", value: -1.0),
+//!     ],
+//! )
+//! ```
+
+use serde::{Deserialize, Serialize};
+
+use crate::dataset::Transform;
+use crate::model::{FlatSettings, MinnesotaSettings};
+
+/// A scenario as written in its file.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ScenarioFile {
+    pub name: String,
+    #[serde(default)]
+    pub narrative: String,
+    /// Path of the dataset CSV, relative to the scenario file.
+    pub dataset: String,
+    /// Series of the model, in model order.
+    pub series: Vec<SeriesSpec>,
+    pub model: ModelSpec,
+    /// Recursive identification order of the shocks (series names).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub ordering: Option<Vec<String>>,
+    /// Shocks allowed to move so that the pins hold; all when absent.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub drivers: Option<Vec<String>>,
+    /// Forecast horizon in periods after the last observation.
+    pub horizon: usize,
+    /// Posterior draws of the parameters (paths, for fixed coefficients).
+    #[serde(default = "default_draws")]
+    pub draws: usize,
+    /// Conditional paths per posterior draw.
+    #[serde(default = "one")]
+    pub paths_per_draw: usize,
+    #[serde(default)]
+    pub seed: u64,
+    #[serde(default)]
+    pub pins: Vec<PinSpec>,
+}
+
+fn default_draws() -> usize {
+    1000
+}
+
+fn one() -> usize {
+    1
+}
+
+fn yes() -> bool {
+    true
+}
+
+fn as_is() -> Transform {
+    Transform::AsIs
+}
+
+/// One series of the model.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct SeriesSpec {
+    /// Column name in the dataset.
+    pub name: String,
+    #[serde(default = "as_is")]
+    pub transform: Transform,
+    #[serde(default)]
+    pub centre: Centre,
+    /// Units in which fans and tables show this series.
+    #[serde(default)]
+    pub display: Units,
+}
+
+/// Prior mean of a series' first own lag.
+#[derive(Debug, Clone, Copy, PartialEq, Default, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Centre {
+    /// Levels: first own lag 1.
+    #[default]
+    RandomWalk,
+    /// Growth rates and other stationary series: first own lag 0.
+    WhiteNoise,
+    /// A value in [0, 1].
+    OwnLag(f64),
+}
+
+impl Centre {
+    pub fn delta(self) -> f64 {
+        match self {
+            Centre::RandomWalk => 1.0,
+            Centre::WhiteNoise => 0.0,
+            Centre::OwnLag(d) => d,
+        }
+    }
+}
+
+/// How the model's parameters are obtained.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum ModelSpec {
+    /// Estimate under the Minnesota-type prior.
+    Minnesota(MinnesotaSettings),
+    /// Estimate under the flat prior (OLS limit).
+    Flat(FlatSettings),
+    /// Coefficients given by the user: no estimation, no parameter uncertainty.
+    Fixed(FixedSpec),
+}
+
+/// Fixed coefficients: `y_t = intercept + Σ_l lags[l−1] y_{t−l} + u_t`, `u_t ~ N(0, sigma)`,
+/// with `lags[l−1][i][j]` the effect of series `j` at lag `l` on series `i`.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct FixedSpec {
+    pub intercept: Vec<f64>,
+    pub lags: Vec<Vec<Vec<f64>>>,
+    pub sigma: Vec<Vec<f64>>,
+}
+
+/// People's units for a pin or a display.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Units {
+    /// The level of the series.
+    #[default]
+    Level,
+    /// Percent change on the previous period.
+    PctChange,
+    /// Period-on-period growth, annualised by compounding, percent.
+    Annualised,
+    /// Percent change on a year earlier.
+    YearOnYear,
+    /// Change on the previous period in the series' own units (as-is series).
+    Difference,
+    /// Average of the level over this many periods ending at the period
+    /// (geometric for log series).
+    Average(usize),
+}
+
+impl Units {
+    pub fn label(self) -> String {
+        match self {
+            Units::Level => "level".into(),
+            Units::PctChange => "pct_change".into(),
+            Units::Annualised => "annualised".into(),
+            Units::YearOnYear => "year_on_year".into(),
+            Units::Difference => "difference".into(),
+            Units::Average(k) => format!("average({k})"),
+        }
+    }
+}
+
+/// A pin: one series (or shock) at one future period equals a value, in chosen units.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct PinSpec {
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub series: Option<String>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub shock: Option<String>,
+    pub period: String,
+    #[serde(default)]
+    pub units: Units,
+    pub value: f64,
+    /// A switched-off pin stays in the file but does not condition the forecast.
+    #[serde(default = "yes")]
+    pub active: bool,
+}

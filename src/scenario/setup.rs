@@ -1,0 +1,415 @@
+//! From a scenario file to the engine's inputs: the dataset in model units, the estimated
+//! (or fixed) model, the identification ordering, and the pins and drivers as engine rows.
+//! Model-level work ([`Setup::estimate`]) and condition-level work ([`Setup::conditions`])
+//! are separate so that editing a condition never re-estimates the model.
+
+use std::path::{Path, PathBuf};
+
+use super::{
+    ScenarioError,
+    schema::{ModelSpec, PinSpec, ScenarioFile, Units},
+    units::pin_row,
+};
+use crate::dataset::{Dataset, Period, Transform};
+use crate::forecast::{Conditions, ParamSource, Pin, PinTarget};
+use crate::model::{FitSummary, Params, Regression, Window, estimate_minnesota, posterior::flat};
+
+/// Upper limits that keep a typo from asking for hours of work.
+pub const MAX_HORIZON: usize = 400;
+pub const MAX_DRAWS: usize = 1_000_000;
+
+/// A scenario with its dataset loaded and checked.
+#[derive(Debug, Clone)]
+pub struct Setup {
+    pub file: ScenarioFile,
+    /// Where the scenario came from (for messages and relative paths).
+    pub path: PathBuf,
+    pub dataset: Dataset,
+    /// Model series: columns in model units, `columns[i][row]`.
+    pub columns: Vec<Vec<f64>>,
+    pub names: Vec<String>,
+    pub transforms: Vec<Transform>,
+    pub display: Vec<Units>,
+    /// `ordering[k]` = series index of the k-th shock.
+    pub ordering: Vec<usize>,
+}
+
+impl Setup {
+    /// Load the dataset a scenario refers to and check everything that does not need the model.
+    pub fn new(file: ScenarioFile, path: &Path) -> Result<Setup, ScenarioError> {
+        check_counts(&file)?;
+        let base = path.parent().unwrap_or(Path::new("."));
+        let dataset = Dataset::read(&base.join(&file.dataset))?;
+        let mut transforms_all = vec![Transform::AsIs; dataset.names.len()];
+        let mut picked = Vec::new();
+        for (k, s) in file.series.iter().enumerate() {
+            let Some(i) = dataset.series_index(&s.name) else {
+                return Err(ScenarioError::UnknownSeries {
+                    field: format!("series[{k}]"),
+                    name: s.name.clone(),
+                    known: dataset.names.join(", "),
+                });
+            };
+            if picked.contains(&i) {
+                return Err(ScenarioError::Invalid {
+                    field: format!("series[{k}]"),
+                    why: format!("series {} is listed twice", s.name),
+                });
+            }
+            picked.push(i);
+            transforms_all[i] = s.transform;
+        }
+        if picked.is_empty() {
+            return Err(ScenarioError::Invalid {
+                field: "series".into(),
+                why: "list at least one series of the dataset".into(),
+            });
+        }
+        let all = dataset.transformed(&transforms_all)?;
+        let columns = picked.iter().map(|&i| all[i].clone()).collect();
+        let names: Vec<String> = file.series.iter().map(|s| s.name.clone()).collect();
+        let ordering = resolve_ordering(&file, &names)?;
+        Ok(Setup {
+            transforms: file.series.iter().map(|s| s.transform).collect(),
+            display: file.series.iter().map(|s| s.display).collect(),
+            path: path.to_path_buf(),
+            columns,
+            names,
+            ordering,
+            dataset,
+            file,
+        })
+    }
+
+    pub fn n(&self) -> usize {
+        self.names.len()
+    }
+
+    pub fn lags(&self) -> usize {
+        match &self.file.model {
+            ModelSpec::Minnesota(m) => m.lags,
+            ModelSpec::Flat(f) => f.lags,
+            ModelSpec::Fixed(f) => f.lags.len(),
+        }
+    }
+
+    pub fn last_period(&self) -> Period {
+        self.dataset.last_period()
+    }
+
+    pub fn periods_per_year(&self) -> usize {
+        self.dataset.frequency.periods_per_year()
+    }
+
+    /// The last `p` observed rows in model units, oldest first.
+    pub fn tail(&self) -> Result<Vec<Vec<f64>>, ScenarioError> {
+        let (p, rows) = (self.lags(), self.dataset.len());
+        if rows < p {
+            return Err(ScenarioError::Invalid {
+                field: "model".into(),
+                why: format!("{p} lags need {p} observed periods; the dataset has {rows}"),
+            });
+        }
+        Ok((rows - p..rows)
+            .map(|r| self.columns.iter().map(|c| c[r]).collect())
+            .collect())
+    }
+
+    /// Estimate the model (or take the fixed coefficients).
+    pub fn estimate(&self) -> Result<(ParamSource, Option<FitSummary>), ScenarioError> {
+        let delta: Vec<f64> = self.file.series.iter().map(|s| s.centre.delta()).collect();
+        for (k, d) in delta.iter().enumerate() {
+            if !(0.0..=1.0).contains(d) {
+                return Err(ScenarioError::Invalid {
+                    field: format!("series[{k}].centre"),
+                    why: format!("own_lag must lie in [0, 1], got {d}"),
+                });
+            }
+        }
+        let model_err = |e| ScenarioError::Model { source: e };
+        match &self.file.model {
+            ModelSpec::Fixed(f) => {
+                let params = Params::fixed(f.intercept.clone(), f.lags.clone(), f.sigma.clone())
+                    .map_err(model_err)?;
+                if params.n() != self.n() {
+                    return Err(ScenarioError::Invalid {
+                        field: "model.fixed.intercept".into(),
+                        why: format!(
+                            "has {} entries but the scenario lists {} series",
+                            params.n(),
+                            self.n()
+                        ),
+                    });
+                }
+                Ok((ParamSource::Fixed(params), None))
+            }
+            ModelSpec::Minnesota(m) => {
+                let reg = self.regression(m.lags, m.window.as_ref())?;
+                let (post, fit) = estimate_minnesota(&reg, m, &delta).map_err(model_err)?;
+                Ok((ParamSource::Posterior(post), Some(fit)))
+            }
+            ModelSpec::Flat(f) => {
+                let reg = self.regression(f.lags, f.window.as_ref())?;
+                let post = flat(&reg.y, &reg.x).map_err(model_err)?;
+                let fit = FitSummary {
+                    lambda: None,
+                    log_ml: None,
+                    lambda_on_boundary: false,
+                    observations: reg.t(),
+                    floored_scales: Vec::new(),
+                };
+                Ok((ParamSource::Posterior(post), Some(fit)))
+            }
+        }
+    }
+
+    /// Rows of the estimation window, checked against the lags.
+    fn regression(&self, p: usize, window: Option<&Window>) -> Result<Regression, ScenarioError> {
+        if p == 0 {
+            return Err(ScenarioError::Invalid {
+                field: "model.lags".into(),
+                why: "must be at least 1".into(),
+            });
+        }
+        let (first, last) = self.window_rows(window)?;
+        let rows = last + 1 - first;
+        if rows < p + 3 {
+            return Err(ScenarioError::TooFewObservations {
+                rows,
+                lags: p,
+                window: format!(
+                    "{}–{}",
+                    self.dataset.periods[first], self.dataset.periods[last]
+                ),
+            });
+        }
+        Ok(Regression::new(&self.columns, first, last, p))
+    }
+
+    fn window_rows(&self, window: Option<&Window>) -> Result<(usize, usize), ScenarioError> {
+        let ds = &self.dataset;
+        let find = |label: &Option<String>, field: &str, default: usize| match label {
+            None => Ok(default),
+            Some(text) => {
+                let period =
+                    Period::parse(text, ds.frequency).map_err(|e| ScenarioError::Invalid {
+                        field: format!("model.window.{field}"),
+                        why: e.to_string(),
+                    })?;
+                ds.row_of(period).ok_or_else(|| ScenarioError::Invalid {
+                    field: format!("model.window.{field}"),
+                    why: format!(
+                        "{period} is outside the dataset ({}–{})",
+                        ds.first_period(),
+                        ds.last_period()
+                    ),
+                })
+            }
+        };
+        let w = window.cloned().unwrap_or_default();
+        let first = find(&w.from, "from", 0)?;
+        let last = find(&w.to, "to", ds.len() - 1)?;
+        if first > last {
+            return Err(ScenarioError::Invalid {
+                field: "model.window".into(),
+                why: "from comes after to".into(),
+            });
+        }
+        Ok((first, last))
+    }
+
+    /// Pins (active ones) and drivers in engine form.
+    pub fn conditions(&self) -> Result<Conditions, ScenarioError> {
+        let drivers = match &self.file.drivers {
+            None => None,
+            Some(list) => Some(
+                list.iter()
+                    .enumerate()
+                    .map(|(k, name)| self.shock_index(name, &format!("drivers[{k}]")))
+                    .collect::<Result<Vec<_>, _>>()?,
+            ),
+        };
+        let mut pins = Vec::new();
+        for (k, spec) in self.file.pins.iter().enumerate() {
+            if spec.active {
+                pins.push(self.pin(k, spec)?);
+            }
+        }
+        Ok(Conditions {
+            pins,
+            drivers,
+            shock_names: self.names.clone(),
+        })
+    }
+
+    fn shock_index(&self, name: &str, field: &str) -> Result<usize, ScenarioError> {
+        self.names
+            .iter()
+            .position(|s| s == name)
+            .ok_or_else(|| ScenarioError::UnknownShock {
+                field: field.into(),
+                name: name.into(),
+                known: self.names.join(", "),
+            })
+    }
+
+    /// Horizon (1-based) of a period label, checked against the forecast range.
+    pub fn horizon_of(&self, text: &str, field: &str) -> Result<usize, ScenarioError> {
+        let period =
+            Period::parse(text, self.dataset.frequency).map_err(|e| ScenarioError::Invalid {
+                field: field.into(),
+                why: e.to_string(),
+            })?;
+        let last = self.last_period();
+        let t = period.periods_since(&last);
+        let h = self.file.horizon as i64;
+        if t < 1 {
+            return Err(ScenarioError::Invalid {
+                field: field.into(),
+                why: format!(
+                    "{period} is not after the last observation {last}; pins are on future periods"
+                ),
+            });
+        }
+        if t > h {
+            return Err(ScenarioError::Invalid {
+                field: field.into(),
+                why: format!(
+                    "{period} is beyond the horizon, which ends at {}; raise horizon to at least {t} or move the pin",
+                    last.offset(h)
+                ),
+            });
+        }
+        Ok(t as usize)
+    }
+
+    fn pin(&self, k: usize, spec: &PinSpec) -> Result<Pin, ScenarioError> {
+        let field = format!("pins[{k}]");
+        if !spec.value.is_finite() {
+            return Err(ScenarioError::Invalid {
+                field: format!("{field}.value"),
+                why: "must be a finite number".into(),
+            });
+        }
+        let t = self.horizon_of(&spec.period, &format!("{field}.period"))?;
+        match (&spec.series, &spec.shock) {
+            (Some(name), None) => {
+                let i = self.names.iter().position(|s| s == name).ok_or_else(|| {
+                    ScenarioError::UnknownSeries {
+                        field: format!("{field}.series"),
+                        name: name.clone(),
+                        known: self.names.join(", "),
+                    }
+                })?;
+                let label = format!(
+                    "{name} {} at {} = {}",
+                    spec.units.label(),
+                    spec.period,
+                    spec.value
+                );
+                let (terms, value) = pin_row(
+                    spec.units,
+                    self.transforms[i],
+                    spec.value,
+                    self.periods_per_year(),
+                    i,
+                    self.n(),
+                    t,
+                    &self.columns[i],
+                )
+                .map_err(|e| ScenarioError::Pin {
+                    field: field.clone(),
+                    label: label.clone(),
+                    why: e.to_string(),
+                })?;
+                Ok(Pin {
+                    label,
+                    target: PinTarget::Path { terms, value },
+                })
+            }
+            (None, Some(name)) => {
+                let shock = self.shock_index(name, &format!("{field}.shock"))?;
+                if spec.units != Units::Level {
+                    return Err(ScenarioError::Invalid {
+                        field: format!("{field}.units"),
+                        why: "a shock pin is a value of the standardised shock; use units: level"
+                            .into(),
+                    });
+                }
+                Ok(Pin {
+                    label: format!("{name} shock at {} = {}", spec.period, spec.value),
+                    target: PinTarget::Shock {
+                        horizon: t,
+                        shock,
+                        value: spec.value,
+                    },
+                })
+            }
+            _ => Err(ScenarioError::Invalid {
+                field,
+                why: "give exactly one of series or shock".into(),
+            }),
+        }
+    }
+}
+
+fn check_counts(file: &ScenarioFile) -> Result<(), ScenarioError> {
+    let bad = |field: &str, why: String| {
+        Err(ScenarioError::Invalid {
+            field: field.into(),
+            why,
+        })
+    };
+    if file.horizon == 0 || file.horizon > MAX_HORIZON {
+        return bad("horizon", format!("must be between 1 and {MAX_HORIZON}"));
+    }
+    if file.draws == 0 || file.draws > MAX_DRAWS {
+        return bad("draws", format!("must be between 1 and {MAX_DRAWS}"));
+    }
+    if file.paths_per_draw == 0 || file.paths_per_draw.saturating_mul(file.draws) > MAX_DRAWS {
+        return bad(
+            "paths_per_draw",
+            format!("must be at least 1, with draws × paths_per_draw at most {MAX_DRAWS}"),
+        );
+    }
+    Ok(())
+}
+
+fn resolve_ordering(file: &ScenarioFile, names: &[String]) -> Result<Vec<usize>, ScenarioError> {
+    let Some(order) = &file.ordering else {
+        return Ok((0..names.len()).collect());
+    };
+    let mut idx = Vec::new();
+    for (k, name) in order.iter().enumerate() {
+        let i =
+            names
+                .iter()
+                .position(|s| s == name)
+                .ok_or_else(|| ScenarioError::UnknownSeries {
+                    field: format!("ordering[{k}]"),
+                    name: name.clone(),
+                    known: names.join(", "),
+                })?;
+        if idx.contains(&i) {
+            return Err(ScenarioError::Invalid {
+                field: format!("ordering[{k}]"),
+                why: format!("{name} appears twice"),
+            });
+        }
+        idx.push(i);
+    }
+    if idx.len() != names.len() {
+        let missing: Vec<&str> = (0..names.len())
+            .filter(|i| !idx.contains(i))
+            .map(|i| names[i].as_str())
+            .collect();
+        return Err(ScenarioError::Invalid {
+            field: "ordering".into(),
+            why: format!(
+                "must list every model series once; missing {}",
+                missing.join(", ")
+            ),
+        });
+    }
+    Ok(idx)
+}

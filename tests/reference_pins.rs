@@ -1,0 +1,188 @@
+//! Pins and drivers for fixed coefficients against textbook Gaussian conditioning and the
+//! drivers closed form, both computed independently in numpy (`tests/fixtures/pins_gaussian.json`,
+//! made by `tests/fixtures/make_fixtures.py`).
+
+mod common;
+
+use std::sync::atomic::AtomicBool;
+
+use common::*;
+use nalgebra::{DMatrix, DVector};
+use serde_json::Value;
+use tiltyard::forecast::{ParamSource, Plan, Theta, ThetaSet, sample_paths};
+use tiltyard::scenario::{self, Setup};
+
+/// Exact moments: relative 1e-8 (ALGORITHMS §11.4 allows `1e-9 · cond(G)`).
+const EXACT: f64 = 1e-8;
+/// Monte Carlo checks: 4 standard errors for means (ALGORITHMS §11.4).
+const MEAN_SE: f64 = 4.0;
+/// Every path meets every pin to this relative error.
+const PIN_TOL: f64 = 1e-9;
+
+fn case_setup(fx: &Value, case: &Value, dir: &tempfile::TempDir) -> Setup {
+    let model = fixed_model_ron(&matrix(&fx["params"]), &matrix(&fx["sigma_u"]));
+    let mut pins = Vec::new();
+    for p in case["pins"].as_array().unwrap() {
+        pins.push(format!(
+            "(series: {}, period: {}, units: {}, value: {:e})",
+            p["series"],
+            p["period"],
+            units_ron(&p["units"]),
+            p["value"].as_f64().unwrap()
+        ));
+    }
+    for p in case["shock_pins"].as_array().unwrap() {
+        pins.push(format!(
+            "(shock: {}, period: {}, value: {:e})",
+            p["shock"],
+            p["period"],
+            p["value"].as_f64().unwrap()
+        ));
+    }
+    let ordering: Vec<String> = case["ordering"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|s| s.to_string())
+        .collect();
+    let drivers = match &case["drivers"] {
+        Value::Null => String::new(),
+        d => format!(
+            "drivers: [{}],",
+            d.as_array()
+                .unwrap()
+                .iter()
+                .map(|s| s.to_string())
+                .collect::<Vec<_>>()
+                .join(", ")
+        ),
+    };
+    let extra = format!(
+        "ordering: [{}], {drivers} pins: [{}], draws: 1, seed: 11",
+        ordering.join(", "),
+        pins.join(", ")
+    );
+    let path = write_scenario(dir, &macro_scenario(&model, &extra, 8));
+    scenario::load(&path).unwrap()
+}
+
+fn theta_of(setup: &Setup) -> Theta {
+    let (ParamSource::Fixed(p), _) = setup.estimate().unwrap() else {
+        panic!("fixed")
+    };
+    Theta::new(
+        p,
+        &setup.ordering,
+        &setup.tail().unwrap(),
+        setup.file.horizon,
+    )
+    .unwrap()
+}
+
+#[test]
+fn exact_conditional_moments_match_numpy() {
+    let fx = json("pins_gaussian.json");
+    for case in fx["cases"].as_array().unwrap() {
+        let dir = tempfile::tempdir().unwrap();
+        let setup = case_setup(&fx, case, &dir);
+        let theta = theta_of(&setup);
+        let cond = setup.conditions().unwrap();
+        let plan = Plan::new(&theta, &cond, None).unwrap();
+        let (mean, cov) = plan.exact_moments(&theta);
+        let name = case["name"].as_str().unwrap();
+        let em = rel_err(
+            &DMatrix::from_column_slice(32, 1, mean.as_slice()),
+            &DMatrix::from_column_slice(32, 1, vector(&case["mean"]).as_slice()),
+        );
+        let ec = rel_err(&cov, &matrix(&case["cov"]));
+        assert!(em < EXACT, "{name}: mean error {em:e}");
+        assert!(ec < EXACT, "{name}: covariance error {ec:e}");
+    }
+}
+
+/// Sampled moments within Monte Carlo error of the numpy moments; every path meets the pins.
+#[test]
+fn sampled_paths_match_numpy_within_monte_carlo_error() {
+    let fx = json("pins_gaussian.json");
+    let paths = 20_000;
+    for case in fx["cases"].as_array().unwrap() {
+        let dir = tempfile::tempdir().unwrap();
+        let setup = case_setup(&fx, case, &dir);
+        let set = ThetaSet {
+            thetas: vec![theta_of(&setup)],
+            explosive: 0,
+        };
+        let cond = setup.conditions().unwrap();
+        let out = sample_paths(&set, 0..1, &cond, paths, 5, &AtomicBool::new(false)).unwrap();
+        let name = case["name"].as_str().unwrap();
+        assert!(
+            out.max_pin_error < PIN_TOL,
+            "{name}: pin error {:e}",
+            out.max_pin_error
+        );
+        let mean = vector(&case["mean"]);
+        let cov = matrix(&case["cov"]);
+        let big_n = mean.len();
+        let mut sum = DVector::zeros(big_n);
+        for y in &out.conditional {
+            sum += DVector::from_column_slice(y);
+        }
+        let sample_mean = sum / paths as f64;
+        for c in 0..big_n {
+            let se = (cov[(c, c)].max(0.0) / paths as f64).sqrt();
+            let gap = (sample_mean[c] - mean[c]).abs();
+            // Pinned cells have zero variance: they must match to rounding.
+            let allowed = MEAN_SE * se + 1e-9 * (1.0 + mean[c].abs());
+            assert!(
+                gap <= allowed,
+                "{name}: cell {c}: mean {} vs {} (se {se:e})",
+                sample_mean[c],
+                mean[c]
+            );
+        }
+        // Variances within 5 standard errors, s.e. of a variance ≈ σ² sqrt(2/n).
+        for c in 0..big_n {
+            let v: f64 = out
+                .conditional
+                .iter()
+                .map(|y| (y[c] - sample_mean[c]).powi(2))
+                .sum::<f64>()
+                / (paths - 1) as f64;
+            let se = cov[(c, c)].max(0.0) * (2.0 / paths as f64).sqrt();
+            assert!(
+                (v - cov[(c, c)]).abs() <= 5.0 * se + 1e-12 * (1.0 + mean[c].abs()).powi(2),
+                "{name}: cell {c}: variance {v} vs {}",
+                cov[(c, c)]
+            );
+        }
+    }
+}
+
+/// All shocks as drivers gives the same distribution as plain conditioning (exactly, and
+/// both equal to the numpy reference).
+#[test]
+fn all_shocks_as_drivers_equals_plain_conditioning() {
+    let fx = json("pins_gaussian.json");
+    let case = fx["cases"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|c| c["name"] == "drivers_all")
+        .unwrap()
+        .clone();
+    let dir = tempfile::tempdir().unwrap();
+    let with_drivers = case_setup(&fx, &case, &dir);
+    let mut plain_case = case.clone();
+    plain_case["drivers"] = Value::Null;
+    let dir2 = tempfile::tempdir().unwrap();
+    let plain = case_setup(&fx, &plain_case, &dir2);
+    let theta = theta_of(&plain);
+    let (m1, c1) = Plan::new(&theta, &with_drivers.conditions().unwrap(), None)
+        .unwrap()
+        .exact_moments(&theta);
+    let (m2, c2) = Plan::new(&theta, &plain.conditions().unwrap(), None)
+        .unwrap()
+        .exact_moments(&theta);
+    assert!((&m1 - &m2).amax() < EXACT * m2.amax());
+    assert!(rel_err(&c1, &c2) < EXACT);
+}
