@@ -34,6 +34,7 @@ pub struct RunOutcome {
     pub fit: Option<FitSummary>,
     pub posterior_draws: usize,
     pub explosive: usize,
+    pub median_root: f64,
     pub elapsed: Duration,
 }
 
@@ -87,6 +88,7 @@ pub fn run(setup: &mut Setup, options: &RunOptions) -> Result<RunOutcome, RunErr
             set.thetas.len()
         },
         explosive: set.explosive,
+        median_root: set.median_root,
         elapsed: start.elapsed(),
         paths,
     })
@@ -113,6 +115,21 @@ pub fn summary(setup: &Setup, out: &RunOutcome) -> String {
         s.push(format!("           note: {note}"));
     }
     s.push(format!("model      {}", model_line(setup, out)));
+    if let Some(fit) = &out.fit {
+        let k = 1 + setup.n() * setup.lags();
+        if fit.observations < k {
+            s.push(format!(
+                "           note: {} observations for {k} coefficients per equation; the prior carries most of the estimate",
+                fit.observations
+            ));
+        }
+        for &i in &fit.floored_scales {
+            s.push(format!(
+                "           note: series {} is constant over the window; its prior scale was floored",
+                setup.names[i]
+            ));
+        }
+    }
     let paths = out.paths.conditional.len();
     s.push(format!(
         "forecast   {} periods ({}–{}), {} paths, seed {}",
@@ -134,8 +151,8 @@ pub fn summary(setup: &Setup, out: &RunOutcome) -> String {
     if out.posterior_draws > 0 {
         let share = 100.0 * out.explosive as f64 / out.posterior_draws as f64;
         s.push(format!(
-            "           explosive posterior draws (a root of modulus > 1): {} of {} ({share:.1}%), kept",
-            out.explosive, out.posterior_draws
+            "           explosive posterior draws (largest root modulus > 1): {} of {} ({share:.1}%), kept; median largest root {:.4}",
+            out.explosive, out.posterior_draws, out.median_root
         ));
     }
     s.push(format!("time       {:.2} s", out.elapsed.as_secs_f64()));

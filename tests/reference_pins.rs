@@ -111,6 +111,7 @@ fn sampled_paths_match_numpy_within_monte_carlo_error() {
         let set = ThetaSet {
             thetas: vec![theta_of(&setup)],
             explosive: 0,
+            median_root: f64::NAN,
         };
         let cond = setup.conditions().unwrap();
         let out = sample_paths(&set, 0..1, &cond, paths, 5, &AtomicBool::new(false)).unwrap();

@@ -31,6 +31,8 @@ pub struct ThetaSet {
     pub thetas: Vec<Theta>,
     /// Draws whose companion matrix has an eigenvalue of modulus above 1 (kept, reported).
     pub explosive: usize,
+    /// Median over draws of the largest companion eigenvalue modulus.
+    pub median_root: f64,
 }
 
 /// Threshold above which the largest companion root counts as explosive.
@@ -53,10 +55,10 @@ pub fn build_thetas(
             .map(|i| post.draw(&mut stream(seed, Purpose::Parameters, i as u64)))
             .collect(),
     };
-    let explosive = params
-        .par_iter()
-        .filter(|p| p.spectral_radius() > EXPLOSIVE_MODULUS)
-        .count();
+    let mut roots: Vec<f64> = params.par_iter().map(|p| p.spectral_radius()).collect();
+    let explosive = roots.iter().filter(|&&r| r > EXPLOSIVE_MODULUS).count();
+    roots.sort_by(f64::total_cmp);
+    let median_root = roots.get(roots.len() / 2).copied().unwrap_or(f64::NAN);
     let thetas = params
         .into_par_iter()
         .enumerate()
@@ -67,7 +69,11 @@ pub fn build_thetas(
             Theta::new(p, ordering, tail, h).map_err(|e| e.in_draw(i))
         })
         .collect::<Result<Vec<_>, _>>()?;
-    Ok(ThetaSet { thetas, explosive })
+    Ok(ThetaSet {
+        thetas,
+        explosive,
+        median_root,
+    })
 }
 
 /// Pooled paths of a run, in (θ, path) order.
