@@ -52,7 +52,7 @@ fn unknown_field_inside_a_pin_is_named() {
     let msg = load_err(&base(
         r#"pins: [(series: "realgdp", period: "2010Q1", valu: 1.0)]"#,
     ));
-    assert_mentions(&msg, &["valu"]);
+    assert_mentions(&msg, &["valu", "in a pin", "value"]);
 }
 
 #[test]

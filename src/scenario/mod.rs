@@ -75,8 +75,23 @@ pub fn parse(text: &str, path: &Path) -> Result<ScenarioFile, ScenarioError> {
             path: path.to_path_buf(),
             line: e.span.start.line,
             column: e.span.start.col,
-            message: e.code.to_string(),
+            message: plain_names(&e.code.to_string()),
         })
+}
+
+/// Error messages speak of the file's parts, not of the program's type names.
+fn plain_names(message: &str) -> String {
+    [
+        ("`ScenarioFile`", "the scenario"),
+        ("`SeriesSpec`", "a series"),
+        ("`PinSpec`", "a pin"),
+        ("`MinnesotaSettings`", "minnesota(...)"),
+        ("`FlatSettings`", "flat(...)"),
+        ("`FixedSpec`", "fixed(...)"),
+        ("`Window`", "window(...)"),
+    ]
+    .iter()
+    .fold(message.to_string(), |m, (from, to)| m.replace(from, to))
 }
 
 /// Read and parse a scenario file.
