@@ -14,6 +14,9 @@ use super::ForecastError;
 
 /// Singular values below `RANK_RTOL · σ_max · max(m, cols)` count as zero.
 const RANK_RTOL: f64 = 1e-12;
+/// `v'F_J̄` and `v'r̃` below this (relative to the size of `F` and of `r̃`) count as zero
+/// (ALGORITHMS §9.1 uses 1e−9 for the consistency residual).
+const NULL_RTOL: f64 = 1e-9;
 /// A null-vector entry above this share marks its pin as involved.
 const INVOLVED: f64 = 1e-3;
 
@@ -50,6 +53,7 @@ pub fn check(
     let smax = svd.singular_values.amax();
     let tol = RANK_RTOL * smax.max(f64::MIN_POSITIVE) * width as f64;
     let scale = 1.0 + rtilde.amax();
+    let f_scale = f.amax().max(f64::MIN_POSITIVE);
     for (k, s) in svd.singular_values.iter().enumerate() {
         if *s > tol && smax > 0.0 {
             continue;
@@ -62,9 +66,9 @@ pub fn check(
             .filter(|&c| drivers.is_some_and(|d| !d[c]))
             .map(|c| v.dot(&f.column(c)).abs())
             .fold(0.0, f64::max);
-        let kind = if rest > 1e-9 {
+        let kind = if rest > NULL_RTOL * f_scale {
             Failure::Unreachable
-        } else if v.dot(rtilde).abs() > 1e-9 * scale {
+        } else if v.dot(rtilde).abs() > NULL_RTOL * scale {
             Failure::Contradictory
         } else {
             Failure::Redundant
