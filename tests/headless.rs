@@ -100,3 +100,39 @@ fn bad_scenario_exits_non_zero_with_the_reason() {
     assert!(!out.status.success());
     assert!(String::from_utf8_lossy(&out.stderr).contains("no-such-scenario.ron"));
 }
+
+/// The example in docs/scenario-format.md is a working scenario on the demo data.
+#[test]
+fn documented_example_runs() {
+    let root = Path::new(env!("CARGO_MANIFEST_DIR"));
+    let doc = std::fs::read_to_string(root.join("docs/scenario-format.md")).unwrap();
+    let example: String = doc
+        .split("```ron\n")
+        .nth(1)
+        .and_then(|rest| rest.split("```").next())
+        .expect("a ron block")
+        .into();
+    let dir = tempfile::tempdir().unwrap();
+    let text = example.replace(
+        "\"economy.csv\"",
+        &format!(
+            "{:?}",
+            root.join("scenarios-demo/economy.csv")
+                .display()
+                .to_string()
+        ),
+    );
+    let path = dir.path().join("example.ron");
+    std::fs::write(&path, text).unwrap();
+    let out = tiltyard()
+        .args(["run", "--draws", "20", "--out"])
+        .arg(dir.path().join("out"))
+        .arg(&path)
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+}
