@@ -9,6 +9,9 @@ use crate::model::FitSummary;
 use crate::report::{FanRow, Kind, fans};
 use crate::scenario::{ModelSpec, ScenarioError, Setup};
 
+/// Every path must meet every pin to this relative error (ALGORITHMS §11.4).
+pub const PIN_TOLERANCE: f64 = 1e-9;
+
 /// Overrides from the command line.
 #[derive(Debug, Clone, Default)]
 pub struct RunOptions {
@@ -50,6 +53,7 @@ pub fn run(setup: &mut Setup, options: &RunOptions) -> Result<RunOutcome, RunErr
     if let Some(p) = options.paths_per_draw {
         setup.file.paths_per_draw = p;
     }
+    crate::scenario::setup::check_counts(&setup.file)?;
     let (source, fit) = setup.estimate()?;
     let conditions = setup.conditions()?;
     let file = &setup.file;
@@ -144,8 +148,13 @@ pub fn summary(setup: &Setup, out: &RunOutcome) -> String {
         None => "all shocks drive".to_string(),
         Some(d) => format!("drivers: {}", d.join(", ")),
     };
+    let met = if out.paths.max_pin_error <= PIN_TOLERANCE {
+        "met in every path"
+    } else {
+        "NOT MET to tolerance"
+    };
     s.push(format!(
-        "checks     {pins} pins met in every path (largest relative error {:.1e}); {drivers}",
+        "checks     {pins} pins {met} (largest relative error {:.1e}); {drivers}",
         out.paths.max_pin_error
     ));
     if out.posterior_draws > 0 {

@@ -209,3 +209,51 @@ fn scenario_text_round_trips() {
     let again = scenario::parse(&scenario::to_text(&file), &path).unwrap();
     assert_eq!(file, again);
 }
+
+#[test]
+fn overrides_are_range_checked() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = write_scenario(&dir, &base(""));
+    for options in [
+        RunOptions {
+            draws: Some(0),
+            ..Default::default()
+        },
+        RunOptions {
+            paths_per_draw: Some(0),
+            ..Default::default()
+        },
+        RunOptions {
+            draws: Some(usize::MAX),
+            paths_per_draw: Some(2),
+            ..Default::default()
+        },
+    ] {
+        let mut setup = scenario::load(&path).unwrap();
+        let msg = run(&mut setup, &options).unwrap_err().to_string();
+        assert!(
+            msg.contains("draws") || msg.contains("paths_per_draw"),
+            "{msg}"
+        );
+    }
+}
+
+#[test]
+fn absurd_average_spans_are_refused_not_allocated() {
+    let msg = load_err(&base(
+        r#"pins: [(series: "realgdp", period: "2010Q1", units: average(4000000000), value: 13000.0)]"#,
+    ));
+    assert_mentions(&msg, &["pins[0]", "before the first observation"]);
+    let text = base("").replace(
+        "(name: \"tbilrate\", transform: as_is)",
+        "(name: \"tbilrate\", display: average(0))",
+    );
+    assert_mentions(&load_err(&text), &["series[3].display", "average"]);
+}
+
+#[test]
+fn file_errors_are_not_repeated() {
+    let msg = scenario::load(std::path::Path::new("no-such.ron")).unwrap_err();
+    let text = format!("{:#}", anyhow::Error::from(msg));
+    assert_eq!(text.matches("No such file").count(), 1, "{text}");
+}

@@ -1,7 +1,9 @@
 //! The sampling loop over posterior draws (ALGORITHMS §8): build the θ-level caches once,
 //! then, for a set of conditions, draw paths for every θ in parallel. Each θ `i` uses the
 //! stream `(seed, Parameters, i)` and path `j` of it the stream `(seed, Paths, i·P + j)`.
-//! Results are gathered in index order, so they are bit-identical on any number of threads.
+//! Results are gathered in index order, so they are bit-identical on any number of threads;
+//! every draw's result is collected before errors are looked at, so the error reported is
+//! that of the lowest failing draw, the same on every run.
 
 use std::sync::atomic::{AtomicBool, Ordering};
 
@@ -68,6 +70,8 @@ pub fn build_thetas(
             }
             Theta::new(p, ordering, tail, h).map_err(|e| e.in_draw(i))
         })
+        .collect::<Vec<_>>()
+        .into_iter()
         .collect::<Result<Vec<_>, _>>()?;
     Ok(ThetaSet {
         thetas,
@@ -113,6 +117,8 @@ pub fn sample_paths(
             }
             Ok(out)
         })
+        .collect::<Vec<_>>()
+        .into_iter()
         .collect::<Result<Vec<_>, _>>()?;
     let mut all = PathSet::default();
     for b in blocks {

@@ -16,30 +16,30 @@ the institution's own governance, local rules and qualified staff.";
 /// Errors while writing tables.
 #[derive(Debug, thiserror::Error)]
 pub enum ReportError {
-    #[error("cannot write {}: {source}", path.display())]
+    #[error("cannot write {}: {error}", path.display())]
     Io {
         path: std::path::PathBuf,
-        source: std::io::Error,
+        error: std::io::Error,
     },
-    #[error("cannot write {}: {source}", path.display())]
+    #[error("cannot write {}: {error}", path.display())]
     Csv {
         path: std::path::PathBuf,
-        source: csv::Error,
+        error: csv::Error,
     },
 }
 
 fn csv_writer(path: &Path) -> Result<csv::Writer<std::fs::File>, ReportError> {
-    csv::Writer::from_path(path).map_err(|source| ReportError::Csv {
+    csv::Writer::from_path(path).map_err(|error| ReportError::Csv {
         path: path.to_path_buf(),
-        source,
+        error,
     })
 }
 
 /// `fans.csv`: `series,period,horizon,kind,units,mean,q05,q16,q25,q50,q75,q84,q95`.
 pub fn write_fans(path: &Path, rows: &[FanRow]) -> Result<(), ReportError> {
-    let err = |source| ReportError::Csv {
+    let err = |error| ReportError::Csv {
         path: path.to_path_buf(),
-        source,
+        error,
     };
     let mut w = csv_writer(path)?;
     w.write_record([
@@ -59,17 +59,17 @@ pub fn write_fans(path: &Path, rows: &[FanRow]) -> Result<(), ReportError> {
         rec.extend(r.quantiles.iter().map(|q| q.to_string()));
         w.write_record(&rec).map_err(err)?;
     }
-    w.flush().map_err(|source| ReportError::Io {
+    w.flush().map_err(|error| ReportError::Io {
         path: path.to_path_buf(),
-        source,
+        error,
     })
 }
 
 /// `draws.csv`: `draw,series,period,value`, values in each series' display units.
 pub fn write_draws(path: &Path, setup: &Setup, paths: &[Vec<f64>]) -> Result<(), ReportError> {
-    let err = |source| ReportError::Csv {
+    let err = |error| ReportError::Csv {
         path: path.to_path_buf(),
-        source,
+        error,
     };
     let mut w = csv_writer(path)?;
     w.write_record(["draw", "series", "period", "value"])
@@ -89,16 +89,16 @@ pub fn write_draws(path: &Path, setup: &Setup, paths: &[Vec<f64>]) -> Result<(),
             }
         }
     }
-    w.flush().map_err(|source| ReportError::Io {
+    w.flush().map_err(|error| ReportError::Io {
         path: path.to_path_buf(),
-        source,
+        error,
     })
 }
 
 /// `about.txt`: the run summary and the caution.
 pub fn write_about(path: &Path, summary: &str) -> Result<(), ReportError> {
-    std::fs::write(path, format!("{summary}\n\n{CAUTION}\n")).map_err(|source| ReportError::Io {
+    std::fs::write(path, format!("{summary}\n\n{CAUTION}\n")).map_err(|error| ReportError::Io {
         path: path.to_path_buf(),
-        source,
+        error,
     })
 }

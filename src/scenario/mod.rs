@@ -16,10 +16,10 @@ use crate::model::ModelError;
 /// Everything that can be wrong with a scenario; messages name the file, field, series or pin.
 #[derive(Debug, thiserror::Error)]
 pub enum ScenarioError {
-    #[error("cannot read scenario {}: {source}", path.display())]
+    #[error("cannot read scenario {}: {error}", path.display())]
     Io {
         path: PathBuf,
-        source: std::io::Error,
+        error: std::io::Error,
     },
     #[error("{}:{line}:{column}: {message}", path.display())]
     Syntax {
@@ -59,8 +59,8 @@ pub enum ScenarioError {
     },
     #[error(transparent)]
     Dataset(#[from] DatasetError),
-    #[error("model: {source}")]
-    Model { source: ModelError },
+    #[error("model: {0}")]
+    Model(ModelError),
 }
 
 fn ron_options() -> ron::Options {
@@ -96,9 +96,9 @@ fn plain_names(message: &str) -> String {
 
 /// Read and parse a scenario file.
 pub fn read(path: &Path) -> Result<ScenarioFile, ScenarioError> {
-    let text = std::fs::read_to_string(path).map_err(|source| ScenarioError::Io {
+    let text = std::fs::read_to_string(path).map_err(|error| ScenarioError::Io {
         path: path.to_path_buf(),
-        source,
+        error,
     })?;
     parse(&text, path)
 }

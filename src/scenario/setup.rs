@@ -65,6 +65,14 @@ impl Setup {
                 why: "list at least one series of the dataset".into(),
             });
         }
+        for (k, s) in file.series.iter().enumerate() {
+            if s.display == Units::Average(0) {
+                return Err(ScenarioError::Invalid {
+                    field: format!("series[{k}].display"),
+                    why: "average needs at least 1 period".into(),
+                });
+            }
+        }
         let all = dataset.transformed(&transforms_all)?;
         let columns = picked.iter().map(|&i| all[i].clone()).collect();
         let names: Vec<String> = file.series.iter().map(|s| s.name.clone()).collect();
@@ -126,21 +134,21 @@ impl Setup {
                 });
             }
         }
-        let model_err = |e| ScenarioError::Model { source: e };
+        let model_err = ScenarioError::Model;
         match &self.file.model {
             ModelSpec::Fixed(f) => {
-                let params = Params::fixed(f.intercept.clone(), f.lags.clone(), f.sigma.clone())
-                    .map_err(model_err)?;
-                if params.n() != self.n() {
+                if f.intercept.len() != self.n() {
                     return Err(ScenarioError::Invalid {
                         field: "model.fixed.intercept".into(),
                         why: format!(
                             "has {} entries but the scenario lists {} series",
-                            params.n(),
+                            f.intercept.len(),
                             self.n()
                         ),
                     });
                 }
+                let params = Params::fixed(f.intercept.clone(), f.lags.clone(), f.sigma.clone())
+                    .map_err(model_err)?;
                 Ok((ParamSource::Fixed(params), None))
             }
             ModelSpec::Minnesota(m) => {
@@ -353,7 +361,8 @@ impl Setup {
     }
 }
 
-fn check_counts(file: &ScenarioFile) -> Result<(), ScenarioError> {
+/// Range checks of horizon, draws and paths per draw (also after command-line overrides).
+pub fn check_counts(file: &ScenarioFile) -> Result<(), ScenarioError> {
     let bad = |field: &str, why: String| {
         Err(ScenarioError::Invalid {
             field: field.into(),
@@ -366,7 +375,12 @@ fn check_counts(file: &ScenarioFile) -> Result<(), ScenarioError> {
     if file.draws == 0 || file.draws > MAX_DRAWS {
         return bad("draws", format!("must be between 1 and {MAX_DRAWS}"));
     }
-    if file.paths_per_draw == 0 || file.paths_per_draw.saturating_mul(file.draws) > MAX_DRAWS {
+    if file.paths_per_draw == 0
+        || file
+            .paths_per_draw
+            .checked_mul(file.draws)
+            .is_none_or(|total| total > MAX_DRAWS)
+    {
         return bad(
             "paths_per_draw",
             format!("must be at least 1, with draws × paths_per_draw at most {MAX_DRAWS}"),

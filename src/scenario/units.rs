@@ -110,6 +110,13 @@ pub fn pin_row(
     t: usize,
     history: &[f64],
 ) -> Result<(Vec<(usize, f64)>, f64), UnitsError> {
+    if let Units::Average(k) = units
+        && k > t + history.len()
+    {
+        return Err(UnitsError::BeforeSample {
+            periods: (k - t - history.len()) as i64,
+        });
+    }
     let (terms, mut rhs) = statement(units, transform, value, f)?;
     let mut row = Vec::new();
     for (lag, a) in terms {
