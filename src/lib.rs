@@ -9,3 +9,4 @@ pub mod model;
 pub mod report;
 pub mod run;
 pub mod scenario;
+pub mod truncnorm;
