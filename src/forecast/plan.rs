@@ -28,6 +28,8 @@ pub struct Plan {
     /// Scaled rows `R` (m×N) and values `r`.
     rows: DMatrix<f64>,
     values: DVector<f64>,
+    /// `r̃ = r − R μ`.
+    rtilde: DVector<f64>,
     route: Route,
 }
 
@@ -84,6 +86,7 @@ impl Plan {
         Ok(Plan {
             rows,
             values,
+            rtilde,
             route,
         })
     }
@@ -107,9 +110,7 @@ impl Plan {
                     .map(|_| StandardNormal.sample(rng))
                     .collect();
                 let ystar = theta.path_from_shocks(&estar);
-                let mean = DVector::from_column_slice(&theta.mean);
-                let rtilde = &self.values - &self.rows * &mean;
-                let gap = rtilde - f * DVector::from_column_slice(&estar);
+                let gap = &self.rtilde - f * DVector::from_column_slice(&estar);
                 let step = gain * gap;
                 let mut eps = estar;
                 for (k, &c) in cells.iter().enumerate() {
@@ -137,7 +138,7 @@ impl Plan {
     pub fn exact_moments(&self, theta: &Theta) -> (DVector<f64>, DMatrix<f64>) {
         let big_n = theta.len();
         let mean = DVector::from_column_slice(&theta.mean);
-        let rtilde = &self.values - &self.rows * &mean;
+        let rtilde = &self.rtilde;
         match &self.route {
             Route::Kriging { w } => {
                 let mut kinv = DMatrix::zeros(big_n, big_n);

@@ -204,8 +204,6 @@ pub fn recursive_impact(
 
 /// `μ_t = b0 + Σ_j B_j μ_{t−j}`, with observed rows for `t ≤ 0`.
 fn mean_path(params: &Params, tail: &[Vec<f64>], h: usize) -> Vec<f64> {
-    let n = params.n();
-    let p = params.p();
     let mut rows: Vec<DVector<f64>> = tail.iter().map(|r| DVector::from_column_slice(r)).collect();
     for _ in 0..h {
         let mut m = params.intercept.clone();
@@ -214,11 +212,10 @@ fn mean_path(params: &Params, tail: &[Vec<f64>], h: usize) -> Vec<f64> {
         }
         rows.push(m);
     }
-    rows[p..]
+    rows[tail.len()..]
         .iter()
         .flat_map(|r| r.iter().copied())
-        .collect::<Vec<_>>()[..n * h]
-        .to_vec()
+        .collect()
 }
 
 /// Assemble `K = H'(I_h ⊗ Σ⁻¹)H` in band storage: block `(t, s)` (`t ≥ s`) collects

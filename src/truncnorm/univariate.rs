@@ -73,28 +73,29 @@ const ERF_Q: [f64; 5] = [
     2.33520497626869185e-3,
 ];
 
+/// Cody's rational form `P(x)/Q(x)` in his Horner order: with `a` of length `m + 2` and
+/// `b` of length `m + 1` (Q monic), `P = (…((a[m+1] x + a[0]) x + a[1]) x … + a[m])`,
+/// `Q = (…((x + b[0]) x + b[1]) x … + b[m])`.
+fn cody_rational(a: &[f64], b: &[f64], x: f64) -> f64 {
+    let m = a.len() - 2;
+    let mut num = a[m + 1] * x;
+    let mut den = x;
+    for i in 0..m {
+        num = (num + a[i]) * x;
+        den = (den + b[i]) * x;
+    }
+    (num + a[m]) / (den + b[m])
+}
+
 /// erf(y) for |y| ≤ 0.46875 (Cody's first interval).
 fn erf_small(y: f64) -> f64 {
-    let z = y * y;
-    let mut num = ERF_A[4] * z;
-    let mut den = z;
-    for i in 0..3 {
-        num = (num + ERF_A[i]) * z;
-        den = (den + ERF_B[i]) * z;
-    }
-    y * (num + ERF_A[3]) / (den + ERF_B[3])
+    y * cody_rational(&ERF_A, &ERF_B, y * y)
 }
 
 /// For y > 4: `z·P(z)/Q(z)`, z = 1/y², so that erfcx(y) = (1/√π − it)/y.
 fn erfcx_tail_correction(y: f64) -> f64 {
     let z = 1.0 / (y * y);
-    let mut num = ERF_P[5] * z;
-    let mut den = z;
-    for i in 0..4 {
-        num = (num + ERF_P[i]) * z;
-        den = (den + ERF_Q[i]) * z;
-    }
-    z * (num + ERF_P[4]) / (den + ERF_Q[4])
+    z * cody_rational(&ERF_P, &ERF_Q, z)
 }
 
 /// Scaled complementary error function erfcx(y) = e^{y²} erfc(y), y ≥ 0
@@ -103,13 +104,7 @@ fn erfcx(y: f64) -> f64 {
     if y <= 0.46875 {
         (y * y).exp() * (1.0 - erf_small(y))
     } else if y <= 4.0 {
-        let mut num = ERF_C[8] * y;
-        let mut den = y;
-        for i in 0..7 {
-            num = (num + ERF_C[i]) * y;
-            den = (den + ERF_D[i]) * y;
-        }
-        (num + ERF_C[7]) / (den + ERF_D[7])
+        cody_rational(&ERF_C, &ERF_D, y)
     } else {
         (FRAC_1_SQRT_PI - erfcx_tail_correction(y)) / y
     }
