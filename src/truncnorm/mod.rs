@@ -1,6 +1,9 @@
-//! Truncated standard normal: tail probabilities in log space, moments and
-//! exact sampling — the univariate base for a later minimax-tilting sampler of
-//! the truncated multivariate normal (Botev 2017).
+//! Truncated normals. [`univariate`]: the standard normal on an interval — tail
+//! probabilities in log space, moments and exact sampling. On top of it, the
+//! multivariate normal on a box by minimax exponential tilting (Botev 2017):
+//! [`reorder`] (variable order and scaled Cholesky factor), [`tilting`] (the
+//! saddle point) and [`multivariate`] (exact accept–reject draws and the unbiased
+//! probability estimate with its relative error).
 //!
 //! # Formulas
 //!
@@ -37,8 +40,43 @@
 //! * M. J. Wichura (1988), "Algorithm AS 241: the percentage points of the
 //!   normal distribution", Appl. Statist. 37, 477–484 (`PPND16`).
 
+//! * Gibson, G. J., Glasbey, C. A. and Elston, D. A. (1994), "Monte Carlo
+//!   evaluation of multivariate normal integrals and sensitivity to variate
+//!   ordering" (the variable order).
+//! * Genz, A. (1992), "Numerical computation of multivariate normal
+//!   probabilities", J. Comput. Graph. Statist. 1, 141–149 (the estimator at μ = 0).
+
+pub mod multivariate;
+pub mod reorder;
 #[cfg(test)]
 mod tests;
+pub mod tilting;
 pub mod univariate;
 
+pub use multivariate::{Probability, TruncatedNormal};
+pub use tilting::SolveStatus;
 pub use univariate::{ln_phi_upper, ln_prob, mean_var, normal_quantile, sample};
+
+/// What can go wrong with a truncated multivariate normal. Indices are 0-based positions of
+/// the variables as given.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum TruncError {
+    #[error("sizes disagree: covariance {sigma:?}, {lower} lower and {upper} upper bounds")]
+    Shape {
+        sigma: (usize, usize),
+        lower: usize,
+        upper: usize,
+    },
+    #[error("variable {index}: the interval [{lower}, {upper}] is empty")]
+    EmptyInterval {
+        index: usize,
+        lower: f64,
+        upper: f64,
+    },
+    #[error("the covariance is not positive definite (at variable {index})")]
+    NotPositiveDefinite { index: usize },
+    #[error("the covariance is singular: variable {index} is a combination of the others")]
+    Singular { index: usize },
+    #[error("no draw accepted in {proposals} proposals: the box is too improbable to sample")]
+    TooImprobable { proposals: usize },
+}
