@@ -4,7 +4,7 @@
 use std::sync::atomic::AtomicBool;
 use std::time::{Duration, Instant};
 
-use crate::forecast::{ForecastError, ParamSource, PathSet, build_thetas, sample_paths};
+use crate::forecast::{ForecastError, ParamSource, PathSet, Sampling, build_thetas, sample_paths};
 use crate::model::FitSummary;
 use crate::report::{FanRow, Kind, fans};
 use crate::scenario::{ModelSpec, ScenarioError, Setup};
@@ -73,14 +73,12 @@ pub fn run(setup: &mut Setup, options: &RunOptions) -> Result<RunOutcome, RunErr
         file.seed,
         &cancel,
     )?;
-    let paths = sample_paths(
-        &set,
-        0..set.thetas.len(),
-        &conditions,
+    let how = Sampling {
         paths_per_theta,
-        file.seed,
-        &cancel,
-    )?;
+        seed: file.seed,
+        reweight: file.reweight,
+    };
+    let paths = sample_paths(&set, 0..set.thetas.len(), &conditions, how, &cancel)?;
     let mut rows = fans(setup, &paths.conditional, Kind::Conditional);
     rows.extend(fans(setup, &paths.unconditional, Kind::Unconditional));
     Ok(RunOutcome {

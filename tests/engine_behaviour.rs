@@ -60,10 +60,13 @@ fn unreachable_pin_is_named() {
     let path = write_scenario(&dir, &minnesota_scenario(extra));
     let mut setup = scenario::load(&path).unwrap();
     let err = run(&mut setup, &RunOptions::default()).unwrap_err();
-    let RunError::Forecast(ForecastError::Unreachable { pins, .. }) = &err else {
+    let RunError::Forecast(ForecastError::Unreachable { conditions, .. }) = &err else {
         panic!("expected an unreachable pin, got {err}")
     };
-    assert_eq!(pins, &vec!["realgdp level at 2009Q4 = 13000".to_string()]);
+    assert_eq!(
+        conditions,
+        &vec!["realgdp level at 2009Q4 = 13000".to_string()]
+    );
     let msg = err.to_string();
     assert!(
         msg.contains("realgdp level at 2009Q4") && msg.contains("tbilrate"),
@@ -110,7 +113,8 @@ fn contradictory_pins_are_named() {
     };
     assert_eq!(pins.len(), 3, "{err}");
     assert!(!err.to_string().contains("tbilrate"), "{err}");
-    // Consistent growth (13100/13000 − 1 = 0.769…%) is redundant, not contradictory.
+    // Consistent growth (13100/13000 − 1 = 0.769…%) is redundant, not contradictory: it is
+    // dropped with a note naming it, and still met by every path.
     let g = 100.0 * (13100.0f64 / 13000.0 - 1.0);
     let text = macro_scenario(
         &model,
@@ -119,8 +123,18 @@ fn contradictory_pins_are_named() {
     );
     let path = write_scenario(&dir, &text);
     let setup = scenario::load(&path).unwrap();
-    let err = Plan::new(&theta, &setup.conditions().unwrap(), None).unwrap_err();
-    assert!(matches!(err, ForecastError::Redundant { .. }), "{err}");
+    let plan = Plan::new(&theta, &setup.conditions().unwrap(), None).unwrap();
+    assert_eq!(plan.pin_count(), 3);
+    assert!(
+        plan.notes()
+            .iter()
+            .any(|n| n.contains("pct_change") && n.contains("implied")),
+        "{:?}",
+        plan.notes()
+    );
+    let mut rng = <rand_chacha::ChaCha8Rng as rand::SeedableRng>::seed_from_u64(1);
+    let (y, _) = plan.sample(&theta, &mut rng).unwrap();
+    assert!(plan.pin_error(&y) < 1e-9);
 }
 
 /// A cancelled run stops with `Cancelled`.

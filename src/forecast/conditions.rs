@@ -1,39 +1,63 @@
-//! Conditions as the engine sees them: pins as linear rows on the future path or on
-//! structural shocks, and the drivers.
+//! Conditions as the engine sees them: pins (`ρ'y = r`) and corridors (`a ≤ ρ'y ≤ b`, one row
+//! per period) on the future path or on structural shocks, and the drivers.
 //!
-//! A pin on observables is a row `ρ'y = r` over future cells (history already moved into
-//! `r` by the scenario layer). A pin on shock `j` at horizon `t` fixes `ε_{j,t} = v`; for a
-//! given θ it is the path row `ρ' = e'(I ⊗ L⁻¹)H` with value `v + ρ'μ` (ALGORITHMS §5.1).
+//! A condition on observables is a row over future cells (history already moved to the value
+//! or bounds by the scenario layer). A condition on shock `j` at horizon `t` is about
+//! `ε_{j,t}`; for a given θ it is the path row `ρ' = e'(I ⊗ L⁻¹)H` with value (or bounds)
+//! shifted by `ρ'μ` (ALGORITHMS §5.1).
 
-/// What a pin fixes.
+/// What a condition is about.
 #[derive(Debug, Clone, PartialEq)]
-pub enum PinTarget {
-    /// `Σ coef · y[cell] = value` over future cells (index `(t−1) n + i`).
-    Path {
-        terms: Vec<(usize, f64)>,
-        value: f64,
-    },
-    /// `ε_{shock, horizon} = value` (horizon 1-based, shock indexed like its series).
-    Shock {
-        horizon: usize,
-        shock: usize,
-        value: f64,
-    },
+pub enum Target {
+    /// `Σ coef · y[cell]` over future cells (index `(t−1) n + i`).
+    Path { terms: Vec<(usize, f64)> },
+    /// `ε_{shock, horizon}` (horizon 1-based, shock indexed like its series).
+    Shock { horizon: usize, shock: usize },
 }
 
-/// One pin with the label used in every message about it.
+/// A pin: `target = value`, with the label used in every message about it.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Pin {
     pub label: String,
-    pub target: PinTarget,
+    /// Where it comes from in the scenario file (`pins[2]`).
+    pub field: String,
+    pub target: Target,
+    pub value: f64,
 }
 
-/// The pins and drivers of a scenario, ready for the engine.
+/// One period of a corridor: `lower ≤ target ≤ upper` (either side may be infinite).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Bounded {
+    /// The period, as written (for messages).
+    pub period: String,
+    pub target: Target,
+    pub lower: f64,
+    pub upper: f64,
+}
+
+/// A corridor: bounds on one quantity over a range of periods.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Corridor {
+    pub label: String,
+    /// Where it comes from in the scenario file (`corridors[0]`).
+    pub field: String,
+    pub rows: Vec<Bounded>,
+}
+
+impl Corridor {
+    /// The label of one period's row.
+    pub fn row_label(&self, k: usize) -> String {
+        format!("{} at {}", self.label, self.rows[k].period)
+    }
+}
+
+/// The pins, corridors and drivers of a scenario, ready for the engine.
 #[derive(Debug, Clone, PartialEq, Default)]
 pub struct Conditions {
     pub pins: Vec<Pin>,
+    pub corridors: Vec<Corridor>,
     /// Shocks allowed to move (all horizons), by index; `None` means every shock.
-    /// A shock that is itself pinned always moves at the pinned horizon.
+    /// A shock that is itself pinned or bounded always moves at that horizon.
     pub drivers: Option<Vec<usize>>,
     /// Shock names for messages, indexed like the shocks.
     pub shock_names: Vec<String>,
@@ -49,8 +73,13 @@ impl Conditions {
                 mask[t * n + j] = true;
             }
         }
-        for pin in &self.pins {
-            if let PinTarget::Shock { horizon, shock, .. } = pin.target {
+        let targets = self.pins.iter().map(|p| &p.target).chain(
+            self.corridors
+                .iter()
+                .flat_map(|c| c.rows.iter().map(|r| &r.target)),
+        );
+        for target in targets {
+            if let Target::Shock { horizon, shock } = *target {
                 mask[(horizon - 1) * n + shock] = true;
             }
         }
@@ -73,5 +102,52 @@ impl Conditions {
                 .collect::<Vec<_>>()
                 .join(", "),
         }
+    }
+
+    /// The conditions named by `keep` (indices into [`Conditions::labels`]): a sub-scenario
+    /// for blame searches. Drivers are kept.
+    pub fn subset(&self, keep: &[usize]) -> Conditions {
+        let m = self.pins.len();
+        Conditions {
+            pins: keep
+                .iter()
+                .filter(|&&i| i < m)
+                .map(|&i| self.pins[i].clone())
+                .collect(),
+            corridors: keep
+                .iter()
+                .filter(|&&i| i >= m)
+                .map(|&i| self.corridors[i - m].clone())
+                .collect(),
+            drivers: self.drivers.clone(),
+            shock_names: self.shock_names.clone(),
+        }
+    }
+
+    /// Labels of every condition: pins first, then corridors.
+    pub fn labels(&self) -> Vec<String> {
+        self.pins
+            .iter()
+            .map(|p| p.label.clone())
+            .chain(self.corridors.iter().map(|c| c.label.clone()))
+            .collect()
+    }
+
+    /// Scenario-file fields of every condition, in the order of [`Conditions::labels`].
+    pub fn fields(&self) -> Vec<String> {
+        self.pins
+            .iter()
+            .map(|p| p.field.clone())
+            .chain(self.corridors.iter().map(|c| c.field.clone()))
+            .collect()
+    }
+
+    /// Number of conditions (pins and corridors).
+    pub fn len(&self) -> usize {
+        self.pins.len() + self.corridors.len()
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
     }
 }

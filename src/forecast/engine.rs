@@ -87,18 +87,35 @@ pub struct PathSet {
     pub unconditional: Vec<Vec<f64>>,
     /// Largest relative pin error over all conditional paths.
     pub max_pin_error: f64,
+    /// Largest relative corridor violation over all conditional paths (0: all held).
+    pub max_corridor_violation: f64,
+    /// With reweighting: `ln ω_i` per θ (unnormalised), else empty.
+    pub log_weights: Vec<f64>,
+    /// Notes from the conditions (redundant pins, merged corridors), without repeats.
+    pub notes: Vec<String>,
 }
+
+/// How many paths, and whether to reweight θ by the scenario (ALGORITHMS §8.4).
+#[derive(Debug, Clone, Copy)]
+pub struct Sampling {
+    pub paths_per_theta: usize,
+    pub seed: u64,
+    pub reweight: bool,
+}
+
+/// Proposals behind each θ's corridor-probability estimate when reweighting.
+pub const WEIGHT_PROPOSALS: usize = 500;
 
 /// Draw `paths_per_theta` conditional paths for every θ in `range` of the set.
 pub fn sample_paths(
     set: &ThetaSet,
     range: std::ops::Range<usize>,
     cond: &Conditions,
-    paths_per_theta: usize,
-    seed: u64,
+    how: Sampling,
     cancel: &AtomicBool,
 ) -> Result<PathSet, ForecastError> {
     let fixed = set.thetas.len() == 1;
+    let per = how.paths_per_theta;
     let blocks = range
         .into_par_iter()
         .map(|i| {
@@ -107,11 +124,20 @@ pub fn sample_paths(
             }
             let theta = &set.thetas[i];
             let plan = Plan::new(theta, cond, (!fixed).then_some(i))?;
-            let mut out = PathSet::default();
-            for j in 0..paths_per_theta {
-                let index = (i * paths_per_theta + j) as u64;
-                let (y, ystar) = plan.sample(theta, &mut stream(seed, Purpose::Paths, index));
+            let mut out = PathSet {
+                notes: plan.notes().to_vec(),
+                ..PathSet::default()
+            };
+            if how.reweight {
+                out.log_weights.push(log_weight(&plan, how.seed, i)?);
+            }
+            for j in 0..per {
+                let index = (i * per + j) as u64;
+                let (y, ystar) =
+                    plan.sample(theta, &mut stream(how.seed, Purpose::Paths, index))?;
                 out.max_pin_error = out.max_pin_error.max(plan.pin_error(&y));
+                out.max_corridor_violation =
+                    out.max_corridor_violation.max(plan.corridor_violation(&y));
                 out.conditional.push(y);
                 out.unconditional.push(ystar);
             }
@@ -123,8 +149,43 @@ pub fn sample_paths(
     let mut all = PathSet::default();
     for b in blocks {
         all.max_pin_error = all.max_pin_error.max(b.max_pin_error);
+        all.max_corridor_violation = all.max_corridor_violation.max(b.max_corridor_violation);
         all.conditional.extend(b.conditional);
         all.unconditional.extend(b.unconditional);
+        all.log_weights.extend(b.log_weights);
+        for note in b.notes {
+            if !all.notes.contains(&note) {
+                all.notes.push(note);
+            }
+        }
     }
     Ok(all)
+}
+
+/// `ln ω_i = ln p(r | θ_i) + ln ℓ̂_i`: the density of the pins and the estimated probability
+/// of the corridors given them, every shock free (ALGORITHMS §8.4). The unbiased `ℓ̂` keeps
+/// weighted averages consistent (pseudo-marginal importance sampling).
+fn log_weight(plan: &Plan, seed: u64, i: usize) -> Result<f64, ForecastError> {
+    let mut lw = plan.pin_log_density();
+    if let Some(law) = plan.model_law()? {
+        let mut rng = stream(seed, Purpose::Weights, i as u64);
+        lw += law.probability(&[], &mut rng, WEIGHT_PROPOSALS)?.ln;
+    }
+    Ok(lw)
+}
+
+/// Normalised weights from log weights, and the effective sample size
+/// `(Σ ω)² / Σ ω²` (Kish).
+pub fn normalise(log_weights: &[f64]) -> (Vec<f64>, f64) {
+    let top = log_weights
+        .iter()
+        .copied()
+        .fold(f64::NEG_INFINITY, f64::max);
+    if !top.is_finite() {
+        return (vec![0.0; log_weights.len()], 0.0);
+    }
+    let w: Vec<f64> = log_weights.iter().map(|l| (l - top).exp()).collect();
+    let sum: f64 = w.iter().sum();
+    let sq: f64 = w.iter().map(|x| x * x).sum();
+    (w.iter().map(|x| x / sum).collect(), sum * sum / sq)
 }

@@ -1,36 +1,43 @@
-//! The forecast engine: the stacked VAR system per parameter draw, pins on observables and
-//! on structural shocks, drivers, and the parallel sampling loop.
+//! The forecast engine: the stacked VAR system per parameter draw, pins and corridors on
+//! observables and on structural shocks, drivers, and the parallel sampling loop.
 //!
 //! - [`theta`]: the θ-level cache (mean path, shock map, banded precision and its factor);
-//! - [`conditions`]: pins and drivers in engine form;
+//! - [`conditions`]: pins, corridors and drivers in engine form;
+//! - [`rows`]: conditions as scaled rows for one θ, with dependencies resolved;
+//! - [`polytope`]: whether dependent corridors leave room to hold together;
+//! - [`corridor`]: the truncated law of the corridor quantities;
 //! - [`plan`]: conditioning one θ (kriging, or the drivers construction) and drawing paths;
-//! - [`reach`]: the rank condition and the diagnosis of pins that cannot be met;
+//! - [`reach`]: the rank condition for drivers;
 //! - [`engine`]: posterior draws and paths over all θ, in parallel and reproducibly;
 //! - [`random`]: per-draw random streams.
 
 pub mod conditions;
+pub mod corridor;
 pub mod engine;
 pub mod plan;
+pub mod polytope;
 pub mod random;
 pub mod reach;
+pub mod rows;
 pub mod theta;
 
-pub use conditions::{Conditions, Pin, PinTarget};
-pub use engine::{ParamSource, PathSet, ThetaSet, build_thetas, sample_paths};
+pub use conditions::{Bounded, Conditions, Corridor, Pin, Target};
+pub use engine::{ParamSource, PathSet, Sampling, ThetaSet, build_thetas, normalise, sample_paths};
 pub use plan::Plan;
 pub use theta::Theta;
 
-/// Everything that can go wrong while forecasting.
+/// Everything that can go wrong while forecasting. Every variant that is about conditions
+/// names them by their labels.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
 pub enum ForecastError {
     #[error("{0} is singular or not positive definite")]
     Singular(String),
     #[error(
-        "{} cannot be reached by the drivers ({drivers}){}: the moving shocks have no effect on {}. Add drivers, move the pin later, or loosen it",
-        list(pins), at_draw(*draw), if pins.len() == 1 { "it" } else { "this combination" }
+        "{} cannot be reached by the drivers ({drivers}){}: the moving shocks have no effect on {}. Add drivers, move the condition later, or loosen it",
+        list(conditions), at_draw(*draw), if conditions.len() == 1 { "it" } else { "this combination" }
     )]
     Unreachable {
-        pins: Vec<String>,
+        conditions: Vec<String>,
         drivers: String,
         draw: Option<usize>,
     },
@@ -39,8 +46,31 @@ pub enum ForecastError {
         pins: Vec<String>,
         draw: Option<usize>,
     },
-    #[error("pins are redundant: {} say the same thing; remove one", list(pins))]
-    Redundant { pins: Vec<String> },
+    #[error(
+        "corridor '{corridor}' cannot hold: {} fix that quantity outside its bounds",
+        list(pins)
+    )]
+    CorridorFixedByPins { corridor: String, pins: Vec<String> },
+    #[error(
+        "corridors cannot hold together: {} leave no room between their bounds",
+        list(rows)
+    )]
+    CorridorsContradict { rows: Vec<String> },
+    #[error("corridor '{corridor}' is empty: its lower bound is not below its upper bound")]
+    EmptyCorridor { corridor: String },
+    #[error(
+        "'{condition}' is (nearly) a combination of other conditions; remove it or the ones it repeats"
+    )]
+    NearlyDependent { condition: String },
+    #[error(
+        "the corridors are too improbable to sample{}: no draw met {} in {proposals} proposals. Widen them or check the scenario",
+        at_draw(*draw), list(corridors)
+    )]
+    TooImprobable {
+        corridors: Vec<String>,
+        proposals: usize,
+        draw: Option<usize>,
+    },
     #[error("cancelled")]
     Cancelled,
 }
@@ -57,17 +87,12 @@ impl ForecastError {
     }
 }
 
-fn list(pins: &[String]) -> String {
-    match pins {
-        [one] => format!("pin '{one}'"),
-        many => format!(
-            "pins {}",
-            many.iter()
-                .map(|p| format!("'{p}'"))
-                .collect::<Vec<_>>()
-                .join(", ")
-        ),
-    }
+fn list(names: &[String]) -> String {
+    names
+        .iter()
+        .map(|p| format!("'{p}'"))
+        .collect::<Vec<_>>()
+        .join(", ")
 }
 
 fn at_draw(draw: Option<usize>) -> String {

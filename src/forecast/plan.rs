@@ -1,14 +1,19 @@
-//! Conditioning one θ on the pins, and drawing conditional paths.
+//! Conditioning one θ on the pins and corridors, and drawing conditional paths.
 //!
-//! Rows `R` (m×N, each scaled to unit norm, values `r` alike), `r̃ = r − Rμ`, `F = R M`.
+//! Stacked rows `𝒢 = [R; S]` (pins, then independent corridor rows; [`super::rows`]), pin values
+//! `r`, `r̃ = r − Rμ`, `Γ = 𝒢 K⁻¹ 𝒢'`, `F = 𝒢 M`.
 //!
-//! - **All shocks move: kriging** (Rue and Held 2005). `V = K⁻¹R'` by band solves,
-//!   `G = R V`, `W = V G⁻¹`; a draw `y* ~ N(μ, K⁻¹)` from the precision sampler becomes
-//!   `y = y* + W (r − R y*)`. Mean `μ + W r̃`, covariance `K⁻¹ − W R K⁻¹`; `R W = I`, so every
-//!   draw meets every pin.
+//! - **All shocks move: kriging** (Rue and Held 2005). `V = K⁻¹𝒢'` by band solves,
+//!   `W = V Γ⁻¹`. The corridor quantities `z = S y` given the pins are
+//!   `N(Sμ + Γ_SR Γ_RR⁻¹ r̃, Γ_SS − Γ_SR Γ_RR⁻¹ Γ_RS)`, drawn truncated to the corridors
+//!   ([`super::corridor`]); a draw `y* ~ N(μ, K⁻¹)` from the precision sampler becomes
+//!   `y = y* + W ((r; z) − 𝒢 y*)`, which meets `R y = r` and `S y = z` exactly (ALGORITHMS §6.2).
 //! - **Drivers** `J` (Antolín-Díaz, Petrella and Rubio-Ramírez 2021). Shocks outside `J` keep
-//!   `N(0, 1)`; given them, `ε_J ~ N(0, I)` conditioned on `F_J ε_J = r̃ − F_J̄ ε_J̄`. With a
-//!   standard normal `ε*` this is `ε = ε* + E_J F_J⁺ (r̃ − F ε*)`, then `y = μ + M ε`.
+//!   `N(0, 1)`; given them, `ε_J ~ N(0, I)` conditioned on the pins and corridors. With a
+//!   standard normal `ε*`, the corridor quantities given `ε*_J̄` are Gaussian with mean
+//!   `Sμ + F_SJ F_RJ⁺ r̃ + (F_SJ̄ − F_SJ F_RJ⁺ F_RJ̄) ε*_J̄` and covariance
+//!   `F_SJ (I − F_RJ⁺F_RJ) F_SJ'`; with `z` drawn from it truncated to the corridors,
+//!   `ε = ε* + E_J F_J⁺ ((r̃; z − Sμ) − F ε*)` and `y = μ + M ε` (ALGORITHMS §5.3–5.4).
 //!   With `J` = all shocks it reduces to kriging (`M⁻¹W = F⁺`).
 
 use nalgebra::{DMatrix, DVector};
@@ -16,33 +21,63 @@ use rand::Rng;
 use rand_distr::{Distribution, StandardNormal};
 
 use super::{
-    ForecastError,
-    conditions::{Conditions, PinTarget},
-    reach,
-    theta::Theta,
+    ForecastError, conditions::Conditions, corridor::CorridorLaw, reach, rows::Rows, theta::Theta,
 };
+use crate::truncnorm::Probability;
 
 /// Condition-dependent objects for one θ.
 #[derive(Debug, Clone)]
 pub struct Plan {
-    /// Scaled rows `R` (m×N) and values `r`.
-    rows: DMatrix<f64>,
-    values: DVector<f64>,
-    /// `r̃ = r − R μ`.
+    rows: Rows,
+    /// `r̃ = r − R μ` (kept pins).
     rtilde: DVector<f64>,
+    /// `S μ` (kept corridor rows).
+    smean: DVector<f64>,
+    /// `Γ = 𝒢 K⁻¹ 𝒢'`.
+    gamma: DMatrix<f64>,
     route: Route,
+    /// The corridor quantities' law under this route (none without corridors).
+    law: Option<CorridorLaw>,
+    draw: Option<usize>,
 }
 
 #[derive(Debug, Clone)]
 enum Route {
-    /// `W = K⁻¹R'G⁻¹` (N×m).
+    /// `W = K⁻¹𝒢'Γ⁻¹` (N × (m+q)).
     Kriging { w: DMatrix<f64> },
-    /// `F` (m×N), driver cells `J` and `F_J⁺` (|J|×m).
+    /// `F` ((m+q)×N), driver cells `J`, the other cells, and `F_J⁺` (|J|×(m+q)).
     Drivers {
         f: DMatrix<f64>,
         cells: Vec<usize>,
+        rest: Vec<usize>,
         gain: DMatrix<f64>,
     },
+}
+
+fn columns(f: &DMatrix<f64>, cols: &[usize]) -> DMatrix<f64> {
+    DMatrix::from_fn(f.nrows(), cols.len(), |i, k| f[(i, cols[k])])
+}
+
+fn pinv(a: &DMatrix<f64>) -> Result<DMatrix<f64>, ForecastError> {
+    if a.nrows() == 0 {
+        return Ok(DMatrix::zeros(a.ncols(), 0));
+    }
+    a.clone()
+        .pseudo_inverse(0.0)
+        .map_err(|e| ForecastError::Singular(format!("F_J ({e})")))
+}
+
+/// `F = 𝒢 M`, row by row as `(M' ρ)'`.
+fn shock_rows(theta: &Theta, g: &DMatrix<f64>) -> DMatrix<f64> {
+    let mut f = DMatrix::zeros(g.nrows(), g.ncols());
+    for i in 0..g.nrows() {
+        let row: Vec<f64> = g.row(i).iter().copied().collect();
+        f.set_row(
+            i,
+            &DVector::from_vec(theta.shock_map_transpose(&row)).transpose(),
+        );
+    }
+    f
 }
 
 impl Plan {
@@ -52,171 +87,331 @@ impl Plan {
         cond: &Conditions,
         draw: Option<usize>,
     ) -> Result<Plan, ForecastError> {
-        let (rows, values) = pin_rows(theta, cond);
-        let big_n = theta.len();
-        let m = rows.nrows();
-        let mut f = DMatrix::zeros(m, big_n);
-        for i in 0..m {
-            let row: Vec<f64> = rows.row(i).iter().copied().collect();
-            f.set_row(
-                i,
-                &DVector::from_vec(theta.shock_map_transpose(&row)).transpose(),
-            );
-        }
+        let rows = Rows::new(theta, cond, draw)?;
+        let g = rows.stacked();
+        let (m, q) = (rows.pins.nrows(), rows.corridors.nrows());
         let mean = DVector::from_column_slice(&theta.mean);
-        let rtilde = &values - &rows * &mean;
-        let mask = cond.driver_cells(theta.n(), theta.h);
-        let labels: Vec<String> = cond.pins.iter().map(|p| p.label.clone()).collect();
-        reach::check(&f, mask.as_deref(), &rtilde).map_err(|(kind, involved)| {
-            reach::explain(kind, &involved, &labels, &cond.driver_names(), draw)
-        })?;
-        let route = match mask {
-            None => Route::Kriging {
-                w: kriging_gain(theta, &rows)?,
-            },
+        let rtilde = &rows.values - &rows.pins * &mean;
+        let smean = &rows.corridors * &mean;
+        let bounds = (rows.lower.clone(), rows.upper.clone());
+        let labels = rows.corridor_labels.clone();
+        let (route, gamma, law) = match cond.driver_cells(theta.n(), theta.h) {
+            None => {
+                let (w, gamma) = kriging_gain(theta, &g)?;
+                let law = (q > 0)
+                    .then(|| model_law(&gamma, m, &rtilde, &smean, &rows))
+                    .transpose()?;
+                (Route::Kriging { w }, gamma, law)
+            }
             Some(mask) => {
-                let cells: Vec<usize> = (0..big_n).filter(|&c| mask[c]).collect();
-                let fj = DMatrix::from_fn(m, cells.len(), |i, k| f[(i, cells[k])]);
-                let gain = fj
-                    .pseudo_inverse(0.0)
-                    .map_err(|e| ForecastError::Singular(format!("F_J ({e})")))?;
-                Route::Drivers { f, cells, gain }
+                let f = shock_rows(theta, &g);
+                let all = rows.labels();
+                reach::check(&f, &mask).map_err(|involved| ForecastError::Unreachable {
+                    conditions: involved.iter().map(|&i| all[i].clone()).collect(),
+                    drivers: cond.driver_names(),
+                    draw,
+                })?;
+                let cells: Vec<usize> = (0..theta.len()).filter(|&c| mask[c]).collect();
+                let rest: Vec<usize> = (0..theta.len()).filter(|&c| !mask[c]).collect();
+                let fj = columns(&f, &cells);
+                let gain = pinv(&fj)?;
+                let gamma = &f * f.transpose();
+                let law = if q > 0 {
+                    let (frj, fsj) = (fj.rows(0, m).into_owned(), fj.rows(m, q).into_owned());
+                    let fr_rest = columns(&f, &rest).rows(0, m).into_owned();
+                    let fs_rest = columns(&f, &rest).rows(m, q).into_owned();
+                    let pr = pinv(&frj)?;
+                    let fsj_pr = &fsj * &pr;
+                    let cov = &fsj * fsj.transpose() - &fsj_pr * (&frj * fsj.transpose());
+                    let m0 = &smean + &fsj_pr * &rtilde;
+                    let shift = fs_rest - &fsj_pr * fr_rest;
+                    Some(CorridorLaw::new(
+                        cov,
+                        m0,
+                        Some(shift),
+                        bounds,
+                        rows.extra.clone(),
+                        labels,
+                    )?)
+                } else {
+                    None
+                };
+                let route = Route::Drivers {
+                    f,
+                    cells,
+                    rest,
+                    gain,
+                };
+                (route, gamma, law)
             }
         };
         Ok(Plan {
             rows,
-            values,
             rtilde,
+            smean,
+            gamma,
             route,
+            law,
+            draw,
         })
     }
 
     pub fn pin_count(&self) -> usize {
-        self.rows.nrows()
+        self.rows.pins.nrows()
+    }
+
+    pub fn corridor_count(&self) -> usize {
+        self.rows.corridors.nrows()
+    }
+
+    /// What the row analysis dropped or merged.
+    pub fn notes(&self) -> &[String] {
+        &self.rows.notes
     }
 
     /// One conditional path and the unconditional path it was made from.
-    pub fn sample<R: Rng + ?Sized>(&self, theta: &Theta, rng: &mut R) -> (Vec<f64>, Vec<f64>) {
+    pub fn sample<R: Rng + ?Sized>(
+        &self,
+        theta: &Theta,
+        rng: &mut R,
+    ) -> Result<(Vec<f64>, Vec<f64>), ForecastError> {
+        let m = self.pin_count();
         match &self.route {
             Route::Kriging { w } => {
                 let ystar = theta.sample_unconditional(rng);
                 let y = DVector::from_column_slice(&ystar);
-                let gap = &self.values - &self.rows * &y;
+                let mut target = self.rows.values.clone();
+                if let Some(law) = &self.law {
+                    let z = law.draw(&[], rng, self.draw)?;
+                    target = target.resize_vertically(m + z.len(), 0.0);
+                    target.rows_mut(m, z.len()).copy_from(&z);
+                }
+                let gap = target - &self.rows.stacked() * &y;
                 let y = y + w * gap;
-                (y.as_slice().to_vec(), ystar)
+                Ok((y.as_slice().to_vec(), ystar))
             }
-            Route::Drivers { f, cells, gain } => {
+            Route::Drivers {
+                f,
+                cells,
+                rest,
+                gain,
+            } => {
                 let estar: Vec<f64> = (0..theta.len())
                     .map(|_| StandardNormal.sample(rng))
                     .collect();
                 let ystar = theta.path_from_shocks(&estar);
-                let gap = &self.rtilde - f * DVector::from_column_slice(&estar);
+                let mut target = self.rtilde.clone();
+                if let Some(law) = &self.law {
+                    let nondrivers: Vec<f64> = rest.iter().map(|&c| estar[c]).collect();
+                    let z = law.draw(&nondrivers, rng, self.draw)? - &self.smean;
+                    target = target.resize_vertically(m + z.len(), 0.0);
+                    target.rows_mut(m, z.len()).copy_from(&z);
+                }
+                let gap = target - f * DVector::from_column_slice(&estar);
                 let step = gain * gap;
                 let mut eps = estar;
                 for (k, &c) in cells.iter().enumerate() {
                     eps[c] += step[k];
                 }
-                (theta.path_from_shocks(&eps), ystar)
+                Ok((theta.path_from_shocks(&eps), ystar))
             }
         }
     }
 
-    /// Largest pin error of a path, relative: `max |ρ'y − r| / (1 + |r|)` on the scaled rows.
+    /// Largest relative pin error of a path (over every pin, also those found redundant).
     pub fn pin_error(&self, y: &[f64]) -> f64 {
-        let y = DVector::from_column_slice(y);
-        let res = &self.rows * y - &self.values;
-        res.iter()
-            .zip(self.values.iter())
-            .map(|(e, r)| e.abs() / (1.0 + r.abs()))
-            .fold(0.0, f64::max)
+        self.rows.pin_error(y)
     }
 
-    /// Exact mean and covariance of the conditional path (dense; for tests and checks).
-    /// Kriging: `μ + W r̃` and `K⁻¹ − W R K⁻¹`. Drivers: `ε = ε* + E_J F_J⁺ (r̃ − F ε*)` is
-    /// affine in `ε* ~ N(0, I)`, so the path has mean `μ + M E_J F_J⁺ r̃` and covariance
-    /// `M A A' M'` with `A = I − E_J F_J⁺ F`.
-    pub fn exact_moments(&self, theta: &Theta) -> (DVector<f64>, DMatrix<f64>) {
+    /// Largest relative corridor violation of a path (0 when all hold).
+    pub fn corridor_violation(&self, y: &[f64]) -> f64 {
+        self.rows.corridor_violation(y)
+    }
+
+    /// Pin z-scores `r̃_i / sqrt(G_ii)` and the Mahalanobis distance `d² = r̃'G⁻¹r̃`,
+    /// `G = R K⁻¹ R'`, with the labels of the (kept) pins.
+    pub fn pin_surprise(&self) -> (Vec<(String, f64)>, f64) {
+        let m = self.pin_count();
+        let g = self.gamma.view((0, 0), (m, m)).into_owned();
+        let z = (0..m)
+            .map(|i| {
+                (
+                    self.rows.pin_labels[i].clone(),
+                    self.rtilde[i] / g[(i, i)].sqrt(),
+                )
+            })
+            .collect();
+        let d2 = g
+            .cholesky()
+            .map(|c| self.rtilde.dot(&c.solve(&self.rtilde)))
+            .unwrap_or(f64::INFINITY);
+        (z, d2)
+    }
+
+    /// `ln p(r | θ) = −½ (m ln 2π + ln|G| + r̃'G⁻¹r̃)`: the density of the pinned values under
+    /// the unconditional forecast (ALGORITHMS §8.4).
+    pub fn pin_log_density(&self) -> f64 {
+        let m = self.pin_count();
+        if m == 0 {
+            return 0.0;
+        }
+        let g = self.gamma.view((0, 0), (m, m)).into_owned();
+        match g.cholesky() {
+            Some(c) => {
+                let logdet: f64 = 2.0 * c.l().diagonal().iter().map(|d| d.ln()).sum::<f64>();
+                let d2 = self.rtilde.dot(&c.solve(&self.rtilde));
+                -0.5 * (m as f64 * (2.0 * std::f64::consts::PI).ln() + logdet + d2)
+            }
+            None => f64::NEG_INFINITY,
+        }
+    }
+
+    /// The model's law of the corridor quantities given the pins, every shock free — the
+    /// basis of the corridor probability `P(a ≤ S y ≤ b | pins)` (none without corridors).
+    pub fn model_law(&self) -> Result<Option<CorridorLaw>, ForecastError> {
+        if self.corridor_count() == 0 {
+            return Ok(None);
+        }
+        if let Route::Kriging { .. } = self.route {
+            return Ok(self.law.clone());
+        }
+        model_law(
+            &self.gamma,
+            self.pin_count(),
+            &self.rtilde,
+            &self.smean,
+            &self.rows,
+        )
+        .map(Some)
+    }
+
+    /// Probability of the corridors under this plan's own law given the non-driver shocks
+    /// (drivers) or outright (every shock free), by `n` proposals.
+    pub fn corridor_probability<R: Rng + ?Sized>(
+        &self,
+        nondrivers: &[f64],
+        rng: &mut R,
+        n: usize,
+    ) -> Result<Option<Probability>, ForecastError> {
+        self.law
+            .as_ref()
+            .map(|law| law.probability(nondrivers, rng, n))
+            .transpose()
+    }
+
+    /// Number of non-driver shock cells (0 when every shock drives).
+    pub fn nondriver_count(&self) -> usize {
+        match &self.route {
+            Route::Kriging { .. } => 0,
+            Route::Drivers { rest, .. } => rest.len(),
+        }
+    }
+
+    /// The pins-only scenario distribution of the shocks, `ε = μ_ε + A ε*` with
+    /// `ε* ~ N(0, I)`: every shock free, `μ_ε = F_R⁺ r̃` and `A = I − F_R⁺F_R`; with drivers,
+    /// `μ_ε = E_J F_RJ⁺ r̃` and `A = I − E_J F_RJ⁺ F_R` (ALGORITHMS §5.2–5.3).
+    pub fn pin_shock_law(
+        &self,
+        theta: &Theta,
+    ) -> Result<(DVector<f64>, DMatrix<f64>), ForecastError> {
+        let big_n = theta.len();
+        let m = self.pin_count();
+        let fr = match &self.route {
+            Route::Kriging { .. } => shock_rows(theta, &self.rows.pins),
+            Route::Drivers { f, .. } => f.rows(0, m).into_owned(),
+        };
+        let cells: Vec<usize> = match &self.route {
+            Route::Kriging { .. } => (0..big_n).collect(),
+            Route::Drivers { cells, .. } => cells.clone(),
+        };
+        let gain = pinv(&columns(&fr, &cells))?;
+        let mut e_gain = DMatrix::zeros(big_n, m);
+        for (k, &c) in cells.iter().enumerate() {
+            e_gain.set_row(c, &gain.row(k));
+        }
+        let mean = &e_gain * &self.rtilde;
+        let a = DMatrix::identity(big_n, big_n) - &e_gain * fr;
+        Ok((mean, a))
+    }
+
+    /// Exact mean and covariance of the conditional path under pins alone (dense; for tests
+    /// and checks); `None` when the plan has corridors (their law is not Gaussian).
+    /// Kriging: `μ + W r̃` and `K⁻¹ − W R K⁻¹`. Drivers: the path is affine in `ε*`, with
+    /// mean `μ + M E_J F_J⁺ r̃` and covariance `M A A' M'`, `A = I − E_J F_J⁺ F`.
+    pub fn exact_moments(&self, theta: &Theta) -> Option<(DVector<f64>, DMatrix<f64>)> {
+        if self.corridor_count() > 0 {
+            return None;
+        }
         let big_n = theta.len();
         let mean = DVector::from_column_slice(&theta.mean);
-        let rtilde = &self.rtilde;
-        match &self.route {
-            Route::Kriging { w } => {
-                let mut kinv = DMatrix::zeros(big_n, big_n);
-                for c in 0..big_n {
-                    let mut e = vec![0.0; big_n];
-                    e[c] = 1.0;
-                    theta.precision.solve_in_place(&mut e);
-                    kinv.set_column(c, &DVector::from_vec(e));
-                }
-                let cov = &kinv - w * (&self.rows * &kinv);
-                (mean + w * rtilde, cov)
+        let shocks = |e: &DMatrix<f64>| {
+            let mut out = DMatrix::zeros(big_n, e.ncols());
+            for c in 0..e.ncols() {
+                let col: Vec<f64> = e.column(c).iter().copied().collect();
+                let path = DVector::from_vec(theta.path_from_shocks(&col)) - &mean;
+                out.set_column(c, &path);
             }
-            Route::Drivers { f, cells, gain } => {
-                let mut m = DMatrix::zeros(big_n, big_n);
-                for c in 0..big_n {
-                    let mut e = vec![0.0; big_n];
-                    e[c] = 1.0;
-                    let col = DVector::from_vec(theta.path_from_shocks(&e)) - &mean;
-                    m.set_column(c, &col);
-                }
-                let mut e_gain = DMatrix::zeros(big_n, gain.ncols());
-                for (k, &c) in cells.iter().enumerate() {
-                    e_gain.set_row(c, &gain.row(k));
-                }
-                let a = DMatrix::identity(big_n, big_n) - &e_gain * f;
-                let ma = &m * a;
-                (mean + &m * (&e_gain * rtilde), &ma * ma.transpose())
-            }
-        }
+            out
+        };
+        let (shock_mean, a) = self.pin_shock_law(theta).ok()?;
+        let ma = shocks(&a);
+        let path_mean =
+            &mean + shocks(&DMatrix::from_column_slice(big_n, 1, shock_mean.as_slice()));
+        Some((
+            DVector::from_column_slice(path_mean.as_slice()),
+            &ma * ma.transpose(),
+        ))
     }
 }
 
-/// `W = K⁻¹ R' G⁻¹` with `G = R K⁻¹ R'` (band solves, then a Cholesky of `G`).
-fn kriging_gain(theta: &Theta, rows: &DMatrix<f64>) -> Result<DMatrix<f64>, ForecastError> {
-    let (m, big_n) = rows.shape();
-    let mut v = DMatrix::zeros(big_n, m);
-    for i in 0..m {
-        let mut col: Vec<f64> = rows.row(i).iter().copied().collect();
+/// `W = K⁻¹ 𝒢' Γ⁻¹` and `Γ = 𝒢 K⁻¹ 𝒢'` (band solves, then a Cholesky of `Γ`).
+fn kriging_gain(
+    theta: &Theta,
+    g: &DMatrix<f64>,
+) -> Result<(DMatrix<f64>, DMatrix<f64>), ForecastError> {
+    let (k, big_n) = g.shape();
+    let mut v = DMatrix::zeros(big_n, k);
+    for i in 0..k {
+        let mut col: Vec<f64> = g.row(i).iter().copied().collect();
         theta.precision.solve_in_place(&mut col);
         v.set_column(i, &DVector::from_vec(col));
     }
-    let g = rows * &v;
-    let chol = g.cholesky().ok_or(ForecastError::Singular(
-        "the pin Gram matrix G = R K⁻¹ R'".into(),
+    let gamma = g * &v;
+    let chol = gamma.clone().cholesky().ok_or(ForecastError::Singular(
+        "the condition Gram matrix Γ = 𝒢 K⁻¹ 𝒢' (nearly dependent conditions)".into(),
     ))?;
-    // W' = G⁻¹ V'.
-    Ok(chol.solve(&v.transpose()).transpose())
+    // W' = Γ⁻¹ V'.
+    Ok((chol.solve(&v.transpose()).transpose(), gamma))
 }
 
-/// Rows of `R` and values `r` for this θ, each row scaled to unit Euclidean norm.
-fn pin_rows(theta: &Theta, cond: &Conditions) -> (DMatrix<f64>, DVector<f64>) {
-    let big_n = theta.len();
-    let m = cond.pins.len();
-    let mut rows = DMatrix::zeros(m, big_n);
-    let mut values = DVector::zeros(m);
-    for (i, pin) in cond.pins.iter().enumerate() {
-        let (terms, value) = match &pin.target {
-            PinTarget::Path { terms, value } => (terms.clone(), *value),
-            PinTarget::Shock {
-                horizon,
-                shock,
-                value,
-            } => {
-                let terms = theta.shock_row(*horizon, *shock);
-                let offset: f64 = terms.iter().map(|(c, a)| a * theta.mean[*c]).sum();
-                (terms, value + offset)
-            }
-        };
-        for (c, a) in terms {
-            rows[(i, c)] += a;
-        }
-        let norm = rows.row(i).norm();
-        if norm > 0.0 {
-            rows.row_mut(i).scale_mut(1.0 / norm);
-            values[i] = value / norm;
-        } else {
-            values[i] = value;
-        }
-    }
-    (rows, values)
+/// The corridor law with every shock free, from `Γ`: mean `Sμ + Γ_SR Γ_RR⁻¹ r̃`, covariance
+/// `Γ_SS − Γ_SR Γ_RR⁻¹ Γ_RS` (ALGORITHMS §6.1).
+fn model_law(
+    gamma: &DMatrix<f64>,
+    m: usize,
+    rtilde: &DVector<f64>,
+    smean: &DVector<f64>,
+    rows: &Rows,
+) -> Result<CorridorLaw, ForecastError> {
+    let q = gamma.nrows() - m;
+    let gss = gamma.view((m, m), (q, q)).into_owned();
+    let gsr = gamma.view((m, 0), (q, m)).into_owned();
+    let (mean, cov) = if m == 0 {
+        (smean.clone(), gss)
+    } else {
+        let grr = gamma.view((0, 0), (m, m)).into_owned();
+        let chol = grr.cholesky().ok_or(ForecastError::Singular(
+            "the pin Gram matrix G = R K⁻¹ R'".into(),
+        ))?;
+        let solved = chol.solve(&gsr.transpose()); // Γ_RR⁻¹ Γ_RS
+        (smean + solved.transpose() * rtilde, gss - &gsr * solved)
+    };
+    CorridorLaw::new(
+        cov,
+        mean,
+        None,
+        (rows.lower.clone(), rows.upper.clone()),
+        rows.extra.clone(),
+        rows.corridor_labels.clone(),
+    )
 }

@@ -10,6 +10,10 @@ use rand_chacha::ChaCha8Rng;
 pub enum Purpose {
     Parameters = 1,
     Paths = 2,
+    /// Corridor-probability estimates behind importance weights.
+    Weights = 3,
+    /// The scenario checks' own estimates.
+    Checks = 4,
 }
 
 /// SplitMix64 finaliser (Steele, Lea and Flood 2014): spreads nearby seeds apart.

@@ -1,13 +1,17 @@
 //! Scenarios: the RON file ([`schema`]), people's units turned into rows ([`units`]), and
 //! the bridge to the engine ([`setup`]).
 
+pub mod conditions;
 pub mod schema;
 pub mod setup;
 pub mod units;
 
 use std::path::{Path, PathBuf};
 
-pub use schema::{Centre, FixedSpec, ModelSpec, PinSpec, ScenarioFile, SeriesSpec, Units};
+pub use schema::{
+    Bound, Centre, CheckSettings, CorridorSpec, FixedSpec, ModelSpec, PinSpec, ScenarioFile,
+    SeriesSpec, Units,
+};
 pub use setup::Setup;
 
 use crate::dataset::DatasetError;
@@ -43,7 +47,7 @@ pub enum ScenarioError {
         known: String,
     },
     #[error("{field} ({label}): {why}")]
-    Pin {
+    Condition {
         field: String,
         label: String,
         why: String,
@@ -85,6 +89,12 @@ fn plain_names(message: &str) -> String {
         ("`ScenarioFile`", "the scenario"),
         ("`SeriesSpec`", "a series"),
         ("`PinSpec`", "a pin"),
+        ("`CorridorSpec`", "a corridor"),
+        ("`CheckSettings`", "checks(...)"),
+        (
+            "data did not match any variant of untagged enum Bound",
+            "a bound is a number, or a list with one number (or None) per period",
+        ),
         ("`MinnesotaSettings`", "minnesota(...)"),
         ("`FlatSettings`", "flat(...)"),
         ("`FixedSpec`", "fixed(...)"),

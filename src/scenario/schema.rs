@@ -18,6 +18,10 @@
 //!         (series: "unemployment", period: "2027Q2", units: level, value: 6.5),
 //!         (shock: "output", period: "2026Q1", value: -1.0),
 //!     ],
+//!     corridors: [
+//!         (series: "unemployment", from: "2026Q1", to: "2026Q4", lower: 5.0, upper: [6, 6.5, 7, 7.5]),
+//!         (shock: "output", from: "2026Q2", to: "2026Q3", lower: -2.0),
+//!     ],
 //! )
 //! ```
 
@@ -56,6 +60,15 @@ pub struct ScenarioFile {
     pub seed: u64,
     #[serde(default)]
     pub pins: Vec<PinSpec>,
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub corridors: Vec<CorridorSpec>,
+    /// Thresholds of the scenario checks.
+    #[serde(default, skip_serializing_if = "CheckSettings::is_default")]
+    pub checks: CheckSettings,
+    /// Reweight posterior draws by the scenario's probability under each (importance
+    /// weights); off by default.
+    #[serde(default, skip_serializing_if = "std::ops::Not::not")]
+    pub reweight: bool,
 }
 
 fn default_draws() -> usize {
@@ -182,4 +195,70 @@ pub struct PinSpec {
     /// A switched-off pin stays in the file but does not condition the forecast.
     #[serde(default = "yes")]
     pub active: bool,
+}
+
+/// A bound of a corridor: one value for every period, or one per period (`None` leaves that
+/// period open on this side).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(untagged)]
+pub enum Bound {
+    Same(f64),
+    Each(Vec<Option<f64>>),
+}
+
+/// A corridor: one series (or shock) lies between bounds over a range of future periods.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct CorridorSpec {
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub series: Option<String>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub shock: Option<String>,
+    /// First and last period, inclusive.
+    pub from: String,
+    pub to: String,
+    #[serde(default)]
+    pub units: Units,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub lower: Option<Bound>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub upper: Option<Bound>,
+    /// A switched-off corridor stays in the file but does not condition the forecast.
+    #[serde(default = "yes")]
+    pub active: bool,
+}
+
+/// Thresholds of the scenario checks (defaults are common practice; tune them with users).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct CheckSettings {
+    /// Strain when the corridors' probability given the pins is below this.
+    pub corridor_probability: f64,
+    /// Strain when the pins' joint tail probability `P(χ²_m ≥ d²)` is below this.
+    pub pin_tail: f64,
+    /// A single pin is flagged when its z-score exceeds this in absolute value.
+    pub pin_z: f64,
+    /// Refuse to sample when the corridor sampler would accept fewer than this share of
+    /// its proposals (the scenario is then reported as too improbable to sample).
+    pub min_acceptance: f64,
+    /// Most sub-scenarios a blame search may evaluate.
+    pub blame_budget: usize,
+}
+
+impl Default for CheckSettings {
+    fn default() -> Self {
+        CheckSettings {
+            corridor_probability: 1e-3,
+            pin_tail: 0.01,
+            pin_z: 3.0,
+            min_acceptance: 1e-5,
+            blame_budget: 64,
+        }
+    }
+}
+
+impl CheckSettings {
+    pub fn is_default(&self) -> bool {
+        *self == CheckSettings::default()
+    }
 }

@@ -7,11 +7,10 @@ use std::path::{Path, PathBuf};
 
 use super::{
     ScenarioError,
-    schema::{ModelSpec, PinSpec, ScenarioFile, Units},
-    units::pin_row,
+    schema::{ModelSpec, ScenarioFile, Units},
 };
 use crate::dataset::{Dataset, Period, Transform};
-use crate::forecast::{Conditions, ParamSource, Pin, PinTarget};
+use crate::forecast::ParamSource;
 use crate::model::{FitSummary, Params, Regression, Window, estimate_minnesota, posterior::flat};
 
 /// Upper limits that keep a typo from asking for hours of work.
@@ -226,31 +225,7 @@ impl Setup {
         Ok((first, last))
     }
 
-    /// Pins (active ones) and drivers in engine form.
-    pub fn conditions(&self) -> Result<Conditions, ScenarioError> {
-        let drivers = match &self.file.drivers {
-            None => None,
-            Some(list) => Some(
-                list.iter()
-                    .enumerate()
-                    .map(|(k, name)| self.shock_index(name, &format!("drivers[{k}]")))
-                    .collect::<Result<Vec<_>, _>>()?,
-            ),
-        };
-        let mut pins = Vec::new();
-        for (k, spec) in self.file.pins.iter().enumerate() {
-            if spec.active {
-                pins.push(self.pin(k, spec)?);
-            }
-        }
-        Ok(Conditions {
-            pins,
-            drivers,
-            shock_names: self.names.clone(),
-        })
-    }
-
-    fn shock_index(&self, name: &str, field: &str) -> Result<usize, ScenarioError> {
+    pub(super) fn shock_index(&self, name: &str, field: &str) -> Result<usize, ScenarioError> {
         self.names
             .iter()
             .position(|s| s == name)
@@ -275,7 +250,7 @@ impl Setup {
             return Err(ScenarioError::Invalid {
                 field: field.into(),
                 why: format!(
-                    "{period} is not after the last observation {last}; pins are on future periods"
+                    "{period} is not after the last observation {last}; conditions are on future periods"
                 ),
             });
         }
@@ -283,81 +258,12 @@ impl Setup {
             return Err(ScenarioError::Invalid {
                 field: field.into(),
                 why: format!(
-                    "{period} is beyond the horizon, which ends at {}; raise horizon to at least {t} or move the pin",
+                    "{period} is beyond the horizon, which ends at {}; raise horizon to at least {t} or move the condition",
                     last.offset(h)
                 ),
             });
         }
         Ok(t as usize)
-    }
-
-    fn pin(&self, k: usize, spec: &PinSpec) -> Result<Pin, ScenarioError> {
-        let field = format!("pins[{k}]");
-        if !spec.value.is_finite() {
-            return Err(ScenarioError::Invalid {
-                field: format!("{field}.value"),
-                why: "must be a finite number".into(),
-            });
-        }
-        let t = self.horizon_of(&spec.period, &format!("{field}.period"))?;
-        match (&spec.series, &spec.shock) {
-            (Some(name), None) => {
-                let i = self.names.iter().position(|s| s == name).ok_or_else(|| {
-                    ScenarioError::UnknownSeries {
-                        field: format!("{field}.series"),
-                        name: name.clone(),
-                        known: self.names.join(", "),
-                    }
-                })?;
-                let label = format!(
-                    "{name} {} at {} = {}",
-                    spec.units.label(),
-                    spec.period,
-                    spec.value
-                );
-                let (terms, value) = pin_row(
-                    spec.units,
-                    self.transforms[i],
-                    spec.value,
-                    self.periods_per_year(),
-                    i,
-                    self.n(),
-                    t,
-                    &self.columns[i],
-                )
-                .map_err(|e| ScenarioError::Pin {
-                    field: field.clone(),
-                    label: label.clone(),
-                    why: e.to_string(),
-                })?;
-                Ok(Pin {
-                    label,
-                    target: PinTarget::Path { terms, value },
-                })
-            }
-            (None, Some(name)) => {
-                let shock = self.shock_index(name, &format!("{field}.shock"))?;
-                if spec.units != Units::Level {
-                    return Err(ScenarioError::Invalid {
-                        field: format!("{field}.units"),
-                        why: "a shock pin is a value of the standardised shock; use units: level"
-                            .into(),
-                    });
-                }
-                Ok(Pin {
-                    label: format!("{name} shock at {} = {}", spec.period, spec.value),
-                    target: PinTarget::Shock {
-                        horizon: t,
-                        shock,
-                        value: spec.value,
-                    },
-                })
-            }
-            _ => Err(ScenarioError::Invalid {
-                field,
-                why: "give exactly one of series or shock".into(),
-            }),
-        }
     }
 }
 

@@ -17,9 +17,17 @@
 //!
 //! All of these are exact: no linearisation. A difference of a log series in its own units
 //! (`X_t − X_{t−1}`) is not linear in `x` and is refused.
+//!
+//! A corridor uses the same row; its bounds map through the same increasing function of the
+//! value (ALGORITHMS §4.2). Growth units of an as-is series put the value into the row, so a
+//! bound on them is not one linear row and is refused. A lower bound outside the domain
+//! (a level ≤ 0 of a log100 series, a fall of 100% or more) bounds nothing and is open.
 
 use super::schema::Units;
 use crate::dataset::Transform;
+
+/// Sparse terms `(cell, coefficient)` of a row over future cells.
+pub type Terms = Vec<(usize, f64)>;
 
 /// Why a statement cannot become a row.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
@@ -38,6 +46,10 @@ pub enum UnitsError {
     BeforeSample { periods: i64 },
     #[error("average over {0} periods: need at least 1")]
     EmptyAverage(usize),
+    #[error(
+        "a corridor in {units} on an as-is series is not one linear condition (the value enters the row); use level or difference"
+    )]
+    NotLinearBound { units: String },
 }
 
 /// `(lag, coefficient)` terms and the right-hand side of a statement.
@@ -134,6 +146,55 @@ pub fn pin_row(
         }
     }
     Ok((row, rhs))
+}
+
+/// The row of a corridor in `units` at horizon `t` and its bounds in row terms (history
+/// moved); `lower`/`upper` are ∓∞ when open.
+#[allow(clippy::too_many_arguments)]
+pub fn corridor_row(
+    units: Units,
+    transform: Transform,
+    (lower, upper): (f64, f64),
+    f: usize,
+    series: usize,
+    n: usize,
+    t: usize,
+    history: &[f64],
+) -> Result<(Terms, f64, f64), UnitsError> {
+    let log = transform == Transform::Log100;
+    if !log
+        && matches!(
+            units,
+            Units::PctChange | Units::Annualised | Units::YearOnYear
+        )
+    {
+        return Err(UnitsError::NotLinearBound {
+            units: units.label(),
+        });
+    }
+    let growth = matches!(
+        units,
+        Units::PctChange | Units::Annualised | Units::YearOnYear
+    );
+    // Below the domain, a lower bound says nothing.
+    let floor = match (log, growth) {
+        (true, true) => Some(-100.0),
+        (true, false) => Some(0.0),
+        (false, _) => None,
+    };
+    let lower = match floor {
+        Some(fl) if lower <= fl => f64::NEG_INFINITY,
+        _ => lower,
+    };
+    let reference = if log && !growth { 1.0 } else { 0.0 };
+    let (terms, _) = pin_row(units, transform, reference, f, series, n, t, history)?;
+    let map = |v: f64| -> Result<f64, UnitsError> {
+        if v.is_infinite() {
+            return Ok(v);
+        }
+        Ok(pin_row(units, transform, v, f, series, n, t, history)?.1)
+    };
+    Ok((terms, map(lower)?, map(upper)?))
 }
 
 /// The value of a path in `units` at horizon `t`: `x(s)` gives the model-unit value at
