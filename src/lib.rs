@@ -1,8 +1,9 @@
-//! Tiltyard's engine: datasets, the Bayesian VAR, and exact conditional forecasts
-//! under pins and drivers. Nothing here depends on a window; the headless commands
+//! Tiltyard's engine: datasets, the Bayesian VAR, exact conditional forecasts under pins,
+//! corridors and drivers, and the scenario checks. Nothing here depends on a window; the headless commands
 //! and (later) the window both drive this library.
 
 pub mod banded;
+pub mod checks;
 pub mod dataset;
 pub mod forecast;
 pub mod model;

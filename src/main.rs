@@ -1,13 +1,15 @@
 //! The `tiltyard` command: thin dispatch to the library.
 
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
 use anyhow::Context;
 use clap::{Parser, Subcommand};
 
-use tiltyard::report::{CAUTION, write_about, write_draws, write_fans};
-use tiltyard::run::{RunOptions, run, summary};
+use tiltyard::report::{
+    CAUTION, check_text, write_about, write_checks_json, write_draws, write_fans,
+};
+use tiltyard::run::{RunError, RunOptions, check, run, summary};
 
 /// Design macro-financial stress-test scenarios: conditional forecasts from a Bayesian VAR.
 #[derive(Parser)]
@@ -42,6 +44,27 @@ enum Command {
         #[arg(long)]
         keep_draws: bool,
     },
+    /// Check a scenario: clashes, strain, the conditions to blame and the plausibility;
+    /// prints the report and writes checks.json. Exit status 2 when the conditions clash.
+    Check {
+        /// The scenario file (RON).
+        scenario: PathBuf,
+        /// Random seed of the probability estimates; overrides the file.
+        #[arg(long)]
+        seed: Option<u64>,
+        /// Output folder.
+        #[arg(long, default_value = "out")]
+        out: PathBuf,
+    },
+}
+
+/// Exit status when the scenario's conditions clash (1 is any other error).
+const CLASH_EXIT: u8 = 2;
+
+/// How a command ended.
+enum Outcome {
+    Done,
+    Clash,
 }
 
 fn main() -> ExitCode {
@@ -66,20 +89,49 @@ fn main() -> ExitCode {
             out,
             keep_draws,
         ),
+        Some(Command::Check {
+            scenario,
+            seed,
+            out,
+        }) => check_command(scenario, seed, out),
         None => {
             println!(
                 "The scenario window is not built yet. Run a scenario headless:\n  tiltyard run scenarios-demo/baseline.ron\n(see tiltyard --help)"
             );
-            Ok(())
+            Ok(Outcome::Done)
         }
     };
     match result {
-        Ok(()) => ExitCode::SUCCESS,
+        Ok(Outcome::Done) => ExitCode::SUCCESS,
+        Ok(Outcome::Clash) => ExitCode::from(CLASH_EXIT),
         Err(e) => {
             eprintln!("error: {e:#}");
             ExitCode::FAILURE
         }
     }
+}
+
+fn create(out: &Path) -> anyhow::Result<()> {
+    std::fs::create_dir_all(out).with_context(|| format!("cannot create {}", out.display()))
+}
+
+fn check_command(scenario: PathBuf, seed: Option<u64>, out: PathBuf) -> anyhow::Result<Outcome> {
+    let mut setup = tiltyard::scenario::load(&scenario)?;
+    if let Some(s) = seed {
+        setup.file.seed = s;
+    }
+    let report = check(&setup)?;
+    create(&out)?;
+    write_checks_json(&out.join("checks.json"), &report)?;
+    println!("scenario   {} ({})", setup.file.name, scenario.display());
+    println!("{}", check_text(&report));
+    println!("wrote      {}", out.join("checks.json").display());
+    println!("\n{CAUTION}");
+    Ok(if report.clashes() {
+        Outcome::Clash
+    } else {
+        Outcome::Done
+    })
 }
 
 fn run_command(
@@ -88,15 +140,30 @@ fn run_command(
     threads: Option<usize>,
     out: PathBuf,
     keep_draws: bool,
-) -> anyhow::Result<()> {
+) -> anyhow::Result<Outcome> {
     let pool = rayon::ThreadPoolBuilder::new()
         .num_threads(threads.unwrap_or(0))
         .build()
         .context("cannot start worker threads")?;
     let mut setup = tiltyard::scenario::load(&scenario)?;
-    let outcome = pool.install(|| run(&mut setup, &options))?;
-    std::fs::create_dir_all(&out).with_context(|| format!("cannot create {}", out.display()))?;
+    let outcome = match pool.install(|| run(&mut setup, &options)) {
+        Ok(outcome) => outcome,
+        Err(RunError::Clash(report)) => {
+            create(&out)?;
+            write_checks_json(&out.join("checks.json"), &report)?;
+            println!("scenario   {} ({})", setup.file.name, scenario.display());
+            println!("{}", check_text(&report));
+            println!(
+                "nothing sampled: the conditions clash (report in {})",
+                out.join("checks.json").display()
+            );
+            return Ok(Outcome::Clash);
+        }
+        Err(e) => return Err(e.into()),
+    };
+    create(&out)?;
     write_fans(&out.join("fans.csv"), &outcome.fans)?;
+    write_checks_json(&out.join("checks.json"), &outcome.checks)?;
     if keep_draws {
         write_draws(&out.join("draws.csv"), &setup, &outcome.paths.conditional)?;
     }
@@ -104,8 +171,9 @@ fn run_command(
     write_about(&out.join("about.txt"), &text)?;
     println!("{text}");
     println!(
-        "wrote      {}{}",
+        "wrote      {}, {}{}",
         out.join("fans.csv").display(),
+        out.join("checks.json").display(),
         if keep_draws {
             format!(", {}", out.join("draws.csv").display())
         } else {
@@ -113,5 +181,5 @@ fn run_command(
         }
     );
     println!("\n{CAUTION}");
-    Ok(())
+    Ok(Outcome::Done)
 }

@@ -1,12 +1,17 @@
-//! The headless run: scenario → model → draws → fans, with a short summary.
-//! Used by `tiltyard run` and by the end-to-end tests.
+//! The headless commands: the checks (scenario → model at its posterior mean → clash and
+//! strain report) and the run (checks, then draws → fans, with a short summary). Used by
+//! `tiltyard check`, `tiltyard run` and the end-to-end tests.
 
 use std::sync::atomic::AtomicBool;
 use std::time::{Duration, Instant};
 
-use crate::forecast::{ForecastError, ParamSource, PathSet, Sampling, build_thetas, sample_paths};
+use crate::checks::{CheckReport, Finding, Severity, check_conditions};
+use crate::forecast::{
+    ForecastError, ParamSource, PathSet, Plan, Sampling, Theta, build_thetas, normalise,
+    sample_paths,
+};
 use crate::model::FitSummary;
-use crate::report::{FanRow, Kind, fans};
+use crate::report::{FanRow, Kind, check_text, fans};
 use crate::scenario::{ModelSpec, ScenarioError, Setup};
 
 /// Every path must meet every pin to this relative error (ALGORITHMS §11.4).
@@ -27,7 +32,14 @@ pub enum RunError {
     Scenario(#[from] ScenarioError),
     #[error(transparent)]
     Forecast(#[from] ForecastError),
+    #[error("the scenario clashes; nothing was sampled\n{}", check_text(.0))]
+    Clash(Box<CheckReport>),
 }
+
+/// Posterior draws re-checked for the drivers' rank condition (ALGORITHMS §9.1 item 6).
+pub const DRAWS_RECHECKED: usize = 40;
+/// Warn when the effective sample size of reweighted draws falls below this share.
+pub const LOW_ESS_SHARE: f64 = 0.1;
 
 /// What a run produced.
 #[derive(Debug, Clone)]
@@ -39,6 +51,103 @@ pub struct RunOutcome {
     pub explosive: usize,
     pub median_root: f64,
     pub elapsed: Duration,
+    /// The checks run before sampling.
+    pub checks: CheckReport,
+    /// With reweighting: the effective sample size of the weighted posterior draws.
+    pub effective_draws: Option<f64>,
+}
+
+/// The parameters the checks use: the posterior mean, or the fixed coefficients.
+fn central_theta(setup: &Setup, source: &ParamSource) -> Result<(Theta, String), RunError> {
+    let (params, at) = match source {
+        ParamSource::Fixed(p) => (p.clone(), "the fixed coefficients"),
+        ParamSource::Posterior(post) => (
+            post.mean().ok_or(ForecastError::Singular(
+                "the posterior mean of Σ (too few observations)".into(),
+            ))?,
+            "the posterior mean of the parameters",
+        ),
+    };
+    let theta = Theta::new(params, &setup.ordering, &setup.tail()?, setup.file.horizon)?;
+    Ok((theta, at.to_string()))
+}
+
+/// Check a loaded scenario: every invalid condition is a clash naming its field; the rest are
+/// checked at the posterior mean (or the fixed coefficients); with drivers and parameter
+/// uncertainty the rank condition is also re-checked on a few posterior draws.
+pub fn check(setup: &Setup) -> Result<CheckReport, RunError> {
+    let (source, _) = setup.estimate()?;
+    let (conditions, problems) = setup.read_conditions();
+    let invalid: Vec<Finding> = problems
+        .into_iter()
+        .map(|e| {
+            let field = match &e {
+                ScenarioError::Invalid { field, .. }
+                | ScenarioError::Condition { field, .. }
+                | ScenarioError::UnknownSeries { field, .. }
+                | ScenarioError::UnknownShock { field, .. } => field.clone(),
+                _ => String::new(),
+            };
+            Finding {
+                severity: Severity::Clash,
+                kind: "invalid_condition".into(),
+                conditions: Vec::new(),
+                fields: vec![field],
+                message: e.to_string(),
+                remedy:
+                    "correct the field named here (the condition was left out of the other checks)"
+                        .into(),
+                minimal: None,
+            }
+        })
+        .collect();
+    let (theta, at) = central_theta(setup, &source)?;
+    let mut report = check_conditions(
+        &theta,
+        &conditions,
+        &setup.file.checks,
+        setup.file.seed,
+        &at,
+        invalid,
+    );
+    if let (ParamSource::Posterior(_), Some(_), false) =
+        (&source, &conditions.drivers, report.clashes())
+    {
+        let cancel = AtomicBool::new(false);
+        let set = build_thetas(
+            &source,
+            &setup.ordering,
+            &setup.tail()?,
+            setup.file.horizon,
+            DRAWS_RECHECKED,
+            setup.file.seed,
+            &cancel,
+        )?;
+        let failing: Vec<usize> = (0..set.thetas.len())
+            .filter(|&i| Plan::new(&set.thetas[i], &conditions, Some(i)).is_err())
+            .collect();
+        if let Some(&first) = failing.first() {
+            let e = Plan::new(&set.thetas[first], &conditions, Some(first))
+                .err()
+                .map(|e| e.to_string())
+                .unwrap_or_default();
+            report.findings.push(Finding {
+                severity: Severity::Clash,
+                kind: "fails_in_posterior_draws".into(),
+                conditions: Vec::new(),
+                fields: Vec::new(),
+                message: format!(
+                    "{} of {} posterior draws checked cannot meet the conditions ({e})",
+                    failing.len(),
+                    set.thetas.len()
+                ),
+                remedy: "add drivers or loosen the conditions; the posterior mean meets them, but parameter uncertainty does not".into(),
+                minimal: None,
+            });
+            report.status = crate::checks::Status::Clashing;
+        }
+    }
+    Ok(report)
 }
 
 /// Run a loaded scenario (options override the file's draws, seed and paths per draw).
@@ -56,6 +165,18 @@ pub fn run(setup: &mut Setup, options: &RunOptions) -> Result<RunOutcome, RunErr
     crate::scenario::setup::check_counts(&setup.file)?;
     let (source, fit) = setup.estimate()?;
     let conditions = setup.conditions()?;
+    let (theta, at) = central_theta(setup, &source)?;
+    let checks = check_conditions(
+        &theta,
+        &conditions,
+        &setup.file.checks,
+        setup.file.seed,
+        &at,
+        Vec::new(),
+    );
+    if checks.clashes() {
+        return Err(RunError::Clash(Box::new(checks)));
+    }
     let file = &setup.file;
     // Fixed coefficients: one θ, and `draws` paths from it.
     let (thetas_wanted, paths_per_theta) = match source {
@@ -79,8 +200,24 @@ pub fn run(setup: &mut Setup, options: &RunOptions) -> Result<RunOutcome, RunErr
         reweight: file.reweight,
     };
     let paths = sample_paths(&set, 0..set.thetas.len(), &conditions, how, &cancel)?;
-    let mut rows = fans(setup, &paths.conditional, Kind::Conditional);
-    rows.extend(fans(setup, &paths.unconditional, Kind::Unconditional));
+    // Reweighting: each θ's weight shared by its paths; the unconditional fans keep p(θ | data).
+    let (weights, effective_draws) = if file.reweight {
+        let (w, ess) = normalise(&paths.log_weights);
+        let per_path: Vec<f64> = w
+            .iter()
+            .flat_map(|&wi| std::iter::repeat_n(wi / paths_per_theta as f64, paths_per_theta))
+            .collect();
+        (Some(per_path), Some(ess))
+    } else {
+        (None, None)
+    };
+    let mut rows = fans(
+        setup,
+        &paths.conditional,
+        weights.as_deref(),
+        Kind::Conditional,
+    );
+    rows.extend(fans(setup, &paths.unconditional, None, Kind::Unconditional));
     Ok(RunOutcome {
         fans: rows,
         fit,
@@ -93,6 +230,8 @@ pub fn run(setup: &mut Setup, options: &RunOptions) -> Result<RunOutcome, RunErr
         median_root: set.median_root,
         elapsed: start.elapsed(),
         paths,
+        checks,
+        effective_draws,
     })
 }
 
@@ -142,19 +281,36 @@ pub fn summary(setup: &Setup, out: &RunOutcome) -> String {
         file.seed
     ));
     let pins = file.pins.iter().filter(|p| p.active).count();
+    let corridors = file.corridors.iter().filter(|c| c.active).count();
     let drivers = match &file.drivers {
         None => "all shocks drive".to_string(),
         Some(d) => format!("drivers: {}", d.join(", ")),
     };
-    let met = if out.paths.max_pin_error <= PIN_TOLERANCE {
-        "met in every path"
-    } else {
-        "NOT MET to tolerance"
+    let met = |ok: bool| {
+        if ok {
+            "met in every path"
+        } else {
+            "NOT MET to tolerance"
+        }
     };
     s.push(format!(
-        "checks     {pins} pins {met} (largest relative error {:.1e}); {drivers}",
-        out.paths.max_pin_error
+        "conditions {pins} pins {} (largest relative error {:.1e}); {corridors} corridors {} (largest violation {:.1e}); {drivers}",
+        met(out.paths.max_pin_error <= PIN_TOLERANCE),
+        out.paths.max_pin_error,
+        met(out.paths.max_corridor_violation <= PIN_TOLERANCE),
+        out.paths.max_corridor_violation
     ));
+    for note in &out.paths.notes {
+        s.push(format!("           note: {note}"));
+    }
+    if let Some(ess) = out.effective_draws {
+        let low = ess < LOW_ESS_SHARE * out.posterior_draws as f64;
+        s.push(format!(
+            "           posterior draws reweighted by the scenario's probability: effective sample size {ess:.0} of {}{}",
+            out.posterior_draws,
+            if low { " (LOW: the fans rest on few draws)" } else { "" }
+        ));
+    }
     if out.posterior_draws > 0 {
         let share = 100.0 * out.explosive as f64 / out.posterior_draws as f64;
         s.push(format!(
@@ -162,6 +318,7 @@ pub fn summary(setup: &Setup, out: &RunOutcome) -> String {
             out.explosive, out.posterior_draws, out.median_root
         ));
     }
+    s.push(check_text(&out.checks));
     s.push(format!("time       {:.2} s", out.elapsed.as_secs_f64()));
     s.join("\n")
 }

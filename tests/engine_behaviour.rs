@@ -59,19 +59,47 @@ fn unreachable_pin_is_named() {
     let dir = tempfile::tempdir().unwrap();
     let path = write_scenario(&dir, &minnesota_scenario(extra));
     let mut setup = scenario::load(&path).unwrap();
+    // The run refuses before sampling; its clash report names the pin and the drivers.
     let err = run(&mut setup, &RunOptions::default()).unwrap_err();
-    let RunError::Forecast(ForecastError::Unreachable { conditions, .. }) = &err else {
-        panic!("expected an unreachable pin, got {err}")
+    let RunError::Clash(report) = &err else {
+        panic!("expected a clash, got {err}")
     };
+    let finding = &report.findings[0];
+    assert_eq!(finding.kind, "unreachable_by_drivers");
     assert_eq!(
-        conditions,
-        &vec!["realgdp level at 2009Q4 = 13000".to_string()]
+        finding.conditions,
+        vec!["realgdp level at 2009Q4 = 13000".to_string()]
     );
+    assert_eq!(finding.fields, vec!["pins[1]".to_string()]);
     let msg = err.to_string();
     assert!(
         msg.contains("realgdp level at 2009Q4") && msg.contains("tbilrate"),
         "{msg}"
     );
+    // The engine alone says the same.
+    let theta = central(&setup);
+    let err = Plan::new(&theta, &setup.conditions().unwrap(), None).unwrap_err();
+    let ForecastError::Unreachable { conditions, .. } = &err else {
+        panic!("{err}")
+    };
+    assert_eq!(
+        conditions,
+        &vec!["realgdp level at 2009Q4 = 13000".to_string()]
+    );
+}
+
+/// θ at the posterior mean.
+fn central(setup: &scenario::Setup) -> Theta {
+    let (tiltyard::forecast::ParamSource::Posterior(post), _) = setup.estimate().unwrap() else {
+        panic!("posterior")
+    };
+    Theta::new(
+        post.mean().unwrap(),
+        &setup.ordering,
+        &setup.tail().unwrap(),
+        setup.file.horizon,
+    )
+    .unwrap()
 }
 
 /// A later pin on the same series is reachable by its own shock (same setting as above).

@@ -47,8 +47,8 @@ pub enum ForecastError {
         draw: Option<usize>,
     },
     #[error(
-        "corridor '{corridor}' cannot hold: {} fix that quantity outside its bounds",
-        list(pins)
+        "corridor '{corridor}' cannot hold: {} {} that quantity outside its bounds",
+        list(pins), if pins.len() == 1 { "fixes" } else { "fix" }
     )]
     CorridorFixedByPins { corridor: String, pins: Vec<String> },
     #[error(

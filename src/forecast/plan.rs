@@ -25,6 +25,17 @@ use super::{
 };
 use crate::truncnorm::Probability;
 
+/// The pins-only shock law in low-rank form: `ε = mean + (I − gain · rows) ε*`.
+#[derive(Debug, Clone)]
+pub struct ShockLaw {
+    /// `μ_ε` (N).
+    pub mean: DVector<f64>,
+    /// `U` (N×m).
+    pub gain: DMatrix<f64>,
+    /// `F_R = R M` (m×N).
+    pub rows: DMatrix<f64>,
+}
+
 /// Condition-dependent objects for one θ.
 #[derive(Debug, Clone)]
 pub struct Plan {
@@ -162,6 +173,11 @@ impl Plan {
 
     pub fn corridor_count(&self) -> usize {
         self.rows.corridors.nrows()
+    }
+
+    /// `Γ = 𝒢 K⁻¹ 𝒢'` of the kept rows (pins, then corridor rows).
+    pub fn gram(&self) -> &DMatrix<f64> {
+        &self.gamma
     }
 
     /// What the row analysis dropped or merged.
@@ -307,37 +323,32 @@ impl Plan {
         }
     }
 
-    /// The pins-only scenario distribution of the shocks, `ε = μ_ε + A ε*` with
-    /// `ε* ~ N(0, I)`: every shock free, `μ_ε = F_R⁺ r̃` and `A = I − F_R⁺F_R`; with drivers,
-    /// `μ_ε = E_J F_RJ⁺ r̃` and `A = I − E_J F_RJ⁺ F_R` (ALGORITHMS §5.2–5.3).
-    pub fn pin_shock_law(
-        &self,
-        theta: &Theta,
-    ) -> Result<(DVector<f64>, DMatrix<f64>), ForecastError> {
+    /// The pins-only scenario distribution of the shocks, `ε = μ_ε + (I − U F_R) ε*` with
+    /// `ε* ~ N(0, I)`: every shock free, `U = F_R⁺`; with drivers, `U = E_J F_RJ⁺`; and
+    /// `μ_ε = U r̃` (ALGORITHMS §5.2–5.3).
+    pub fn pin_shock_law(&self, theta: &Theta) -> Result<ShockLaw, ForecastError> {
         let big_n = theta.len();
         let m = self.pin_count();
-        let fr = match &self.route {
-            Route::Kriging { .. } => shock_rows(theta, &self.rows.pins),
-            Route::Drivers { f, .. } => f.rows(0, m).into_owned(),
-        };
-        let cells: Vec<usize> = match &self.route {
-            Route::Kriging { .. } => (0..big_n).collect(),
-            Route::Drivers { cells, .. } => cells.clone(),
+        let (fr, cells) = match &self.route {
+            Route::Kriging { .. } => (shock_rows(theta, &self.rows.pins), (0..big_n).collect()),
+            Route::Drivers { f, cells, .. } => (f.rows(0, m).into_owned(), cells.clone()),
         };
         let gain = pinv(&columns(&fr, &cells))?;
-        let mut e_gain = DMatrix::zeros(big_n, m);
+        let mut u = DMatrix::zeros(big_n, m);
         for (k, &c) in cells.iter().enumerate() {
-            e_gain.set_row(c, &gain.row(k));
+            u.set_row(c, &gain.row(k));
         }
-        let mean = &e_gain * &self.rtilde;
-        let a = DMatrix::identity(big_n, big_n) - &e_gain * fr;
-        Ok((mean, a))
+        Ok(ShockLaw {
+            mean: &u * &self.rtilde,
+            gain: u,
+            rows: fr,
+        })
     }
 
     /// Exact mean and covariance of the conditional path under pins alone (dense; for tests
     /// and checks); `None` when the plan has corridors (their law is not Gaussian).
-    /// Kriging: `μ + W r̃` and `K⁻¹ − W R K⁻¹`. Drivers: the path is affine in `ε*`, with
-    /// mean `μ + M E_J F_J⁺ r̃` and covariance `M A A' M'`, `A = I − E_J F_J⁺ F`.
+    /// The path is affine in `ε*` ([`Plan::pin_shock_law`]), with mean `μ + M μ_ε` and
+    /// covariance `M A A' M'`, `A = I − U F_R` (every shock free: `K⁻¹ − K⁻¹R'G⁻¹RK⁻¹`).
     pub fn exact_moments(&self, theta: &Theta) -> Option<(DVector<f64>, DMatrix<f64>)> {
         if self.corridor_count() > 0 {
             return None;
@@ -353,8 +364,9 @@ impl Plan {
             }
             out
         };
-        let (shock_mean, a) = self.pin_shock_law(theta).ok()?;
-        let ma = shocks(&a);
+        let law = self.pin_shock_law(theta).ok()?;
+        let shock_mean = law.mean;
+        let ma = shocks(&(DMatrix::identity(big_n, big_n) - law.gain * law.rows));
         let path_mean =
             &mean + shocks(&DMatrix::from_column_slice(big_n, 1, shock_mean.as_slice()));
         Some((

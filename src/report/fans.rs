@@ -57,8 +57,9 @@ pub fn display_path_value(setup: &Setup, path: &[f64], i: usize, t: usize) -> f6
     .unwrap_or(f64::NAN)
 }
 
-/// Fans of `paths` (each a stacked future path in model units).
-pub fn fans(setup: &Setup, paths: &[Vec<f64>], kind: Kind) -> Vec<FanRow> {
+/// Fans of `paths` (each a stacked future path in model units), optionally with a weight per
+/// path (normalised to sum to one).
+pub fn fans(setup: &Setup, paths: &[Vec<f64>], weights: Option<&[f64]>, kind: Kind) -> Vec<FanRow> {
     let h = setup.file.horizon;
     let last = setup.last_period();
     let mut rows = Vec::with_capacity(setup.n() * h);
@@ -67,14 +68,21 @@ pub fn fans(setup: &Setup, paths: &[Vec<f64>], kind: Kind) -> Vec<FanRow> {
         for t in 1..=h {
             values.clear();
             values.extend(paths.iter().map(|p| display_path_value(setup, p, i, t)));
+            let (mean, quantiles) = match weights {
+                None => (
+                    values.iter().sum::<f64>() / values.len().max(1) as f64,
+                    quantiles(&mut values),
+                ),
+                Some(w) => weighted(&values, w),
+            };
             rows.push(FanRow {
                 series: setup.names[i].clone(),
                 period: last.offset(t as i64),
                 horizon: t,
                 kind,
                 units: setup.display[i],
-                mean: values.iter().sum::<f64>() / values.len().max(1) as f64,
-                quantiles: quantiles(&mut values),
+                mean,
+                quantiles,
             });
         }
     }
@@ -99,6 +107,44 @@ pub fn quantiles(values: &mut [f64]) -> [f64; 7] {
     out
 }
 
+/// Weighted mean and quantiles (weights summing to one). A value with weight `w_k` sits at
+/// the middle of its probability block, `c_k = Σ_{j<k} w_j + w_k/2` after sorting, and
+/// quantiles interpolate linearly between these positions (clamped at the ends); with equal
+/// weights this is the "midpoint" rule, Hyndman and Fan (1996) type 5.
+pub fn weighted(values: &[f64], weights: &[f64]) -> (f64, [f64; 7]) {
+    let mut pairs: Vec<(f64, f64)> = values
+        .iter()
+        .copied()
+        .zip(weights.iter().copied())
+        .collect();
+    pairs.sort_by(|a, b| a.0.total_cmp(&b.0));
+    let total: f64 = pairs.iter().map(|p| p.1).sum();
+    let mean = pairs.iter().map(|(v, w)| v * w).sum::<f64>() / total;
+    let mut out = [f64::NAN; 7];
+    if pairs.is_empty() || total <= 0.0 {
+        return (f64::NAN, out);
+    }
+    let mut positions = Vec::with_capacity(pairs.len());
+    let mut acc = 0.0;
+    for (_, w) in &pairs {
+        positions.push((acc + 0.5 * w) / total);
+        acc += w;
+    }
+    for (o, q) in out.iter_mut().zip(QUANTILES) {
+        let k = positions.partition_point(|&c| c < q);
+        *o = if k == 0 {
+            pairs[0].0
+        } else if k == pairs.len() {
+            pairs[k - 1].0
+        } else {
+            let (c0, c1) = (positions[k - 1], positions[k]);
+            let f = if c1 > c0 { (q - c0) / (c1 - c0) } else { 0.0 };
+            pairs[k - 1].0 + f * (pairs[k].0 - pairs[k - 1].0)
+        };
+    }
+    (mean, out)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -113,5 +159,21 @@ mod tests {
         for (a, b) in q.iter().zip(expect) {
             assert!((a - b).abs() < 1e-12, "{q:?}");
         }
+    }
+
+    /// Equal weights: numpy.quantile(np.arange(10.0), [.05, .16, .25, .5, .75, .84, .95],
+    /// method="hazen") = [0, 1.1, 2, 4.5, 7, 7.9, 9] (position n·q − ½, clamped; by hand from
+    /// the definition). A value with twice the weight counts as two copies for the mean.
+    #[test]
+    fn weighted_quantiles_reduce_to_the_midpoint_rule() {
+        let v: Vec<f64> = (0..10).rev().map(f64::from).collect();
+        let (mean, q) = weighted(&v, &[0.1; 10]);
+        let expect = [0.0, 1.1, 2.0, 4.5, 7.0, 7.9, 9.0];
+        for (a, b) in q.iter().zip(expect) {
+            assert!((a - b).abs() < 1e-12, "{q:?}");
+        }
+        assert!((mean - 4.5).abs() < 1e-12);
+        let (mean, _) = weighted(&[1.0, 4.0], &[2.0 / 3.0, 1.0 / 3.0]);
+        assert!((mean - 2.0).abs() < 1e-12);
     }
 }

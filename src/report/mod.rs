@@ -1,10 +1,12 @@
-//! Tables written by the headless commands: `fans.csv`, `draws.csv` and `about.txt`
-//! (what was run, and the caution every forecast export carries).
+//! Tables written by the headless commands: `fans.csv`, `draws.csv`, `about.txt` (what was
+//! run, and the caution every forecast export carries) and `checks.json`.
 
+pub mod checks;
 pub mod fans;
 
 use std::path::Path;
 
+pub use checks::{check_text, write_checks_json};
 pub use fans::{FanRow, Kind, QUANTILES, fans};
 
 use crate::scenario::Setup;

@@ -1,0 +1,100 @@
+//! The check report as readable text (terminal, `about.txt`) and as JSON (`checks.json`).
+
+use std::path::Path;
+
+use super::{CAUTION, ReportError};
+use crate::checks::{CheckReport, Severity, Status};
+
+/// The report as indented lines under a `checks` heading.
+pub fn check_text(report: &CheckReport) -> String {
+    let mut s = Vec::new();
+    let verdict = match report.status {
+        Status::Clear => "clear: the conditions hold together without strain",
+        Status::Strained => "strained: the conditions hold together, but only improbably",
+        Status::Clashing => "CLASH: the conditions cannot hold together as written",
+    };
+    s.push(format!("checks     {verdict} (at {})", report.evaluated_at));
+    for f in &report.findings {
+        let tag = match f.severity {
+            Severity::Clash => "clash ",
+            Severity::Strain => "strain",
+        };
+        s.push(format!("  {tag}   {}", f.message));
+        if !f.conditions.is_empty() {
+            let named: Vec<String> = f.conditions.iter().map(|c| format!("'{c}'")).collect();
+            let where_ = if f.fields.is_empty() {
+                String::new()
+            } else {
+                format!(" [{}]", f.fields.join(", "))
+            };
+            let minimal = match f.minimal {
+                Some(true) => " (each one needed)",
+                Some(false) => " (search stopped at its budget; may not be the smallest set)",
+                None => "",
+            };
+            s.push(format!(
+                "           to blame: {}{where_}{minimal}",
+                named.join(", ")
+            ));
+        }
+        s.push(format!("           to resolve: {}", f.remedy));
+    }
+    if let Some(p) = &report.pins {
+        let worst =
+            p.z.iter()
+                .max_by(|a, b| a.1.abs().total_cmp(&b.1.abs()))
+                .map(|(l, z)| format!("; largest |z| {:.2} ('{l}')", z.abs()))
+                .unwrap_or_default();
+        s.push(format!(
+            "  pins     {} from the unconditional forecast: Mahalanobis distance {:.2} (d² = {:.2}, χ²({}) tail 10^{:.2}){worst}",
+            if p.pins == 1 { "1 pin".to_string() } else { format!("{} pins", p.pins) },
+            p.mahalanobis.sqrt(),
+            p.mahalanobis,
+            p.pins,
+            p.log10_tail
+        ));
+    }
+    if let Some(c) = &report.corridors {
+        s.push(format!(
+            "  corridors probability given the pins 10^{:.2} (relative error {:.1}%, {} proposals; never above 10^{:.2}); exact sampler accepts {:.2} of its proposals",
+            c.log10_probability,
+            100.0 * c.relative_error,
+            c.proposals,
+            c.log10_bound,
+            c.acceptance
+        ));
+    }
+    if let Some(p) = &report.plausibility {
+        s.push(format!(
+            "  plausibility divergence {:.3} nats (pins' mean {:.3}, shape {:.3}, corridors {:.3}; {:.3} per period), coin {:.3}:",
+            p.divergence, p.mean_part, p.shape_part, p.corridor_part, p.per_period, p.coin
+        ));
+        s.push(format!("           {}", p.reading));
+    }
+    for note in &report.notes {
+        s.push(format!("  note     {note}"));
+    }
+    s.join("\n")
+}
+
+/// `checks.json`: the report, with the caution.
+pub fn write_checks_json(path: &Path, report: &CheckReport) -> Result<(), ReportError> {
+    #[derive(serde::Serialize)]
+    struct Export<'a> {
+        #[serde(flatten)]
+        report: &'a CheckReport,
+        caution: &'static str,
+    }
+    let text = serde_json::to_string_pretty(&Export {
+        report,
+        caution: CAUTION,
+    })
+    .map_err(|e| ReportError::Io {
+        path: path.to_path_buf(),
+        error: std::io::Error::other(e),
+    })?;
+    std::fs::write(path, text + "\n").map_err(|error| ReportError::Io {
+        path: path.to_path_buf(),
+        error,
+    })
+}
