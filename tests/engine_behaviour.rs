@@ -185,3 +185,47 @@ fn cancelled_sampling_stops() {
     .unwrap_err();
     assert_eq!(err, ForecastError::Cancelled);
 }
+
+/// Reweighting (off by default): the same draws and paths, with weights per posterior draw;
+/// the unconditional fans are unchanged, the conditional ones move, and the effective sample
+/// size lies between 1 and the number of draws and is reported.
+#[test]
+fn reweighting_changes_only_the_conditional_fans() {
+    let conditions = r#"pins: [(series: "realgdp", period: "2010Q2", units: year_on_year, value: -3.0)],
+        corridors: [(series: "tbilrate", from: "2009Q4", to: "2010Q2", lower: 0.5)],
+        draws: 150, seed: 8"#;
+    let dir = tempfile::tempdir().unwrap();
+    let plain = write_scenario(&dir, &minnesota_scenario(conditions));
+    let mut setup = scenario::load(&plain).unwrap();
+    let a = run(&mut setup, &RunOptions::default()).unwrap();
+    assert!(a.effective_draws.is_none());
+    let dir2 = tempfile::tempdir().unwrap();
+    let weighted = write_scenario(
+        &dir2,
+        &minnesota_scenario(&format!("{conditions}, reweight: true")),
+    );
+    let mut setup = scenario::load(&weighted).unwrap();
+    let b = run(&mut setup, &RunOptions::default()).unwrap();
+    let ess = b.effective_draws.unwrap();
+    assert!((1.0..=150.0).contains(&ess), "{ess}");
+    assert_eq!(a.paths.conditional, b.paths.conditional);
+    let (uncond_a, uncond_b): (Vec<_>, Vec<_>) = (
+        a.fans
+            .iter()
+            .filter(|r| r.kind == tiltyard::report::Kind::Unconditional)
+            .collect(),
+        b.fans
+            .iter()
+            .filter(|r| r.kind == tiltyard::report::Kind::Unconditional)
+            .collect(),
+    );
+    assert_eq!(uncond_a, uncond_b);
+    let moved = a
+        .fans
+        .iter()
+        .zip(&b.fans)
+        .filter(|(x, y)| x.kind == tiltyard::report::Kind::Conditional && x.mean != y.mean)
+        .count();
+    assert!(moved > 0);
+    assert!(tiltyard::run::summary(&setup, &b).contains("effective sample size"));
+}

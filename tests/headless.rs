@@ -136,3 +136,91 @@ fn documented_example_runs() {
         String::from_utf8_lossy(&out.stderr)
     );
 }
+
+/// `check` on the demo: the adverse scenario is strained (exit 0) and its checks.json names the
+/// findings; the clashing one exits with status 2, names the pin and the corridor, and `run`
+/// refuses to sample it (no fans.csv).
+#[test]
+fn check_command_reports_strain_and_clash() {
+    let out = tempfile::tempdir().unwrap();
+    let strained = tiltyard()
+        .args(["check", &demo("adverse.ron"), "--out"])
+        .arg(out.path())
+        .output()
+        .unwrap();
+    let stdout = String::from_utf8_lossy(&strained.stdout);
+    assert!(strained.status.success(), "{stdout}");
+    assert!(stdout.contains("strained") && stdout.contains("not predictions or advice"));
+    let json: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.path().join("checks.json")).unwrap())
+            .unwrap();
+    assert_eq!(json["status"], "strained");
+    assert!(
+        json["caution"]
+            .as_str()
+            .unwrap()
+            .contains("not predictions")
+    );
+    assert!(json["corridors"]["log10_probability"].as_f64().unwrap() < -3.0);
+    assert!(json["plausibility"]["coin"].as_f64().unwrap() > 0.5);
+
+    let clash = tiltyard()
+        .args(["check", &demo("clash.ron"), "--out"])
+        .arg(out.path())
+        .output()
+        .unwrap();
+    assert_eq!(clash.status.code(), Some(2));
+    // The README shows this report: its lines are what the command prints.
+    let readme =
+        std::fs::read_to_string(Path::new(env!("CARGO_MANIFEST_DIR")).join("README.md")).unwrap();
+    let shown = readme
+        .split("$ tiltyard check scenarios-demo/clash.ron\n")
+        .nth(1)
+        .and_then(|rest| rest.split("```").next())
+        .expect("the README shows the clash report");
+    let printed = String::from_utf8_lossy(&clash.stdout);
+    for line in shown.lines() {
+        assert!(
+            printed.contains(line),
+            "README line not printed: {line}\n{printed}"
+        );
+    }
+    let json: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.path().join("checks.json")).unwrap())
+            .unwrap();
+    assert_eq!(json["status"], "clashing");
+    assert_eq!(json["findings"][0]["kind"], "pin_outside_corridor");
+    assert_eq!(
+        json["findings"][0]["fields"],
+        serde_json::json!(["pins[2]", "corridors[1]"])
+    );
+
+    let run_dir = tempfile::tempdir().unwrap();
+    let refused = tiltyard()
+        .args(["run", &demo("clash.ron"), "--out"])
+        .arg(run_dir.path())
+        .output()
+        .unwrap();
+    assert_eq!(refused.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&refused.stdout).contains("nothing sampled"));
+    assert!(!run_dir.path().join("fans.csv").exists());
+    assert!(run_dir.path().join("checks.json").exists());
+}
+
+/// The adverse demo with corridors runs: every corridor met, the summary carries the checks.
+#[test]
+fn adverse_demo_with_corridors_runs() {
+    let out = tempfile::tempdir().unwrap();
+    let run = tiltyard()
+        .args(["run", &demo("adverse.ron"), "--draws", "100", "--out"])
+        .arg(out.path())
+        .output()
+        .unwrap();
+    let stdout = String::from_utf8_lossy(&run.stdout);
+    assert!(run.status.success(), "{stdout}");
+    assert!(
+        stdout.contains("3 corridors met in every path (largest violation 0.0e0)"),
+        "{stdout}"
+    );
+    assert!(stdout.contains("plausibility"));
+}

@@ -194,3 +194,35 @@ fn all_shocks_as_drivers_equals_plain_conditioning() {
     assert!((&m1 - &m2).amax() < EXACT * m2.amax());
     assert!(rel_err(&c1, &c2) < EXACT);
 }
+
+/// `ln p(r | θ)`, the weight of a parameter draw under reweighting (ALGORITHMS §8.4), equals
+/// the Gaussian log density of the fixture's unscaled pin rows `R y = r` under numpy's
+/// unconditional mean and covariance: `−½ (m ln 2π + ln|RCR'| + r̃'(RCR')⁻¹r̃)`, `r̃ = r − Rμ`.
+/// Includes a shock pin, whose row scale depends on θ.
+#[test]
+fn pin_log_density_matches_numpy() {
+    let fx = json("pins_gaussian.json");
+    let mu = vector(&fx["uncond_mean"]);
+    let c = matrix(&fx["uncond_cov"]);
+    for case in fx["cases"].as_array().unwrap() {
+        let name = case["name"].as_str().unwrap();
+        let dir = tempfile::tempdir().unwrap();
+        let setup = case_setup(&fx, case, &dir);
+        let theta = theta_of(&setup);
+        let plan = Plan::new(&theta, &setup.conditions().unwrap(), None).unwrap();
+        let r_rows = matrix(&case["rows"]["R"]);
+        let r = vector(&case["rows"]["r"]);
+        let g = &r_rows * &c * r_rows.transpose();
+        let rt = &r - &r_rows * &mu;
+        let chol = g.clone().cholesky().unwrap();
+        let logdet: f64 = 2.0 * chol.l().diagonal().iter().map(|d| d.ln()).sum::<f64>();
+        let m = r.len() as f64;
+        let want =
+            -0.5 * (m * (2.0 * std::f64::consts::PI).ln() + logdet + rt.dot(&chol.solve(&rt)));
+        let got = plan.pin_log_density();
+        assert!(
+            (got - want).abs() < EXACT * want.abs().max(1.0),
+            "{name}: {got} vs {want}"
+        );
+    }
+}

@@ -189,3 +189,20 @@ pub fn normalise(log_weights: &[f64]) -> (Vec<f64>, f64) {
     let sq: f64 = w.iter().map(|x| x * x).sum();
     (w.iter().map(|x| x / sum).collect(), sum * sum / sq)
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Kish's effective sample size: `n` for equal weights, 1 when one weight dominates, and
+    /// `(Σω)²/Σω²` in between (here ω = (1, 1, 2): 16/6).
+    #[test]
+    fn effective_sample_size() {
+        let (w, ess) = normalise(&[0.3; 5]);
+        assert!((ess - 5.0).abs() < 1e-12 && w.iter().all(|x| (x - 0.2).abs() < 1e-15));
+        let (_, ess) = normalise(&[0.0, -800.0, -900.0]);
+        assert!((ess - 1.0).abs() < 1e-12);
+        let (w, ess) = normalise(&[0.0, 0.0, 2f64.ln()]);
+        assert!((ess - 16.0 / 6.0).abs() < 1e-12 && (w[2] - 0.5).abs() < 1e-15);
+    }
+}

@@ -265,7 +265,8 @@ impl Plan {
     }
 
     /// `ln p(r | θ) = −½ (m ln 2π + ln|G| + r̃'G⁻¹r̃)`: the density of the pinned values under
-    /// the unconditional forecast (ALGORITHMS §8.4).
+    /// the unconditional forecast (ALGORITHMS §8.4), in the rows' own (unscaled) units — the
+    /// scale of a shock pin's row depends on θ, so it must not be left in the weight.
     pub fn pin_log_density(&self) -> f64 {
         let m = self.pin_count();
         if m == 0 {
@@ -276,7 +277,8 @@ impl Plan {
             Some(c) => {
                 let logdet: f64 = 2.0 * c.l().diagonal().iter().map(|d| d.ln()).sum::<f64>();
                 let d2 = self.rtilde.dot(&c.solve(&self.rtilde));
-                -0.5 * (m as f64 * (2.0 * std::f64::consts::PI).ln() + logdet + d2)
+                let jacobian: f64 = self.rows.pin_norms.iter().map(|c| c.ln()).sum();
+                -0.5 * (m as f64 * (2.0 * std::f64::consts::PI).ln() + logdet + d2) - jacobian
             }
             None => f64::NEG_INFINITY,
         }

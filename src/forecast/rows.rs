@@ -55,6 +55,9 @@ pub struct Rows {
     pub pins: DMatrix<f64>,
     pub values: DVector<f64>,
     pub pin_labels: Vec<String>,
+    /// Euclidean norms of the kept pin rows before scaling (for densities in the pins' own
+    /// units).
+    pub pin_norms: Vec<f64>,
     /// Kept corridor rows `S` (q×N) and their bounds `a`, `b`, with their labels.
     pub corridors: DMatrix<f64>,
     pub lower: DVector<f64>,
@@ -72,6 +75,8 @@ pub struct Rows {
 /// One scaled row with its value (pins) or bounds (corridors) and label.
 struct Raw {
     row: DVector<f64>,
+    /// Norm before scaling.
+    norm: f64,
     lower: f64,
     upper: f64,
     label: String,
@@ -98,6 +103,7 @@ fn raw(theta: &Theta, target: &Target, lower: f64, upper: f64, label: String) ->
     let scale = if norm > 0.0 { 1.0 / norm } else { 1.0 };
     Raw {
         row: row * scale,
+        norm,
         lower: (lower + offset) * scale,
         upper: (upper + offset) * scale,
         label,
@@ -298,6 +304,7 @@ impl Rows {
         Ok(Rows {
             pins: pin_rows,
             values: pin_values,
+            pin_norms: kept_pins.iter().map(|p| p.norm).collect(),
             pin_labels: kept_pins.into_iter().map(|p| p.label).collect(),
             corridors: corridor_rows,
             lower,
