@@ -7,7 +7,10 @@ use std::time::{Duration, Instant};
 
 use crate::checks::{CheckReport, Finding, Severity, check_conditions};
 use crate::forecast::{
-    ForecastError, ParamSource, PathSet, Plan, Sampling, Theta, build_thetas, normalise,
+    ForecastError, ParamSource, PathSet, Plan, Sampling, Theta, build_thetas,
+    engine::ACCEPTANCE_PROPOSALS,
+    normalise,
+    random::{Purpose, stream},
     sample_paths,
 };
 use crate::model::FitSummary;
@@ -73,8 +76,9 @@ fn central_theta(setup: &Setup, source: &ParamSource) -> Result<(Theta, String),
 }
 
 /// Check a loaded scenario: every invalid condition is a clash naming its field; the rest are
-/// checked at the posterior mean (or the fixed coefficients); with drivers and parameter
-/// uncertainty the rank condition is also re-checked on a few posterior draws.
+/// checked at the posterior mean (or the fixed coefficients); with parameter uncertainty they
+/// are also re-checked on a few posterior draws (the drivers' rank condition, near dependence
+/// and the corridor sampler's acceptance can change from draw to draw).
 pub fn check(setup: &Setup) -> Result<CheckReport, RunError> {
     let (source, _) = setup.estimate()?;
     let (conditions, problems) = setup.read_conditions();
@@ -110,9 +114,7 @@ pub fn check(setup: &Setup) -> Result<CheckReport, RunError> {
         &at,
         invalid,
     );
-    if let (ParamSource::Posterior(_), Some(_), false) =
-        (&source, &conditions.drivers, report.clashes())
-    {
+    if let (ParamSource::Posterior(_), false) = (&source, report.clashes()) {
         let cancel = AtomicBool::new(false);
         let set = build_thetas(
             &source,
@@ -123,14 +125,28 @@ pub fn check(setup: &Setup) -> Result<CheckReport, RunError> {
             setup.file.seed,
             &cancel,
         )?;
-        let failing: Vec<usize> = (0..set.thetas.len())
-            .filter(|&i| Plan::new(&set.thetas[i], &conditions, Some(i)).is_err())
+        let settings = &setup.file.checks;
+        let fails = |i: usize| -> Option<ForecastError> {
+            let plan = match Plan::new(&set.thetas[i], &conditions, Some(i)) {
+                Ok(plan) => plan,
+                Err(e) => return Some(e),
+            };
+            let mut rng = stream(setup.file.seed, Purpose::Acceptance, i as u64);
+            match plan.acceptance(&mut rng, ACCEPTANCE_PROPOSALS) {
+                Ok(Some(a)) if a < settings.min_acceptance => Some(ForecastError::TooImprobable {
+                    corridors: plan.corridor_names(),
+                    acceptance: a,
+                    draw: Some(i),
+                }),
+                Ok(_) => None,
+                Err(e) => Some(e),
+            }
+        };
+        let failing: Vec<(usize, ForecastError)> = (0..set.thetas.len())
+            .filter_map(|i| fails(i).map(|e| (i, e)))
             .collect();
-        if let Some(&first) = failing.first() {
-            let e = Plan::new(&set.thetas[first], &conditions, Some(first))
-                .err()
-                .map(|e| e.to_string())
-                .unwrap_or_default();
+        if let Some((_, first)) = failing.first() {
+            let e = first.to_string();
             report.findings.push(Finding {
                 severity: Severity::Clash,
                 kind: "fails_in_posterior_draws".into(),
@@ -198,6 +214,7 @@ pub fn run(setup: &mut Setup, options: &RunOptions) -> Result<RunOutcome, RunErr
         paths_per_theta,
         seed: file.seed,
         reweight: file.reweight,
+        min_acceptance: file.checks.min_acceptance,
     };
     let paths = sample_paths(&set, 0..set.thetas.len(), &conditions, how, &cancel)?;
     // Reweighting: each θ's weight shared by its paths; the unconditional fans keep p(θ | data).
@@ -284,6 +301,7 @@ pub fn summary(setup: &Setup, out: &RunOutcome) -> String {
     let corridors = file.corridors.iter().filter(|c| c.active).count();
     let drivers = match &file.drivers {
         None => "all shocks drive".to_string(),
+        Some(d) if d.is_empty() => "no shocks drive".to_string(),
         Some(d) => format!("drivers: {}", d.join(", ")),
     };
     let met = |ok: bool| {
@@ -293,10 +311,19 @@ pub fn summary(setup: &Setup, out: &RunOutcome) -> String {
             "NOT MET to tolerance"
         }
     };
+    let plural = |k: usize, one: &str| {
+        if k == 1 {
+            format!("1 {one}")
+        } else {
+            format!("{k} {one}s")
+        }
+    };
     s.push(format!(
-        "conditions {pins} pins {} (largest relative error {:.1e}); {corridors} corridors {} (largest violation {:.1e}); {drivers}",
+        "conditions {} {} (largest relative error {:.1e}); {} {} (largest violation {:.1e}); {drivers}",
+        plural(pins, "pin"),
         met(out.paths.max_pin_error <= PIN_TOLERANCE),
         out.paths.max_pin_error,
+        plural(corridors, "corridor"),
         met(out.paths.max_corridor_violation <= PIN_TOLERANCE),
         out.paths.max_corridor_violation
     ));

@@ -239,6 +239,7 @@ fn sampled_paths_match_rejection_sampling() {
         let setup = case_setup(&fx, case, &dir);
         let set = ThetaSet {
             thetas: vec![theta_of(&setup)],
+            fixed: true,
             explosive: 0,
             median_root: f64::NAN,
         };
@@ -246,6 +247,7 @@ fn sampled_paths_match_rejection_sampling() {
             paths_per_theta: PATHS,
             seed: 9,
             reweight: false,
+            min_acceptance: 1e-5,
         };
         let cond = setup.conditions().unwrap();
         let out = sample_paths(&set, 0..1, &cond, how, &AtomicBool::new(false)).unwrap();

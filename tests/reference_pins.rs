@@ -110,6 +110,7 @@ fn sampled_paths_match_numpy_within_monte_carlo_error() {
         let setup = case_setup(&fx, case, &dir);
         let set = ThetaSet {
             thetas: vec![theta_of(&setup)],
+            fixed: true,
             explosive: 0,
             median_root: f64::NAN,
         };
@@ -118,6 +119,7 @@ fn sampled_paths_match_numpy_within_monte_carlo_error() {
             paths_per_theta: paths,
             seed: 5,
             reweight: false,
+            min_acceptance: 1e-5,
         };
         let out = sample_paths(&set, 0..1, &cond, how, &AtomicBool::new(false)).unwrap();
         let name = case["name"].as_str().unwrap();

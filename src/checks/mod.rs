@@ -21,7 +21,7 @@ use crate::forecast::{
     random::{Purpose, stream},
 };
 use crate::scenario::CheckSettings;
-use crate::truncnorm::Probability;
+use crate::truncnorm::{Probability, SolveStatus};
 pub use strain::{CorridorStrain, PinStrain, Plausibility};
 
 /// How bad a finding is.
@@ -98,14 +98,12 @@ const FIRST_PROPOSALS: usize = 2_000;
 const MAX_PROPOSALS: usize = 64_000;
 const TARGET_REL_ERR: f64 = 0.02;
 /// Proposals per corridor-probability estimate inside blame searches and per non-driver draw.
-const QUICK_PROPOSALS: usize = 1_000;
+const QUICK_PROPOSALS: usize = 2_000;
 /// Non-driver shock draws averaged over for the drivers' corridor part of the divergence and
 /// for the sampler's acceptance.
 const NONDRIVER_DRAWS: usize = 32;
-/// Eigenvalues of the shock covariance below this count as zero (pinned directions).
-const ZERO_EIGENVALUE: f64 = 1e-8;
 /// A condition Gram matrix (unit diagonal) with a condition number above this is flagged as
-/// nearly redundant (ALGORITHMS §9.1 item 7).
+/// nearly redundant (ALGORITHMS §9.1 item 7); above 1e12 the plan refuses the conditions.
 const NEARLY_REDUNDANT: f64 = 1e10;
 
 /// Check a set of conditions for one θ. `extra` findings (from the scenario layer: bad
@@ -161,9 +159,24 @@ pub fn check_conditions(
         }
         report.pins = Some(PinStrain::new(z, d2));
     }
-    let mut ln_corridor = 0.0;
-    match corridor_strain(&plan, seed) {
-        Ok(Some((strain, ln_p))) => {
+    // With drivers, the sampler's own law depends on the non-driver shocks: one fixed set of
+    // their draws serves the acceptance and the corridor part of the divergence.
+    let own = if plan.corridor_count() > 0 && plan.nondriver_count() > 0 {
+        match nondriver_estimates(&plan, seed) {
+            Ok(v) => Some(v),
+            Err(e) => {
+                report
+                    .findings
+                    .push(clash_finding(theta, cond, &e, settings));
+                return report.settle();
+            }
+        }
+    } else {
+        None
+    };
+    let mut corridor_ok = true;
+    match corridor_strain(&plan, own.as_deref(), seed) {
+        Ok(Some(strain)) => {
             if strain.acceptance < settings.min_acceptance {
                 report.findings.push(Finding {
                     severity: Severity::Clash,
@@ -178,67 +191,69 @@ pub fn check_conditions(
                     minimal: None,
                 });
             }
-            ln_corridor = ln_p;
             report.corridors = Some(strain);
         }
         Ok(None) => {}
-        Err(e) => report
-            .findings
-            .push(clash_finding(theta, cond, &e, settings)),
+        Err(e) => {
+            corridor_ok = false;
+            report
+                .findings
+                .push(clash_finding(theta, cond, &e, settings));
+        }
     }
-    if strained(&report, settings) {
+    let strains = strain_findings(theta, cond, &report, settings, seed);
+    report.findings.extend(strains);
+    let finite = report
+        .corridors
+        .as_ref()
+        .is_none_or(|c| c.log10_probability.is_finite());
+    if corridor_ok && finite {
+        match plausibility(theta, &plan, &report, own.as_deref()) {
+            Ok(p) => report.plausibility = Some(p),
+            Err(e) => report.notes.push(format!("plausibility not computed: {e}")),
+        }
+    } else {
         report
-            .findings
-            .push(strain_finding(theta, cond, &report, settings, seed));
-    }
-    match plausibility(theta, &plan, -ln_corridor, seed) {
-        Ok(p) => report.plausibility = Some(p),
-        Err(e) => report.notes.push(format!("plausibility not computed: {e}")),
+            .notes
+            .push("plausibility not computed: the corridors' probability is unknown".into());
     }
     report.settle()
 }
 
-/// Whether the pins' joint tail or the corridors' probability is below its threshold.
-fn strained(report: &CheckReport, settings: &CheckSettings) -> bool {
-    let pins = report
-        .pins
-        .as_ref()
-        .is_some_and(|p| p.log10_tail < settings.pin_tail.log10());
-    let corridors = report
-        .corridors
-        .as_ref()
-        .is_some_and(|c| c.log10_probability < settings.corridor_probability.log10());
-    pins || corridors
-}
-
 /// `ln ℓ̂` of the corridors given the pins (model law, every shock free), with the doubling
-/// rule; and the acceptance of this plan's own sampler.
-fn corridor_strain(plan: &Plan, seed: u64) -> Result<Option<(CorridorStrain, f64)>, ForecastError> {
+/// rule; and the acceptance of this plan's own sampler (drivers: averaged over `own`).
+fn corridor_strain(
+    plan: &Plan,
+    own: Option<&[Probability]>,
+    seed: u64,
+) -> Result<Option<CorridorStrain>, ForecastError> {
     let Some(law) = plan.model_law()? else {
         return Ok(None);
     };
+    let fallback = law.status() == SolveStatus::Fallback;
     let mut rng = stream(seed, Purpose::Checks, 0);
     let mut n = FIRST_PROPOSALS;
     let mut est = law.probability(&[], &mut rng, n)?;
-    while est.rel_err > TARGET_REL_ERR && n < MAX_PROPOSALS {
+    // (A zero estimate has no relative error: keep doubling then too.)
+    while (est.rel_err.is_nan() || est.rel_err > TARGET_REL_ERR) && n < MAX_PROPOSALS {
         n *= 2;
         est = law.probability(&[], &mut rng, n)?;
     }
-    let acceptance = if plan.nondriver_count() == 0 {
-        est.acceptance()
-    } else {
-        let estimates = nondriver_estimates(plan, seed)?;
-        estimates.iter().map(|p| p.acceptance()).sum::<f64>() / estimates.len().max(1) as f64
+    let acceptance = match own {
+        None => est.acceptance(),
+        Some(estimates) => {
+            estimates.iter().map(|p| p.acceptance()).sum::<f64>() / estimates.len().max(1) as f64
+        }
     };
     let ln10 = std::f64::consts::LN_10;
-    let strain = CorridorStrain {
+    Ok(Some(CorridorStrain {
         log10_probability: est.ln / ln10,
         relative_error: est.rel_err,
         log10_bound: est.ln_bound / ln10,
         acceptance,
         proposals: est.proposals,
-    };
-    Ok(Some((strain, est.ln)))
+        saddle_point_found: !fallback,
+    }))
 }
 
 /// The plan's own corridor probability for a fixed set of non-driver shock draws.
@@ -258,22 +273,23 @@ fn nondriver_estimates(plan: &Plan, seed: u64) -> Result<Vec<Probability>, Forec
 
 /// `D = D_mean + D_shape + D_corr` (ALGORITHMS §9.2). The shock covariance `A A'` with
 /// `A = I − U F_R` is the identity outside `span[U, F_R']`, so its non-unit eigenvalues come
-/// from that small subspace. With drivers the corridor part averages `−ln ℓ(ε_J̄)` over draws
-/// of the non-driver shocks; with every shock free it is `−ln ℓ`.
+/// from that small subspace; exactly `m` of them are the pinned directions (zero), and are
+/// left out. With drivers the corridor part averages `−ln ℓ(ε_J̄)` over draws of the
+/// non-driver shocks (`own`); with every shock free it is `−ln ℓ` of the report.
 fn plausibility(
     theta: &Theta,
     plan: &Plan,
-    corridor_all_free: f64,
-    seed: u64,
+    report: &CheckReport,
+    own: Option<&[Probability]>,
 ) -> Result<Plausibility, ForecastError> {
     let law = plan.pin_shock_law(theta)?;
     let (u, fr) = (&law.gain, &law.rows);
     let mean_part = 0.5 * law.mean.norm_squared();
-    let shape_part = if plan.pin_count() == 0 {
+    let m = plan.pin_count();
+    let shape_part: f64 = if m == 0 {
         0.0
     } else {
         let big_n = theta.len();
-        let m = plan.pin_count();
         let mut w = DMatrix::zeros(big_n, 2 * m);
         w.columns_mut(0, m).copy_from(u);
         w.columns_mut(m, m).copy_from(&fr.transpose());
@@ -281,26 +297,30 @@ fn plausibility(
         // A'Q = Q − F_R'(U'Q).
         let atq = &q - fr.transpose() * (u.transpose() * &q);
         let small = atq.transpose() * atq;
-        SymmetricEigen::new(small)
+        let mut eig: Vec<f64> = SymmetricEigen::new(small)
             .eigenvalues
             .iter()
-            .filter(|&&l| l > ZERO_EIGENVALUE)
-            .map(|&l| 0.5 * (l - 1.0 - l.ln()))
+            .copied()
+            .collect();
+        eig.sort_by(f64::total_cmp);
+        eig.iter()
+            .skip(m)
+            .map(|&l| 0.5 * (l - 1.0 - l.max(f64::MIN_POSITIVE).ln()))
             .sum()
     };
-    let corridor_part = if plan.corridor_count() == 0 {
-        0.0
-    } else if plan.nondriver_count() == 0 {
-        corridor_all_free
-    } else {
-        let estimates = nondriver_estimates(plan, seed)?;
-        -estimates.iter().map(|p| p.ln).sum::<f64>() / estimates.len().max(1) as f64
+    let corridor_part = match (&report.corridors, own) {
+        (None, _) => 0.0,
+        (Some(_), Some(estimates)) => {
+            -estimates.iter().map(|p| p.ln).sum::<f64>() / estimates.len().max(1) as f64
+        }
+        (Some(c), None) => -c.log10_probability * std::f64::consts::LN_10,
     };
     Ok(Plausibility::new(
         mean_part,
         shape_part.max(0.0),
-        corridor_part,
+        corridor_part.max(0.0),
         theta.h,
+        own.is_some(),
     ))
 }
 
@@ -370,10 +390,10 @@ fn describe(e: &ForecastError) -> (&'static str, Vec<String>, &'static str) {
             vec![corridor.clone()],
             "make the lower bound smaller than the upper bound",
         ),
-        ForecastError::NearlyDependent { condition } => (
+        ForecastError::NearlyDependent { conditions, .. } => (
             "nearly_redundant",
-            vec![condition.clone()],
-            "remove the condition or the ones it repeats",
+            conditions.clone(),
+            "remove the condition that (nearly) repeats the others",
         ),
         ForecastError::TooImprobable { corridors, .. } => (
             "too_improbable_to_sample",
@@ -417,74 +437,84 @@ fn clash_finding(
     }
 }
 
-/// The strain finding: the conditions that together make the scenario improbable, found by
-/// the deletion filter on "pins' tail below its threshold, or corridors' probability below
-/// its threshold", trying the least surprising pins first.
-fn strain_finding(
+/// Strain findings, each with the conditions to blame found by the deletion filter: the pins
+/// jointly far out (test: their χ² tail below `pin_tail`; only pins are candidates, the least
+/// surprising tried first), and the corridors improbable given the pins (test: their
+/// probability below `corridor_probability`; every condition is a candidate, since pins shift
+/// the corridors). The tests of one search reuse one random stream (common random numbers).
+fn strain_findings(
     theta: &Theta,
     cond: &Conditions,
     report: &CheckReport,
     settings: &CheckSettings,
     seed: u64,
-) -> Finding {
-    let fails = |keep: &[usize]| -> bool {
-        let sub = cond.subset(keep);
-        let Ok(plan) = Plan::new(theta, &sub, None) else {
-            return true;
+) -> Vec<Finding> {
+    let mut out = Vec::new();
+    let labels = cond.labels();
+    if let Some(p) = report
+        .pins
+        .as_ref()
+        .filter(|p| p.log10_tail < settings.pin_tail.log10())
+    {
+        let fails = |keep: &[usize]| -> bool {
+            Plan::new(theta, &cond.subset(keep), None).is_ok_and(|plan| {
+                let (z, d2) = plan.pin_surprise();
+                !z.is_empty() && strain::ln_chi2_tail(z.len(), d2) < settings.pin_tail.ln()
+            })
         };
-        if plan.pin_count() > 0 {
-            let (z, d2) = plan.pin_surprise();
-            if strain::ln_chi2_tail(z.len(), d2) < settings.pin_tail.ln() {
-                return true;
-            }
-        }
-        match plan.model_law() {
-            Ok(Some(law)) => {
-                // Common random numbers across the tests of one search.
-                let mut rng = stream(seed, Purpose::Checks, 2);
-                law.probability(&[], &mut rng, QUICK_PROPOSALS)
-                    .is_ok_and(|p| p.ln < settings.corridor_probability.ln())
-            }
-            _ => false,
-        }
-    };
-    let mut order: Vec<usize> = (0..cond.len()).collect();
-    if let Some(p) = &report.pins {
-        // Least surprising pins first (|z|), then the corridors.
         let z_of = |i: usize| {
             p.z.iter()
                 .find(|(l, _)| *l == cond.pins[i].label)
                 .map_or(0.0, |(_, z)| z.abs())
         };
-        order[..cond.pins.len()].sort_by(|&a, &b| z_of(a).total_cmp(&z_of(b)));
+        let mut order: Vec<usize> = (0..cond.pins.len()).collect();
+        order.sort_by(|&a, &b| z_of(a).total_cmp(&z_of(b)));
+        let b = blame::deletion_filter(&order, settings.blame_budget, fails);
+        let conditions: Vec<String> = b.set.iter().map(|&i| labels[i].clone()).collect();
+        out.push(Finding {
+            severity: Severity::Strain,
+            kind: "pins_far_from_forecast".into(),
+            fields: fields_of(cond, &conditions),
+            message: format!(
+                "the pins are jointly {:.1} standard deviations from the unconditional forecast (χ² tail 10^{:.1})",
+                p.mahalanobis.sqrt(),
+                p.log10_tail
+            ),
+            remedy: "move the pins named here towards the unconditional forecast, or keep them knowing the scenario is far in the tails".into(),
+            conditions,
+            minimal: Some(b.minimal),
+        });
     }
-    let b = blame::deletion_filter(&order, settings.blame_budget, fails);
-    let labels = cond.labels();
-    let conditions: Vec<String> = b.set.iter().map(|&i| labels[i].clone()).collect();
-    let mut what = Vec::new();
-    if let Some(p) = &report.pins {
-        what.push(format!(
-            "the pins are jointly {:.1} standard deviations out (χ² tail 10^{:.1})",
-            p.mahalanobis.sqrt(),
-            p.log10_tail
-        ));
+    if let Some(c) = report
+        .corridors
+        .as_ref()
+        .filter(|c| c.log10_probability < settings.corridor_probability.log10())
+    {
+        let fails = |keep: &[usize]| -> bool {
+            let Ok(plan) = Plan::new(theta, &cond.subset(keep), None) else {
+                return false;
+            };
+            let mut rng = stream(seed, Purpose::Checks, 2);
+            matches!(plan.model_law(), Ok(Some(law)) if law
+                .probability(&[], &mut rng, QUICK_PROPOSALS)
+                .is_ok_and(|p| p.ln < settings.corridor_probability.ln()))
+        };
+        let order: Vec<usize> = (0..cond.len()).collect();
+        let b = blame::deletion_filter(&order, settings.blame_budget, fails);
+        let conditions: Vec<String> = b.set.iter().map(|&i| labels[i].clone()).collect();
+        out.push(Finding {
+            severity: Severity::Strain,
+            kind: "corridors_improbable".into(),
+            fields: fields_of(cond, &conditions),
+            message: format!(
+                "the corridors hold with probability 10^{:.1} given the pins (every shock free)",
+                c.log10_probability
+            ),
+            remedy: "widen or move the corridors named here, or the pins that push against them"
+                .into(),
+            conditions,
+            minimal: Some(b.minimal),
+        });
     }
-    if let Some(c) = &report.corridors {
-        what.push(format!(
-            "the corridors hold with probability 10^{:.1} given the pins",
-            c.log10_probability
-        ));
-    }
-    Finding {
-        severity: Severity::Strain,
-        kind: "improbable_scenario".into(),
-        fields: fields_of(cond, &conditions),
-        message: format!(
-            "the conditions hold together only improbably: {}",
-            what.join("; ")
-        ),
-        remedy: "loosen or move the conditions named here, or keep them knowing the scenario is far in the tails".into(),
-        conditions,
-        minimal: Some(b.minimal),
-    }
+    out
 }

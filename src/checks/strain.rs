@@ -94,6 +94,9 @@ pub struct CorridorStrain {
     /// Share of proposals the exact sampler accepts (drivers: averaged over non-driver shocks).
     pub acceptance: f64,
     pub proposals: usize,
+    /// False when the minimax saddle point was not found: sampling stays exact but accepts
+    /// only as often as plain rejection would.
+    pub saddle_point_found: bool,
 }
 
 /// The plausibility of the scenario's shocks.
@@ -102,6 +105,9 @@ pub struct Plausibility {
     pub mean_part: f64,
     pub shape_part: f64,
     pub corridor_part: f64,
+    /// True when the corridor part is under the drivers' law (only drivers move for the
+    /// corridors), averaged over the other shocks; false when every shock is free.
+    pub corridor_part_with_drivers: bool,
     /// `D`, in nats.
     pub divergence: f64,
     /// `D / h`.
@@ -113,13 +119,20 @@ pub struct Plausibility {
 }
 
 impl Plausibility {
-    pub fn new(mean_part: f64, shape_part: f64, corridor_part: f64, horizon: usize) -> Self {
+    pub fn new(
+        mean_part: f64,
+        shape_part: f64,
+        corridor_part: f64,
+        horizon: usize,
+        corridor_part_with_drivers: bool,
+    ) -> Self {
         let divergence = mean_part + shape_part + corridor_part;
         let q = coin(divergence);
         Plausibility {
             mean_part,
             shape_part,
             corridor_part,
+            corridor_part_with_drivers,
             divergence,
             per_period: divergence / horizon.max(1) as f64,
             coin: q,

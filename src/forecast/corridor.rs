@@ -7,14 +7,23 @@
 //! path, and the saddle point is solved again for the shifted box (warm-started, same variable
 //! order). Draws come from [`crate::truncnorm::TruncatedNormal`], so they are exact.
 
+use std::borrow::Cow;
+
 use nalgebra::{DMatrix, DVector};
 use rand::Rng;
 
 use super::{ForecastError, rows::Extra};
-use crate::truncnorm::{Probability, TruncError, TruncatedNormal};
+use crate::truncnorm::{Probability, SolveStatus, TruncError, TruncatedNormal};
 
-/// Proposals allowed for one path before the corridors count as too improbable to sample.
-pub const MAX_PROPOSALS: usize = 2_000_000;
+/// Work allowed for one path (multiply–adds, about a second on one core) before the corridors
+/// count as too improbable to sample; a proposal costs about `d²/2 + 20 d`.
+const MAX_WORK: f64 = 2e9;
+
+/// Proposals allowed per path for `d` corridor quantities.
+fn budget(d: usize) -> usize {
+    let per = (d * d) as f64 / 2.0 + 20.0 * d as f64;
+    ((MAX_WORK / per) as usize).clamp(10_000, 2_000_000)
+}
 
 #[derive(Debug, Clone)]
 pub struct CorridorLaw {
@@ -26,7 +35,18 @@ pub struct CorridorLaw {
     /// The truncated normal at mean `m₀`.
     base: TruncatedNormal,
     extra: Vec<Extra>,
+    /// Label of each row, and the corridors they belong to (each once).
     labels: Vec<String>,
+    names: Vec<String>,
+}
+
+/// The rows of a corridor law: bounds, extra inequalities, and each row's label and corridor.
+pub struct LawRows {
+    pub lower: DVector<f64>,
+    pub upper: DVector<f64>,
+    pub extra: Vec<Extra>,
+    pub labels: Vec<String>,
+    pub names: Vec<String>,
 }
 
 impl CorridorLaw {
@@ -34,34 +54,46 @@ impl CorridorLaw {
         cov: DMatrix<f64>,
         mean: DVector<f64>,
         shift: Option<DMatrix<f64>>,
-        (lower, upper): (DVector<f64>, DVector<f64>),
-        extra: Vec<Extra>,
-        labels: Vec<String>,
+        rows: LawRows,
     ) -> Result<CorridorLaw, ForecastError> {
+        let mut names: Vec<String> = Vec::new();
+        for n in rows.names {
+            if !names.contains(&n) {
+                names.push(n);
+            }
+        }
         let sym = (&cov + cov.transpose()) * 0.5;
-        let lo: Vec<f64> = (0..mean.len()).map(|i| lower[i] - mean[i]).collect();
-        let hi: Vec<f64> = (0..mean.len()).map(|i| upper[i] - mean[i]).collect();
-        let base = TruncatedNormal::new(&sym, &lo, &hi).map_err(|e| explain(e, &labels, None))?;
+        let lo: Vec<f64> = (0..mean.len()).map(|i| rows.lower[i] - mean[i]).collect();
+        let hi: Vec<f64> = (0..mean.len()).map(|i| rows.upper[i] - mean[i]).collect();
+        let base = TruncatedNormal::new(&sym, &lo, &hi)
+            .map_err(|e| explain(e, &rows.labels, &names, None))?;
         Ok(CorridorLaw {
-            lower,
-            upper,
+            lower: rows.lower,
+            upper: rows.upper,
             mean,
             shift,
             base,
-            extra,
-            labels,
+            extra: rows.extra,
+            labels: rows.labels,
+            names,
         })
     }
 
     /// The sampler for the mean `m₀ + A ε_J̄` and that mean.
-    fn at(&self, nondrivers: &[f64]) -> Result<(TruncatedNormal, DVector<f64>), TruncError> {
+    fn at(
+        &self,
+        nondrivers: &[f64],
+    ) -> Result<(Cow<'_, TruncatedNormal>, Cow<'_, DVector<f64>>), TruncError> {
         let Some(a) = &self.shift else {
-            return Ok((self.base.clone(), self.mean.clone()));
+            return Ok((Cow::Borrowed(&self.base), Cow::Borrowed(&self.mean)));
         };
         let mean = &self.mean + a * DVector::from_column_slice(nondrivers);
         let lo: Vec<f64> = (0..mean.len()).map(|i| self.lower[i] - mean[i]).collect();
         let hi: Vec<f64> = (0..mean.len()).map(|i| self.upper[i] - mean[i]).collect();
-        Ok((self.base.with_bounds(&lo, &hi)?, mean))
+        Ok((
+            Cow::Owned(self.base.with_bounds(&lo, &hi)?),
+            Cow::Owned(mean),
+        ))
     }
 
     /// One exact draw of `z` given the non-driver shocks (empty with every shock free).
@@ -71,52 +103,69 @@ impl CorridorLaw {
         rng: &mut R,
         draw: Option<usize>,
     ) -> Result<DVector<f64>, ForecastError> {
-        let fail = |e| explain(e, &self.labels, draw);
-        let (tn, mean) = if self.shift.is_some() {
-            self.at(nondrivers).map_err(fail)?
-        } else {
-            (self.base.clone(), self.mean.clone())
-        };
+        let fail = |e| explain(e, &self.labels, &self.names, draw);
+        let (tn, mean) = self.at(nondrivers).map_err(fail)?;
+        // With extra inequalities, each accepted box draw is kept only inside them.
         let keep = |x: &[f64]| {
-            let z = &mean + DVector::from_column_slice(x);
+            let z = mean.as_ref() + DVector::from_column_slice(x);
             self.extra.iter().all(|e| e.holds(&z))
         };
-        let x = tn.sample_where(rng, MAX_PROPOSALS, keep).map_err(fail)?;
-        Ok(mean + DVector::from_vec(x))
+        let x = tn
+            .sample_where(rng, budget(self.mean.len()), keep)
+            .map_err(fail)?;
+        Ok(mean.into_owned() + DVector::from_vec(x))
     }
 
-    /// `P(a ≤ z ≤ b)` at the mean `m₀ + A ε_J̄` (the extra inequalities are not counted), by
-    /// `n` proposals.
+    /// `P(a ≤ z ≤ b)` at the mean `m₀ + A ε_J̄` (and inside the extra inequalities of
+    /// dependent corridor rows), by `n` proposals.
     pub fn probability<R: Rng + ?Sized>(
         &self,
         nondrivers: &[f64],
         rng: &mut R,
         n: usize,
     ) -> Result<Probability, ForecastError> {
-        let (tn, _) = self
+        let (tn, mean) = self
             .at(nondrivers)
-            .map_err(|e| explain(e, &self.labels, None))?;
-        Ok(tn.probability(rng, n))
+            .map_err(|e| explain(e, &self.labels, &self.names, None))?;
+        if self.extra.is_empty() {
+            return Ok(tn.probability(rng, n));
+        }
+        Ok(tn.probability_where(rng, n, |x| {
+            let z = mean.as_ref() + DVector::from_column_slice(x);
+            self.extra.iter().all(|e| e.holds(&z))
+        }))
     }
 
-    pub fn has_extra(&self) -> bool {
-        !self.extra.is_empty()
+    /// How the saddle point of the sampler at `m₀` was found.
+    pub fn status(&self) -> SolveStatus {
+        self.base.status()
+    }
+
+    /// The corridors of this law (each once), for messages.
+    pub fn names(&self) -> &[String] {
+        &self.names
     }
 }
 
-/// Name the corridor rows in a truncated-normal failure.
-fn explain(e: TruncError, labels: &[String], draw: Option<usize>) -> ForecastError {
+/// Name the corridors in a truncated-normal failure.
+fn explain(
+    e: TruncError,
+    labels: &[String],
+    names: &[String],
+    draw: Option<usize>,
+) -> ForecastError {
     let name = |i: usize| labels.get(i).cloned().unwrap_or_else(|| format!("row {i}"));
     match e {
         TruncError::Singular { index } => ForecastError::NearlyDependent {
-            condition: name(index),
+            conditions: vec![name(index)],
+            draw,
         },
         TruncError::EmptyInterval { index, .. } => ForecastError::EmptyCorridor {
             corridor: name(index),
         },
         TruncError::TooImprobable { proposals } => ForecastError::TooImprobable {
-            corridors: labels.to_vec(),
-            proposals,
+            corridors: names.to_vec(),
+            acceptance: 1.0 / proposals as f64,
             draw,
         },
         other => ForecastError::Singular(format!("the corridor covariance ({other})")),

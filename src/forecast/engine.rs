@@ -31,6 +31,9 @@ pub enum ParamSource {
 #[derive(Debug, Clone)]
 pub struct ThetaSet {
     pub thetas: Vec<Theta>,
+    /// True for fixed coefficients (one θ, no parameter uncertainty); messages then name no
+    /// posterior draw.
+    pub fixed: bool,
     /// Draws whose companion matrix has an eigenvalue of modulus above 1 (kept, reported).
     pub explosive: usize,
     /// Median over draws of the largest companion eigenvalue modulus.
@@ -75,6 +78,7 @@ pub fn build_thetas(
         .collect::<Result<Vec<_>, _>>()?;
     Ok(ThetaSet {
         thetas,
+        fixed: matches!(source, ParamSource::Fixed(_)),
         explosive,
         median_root,
     })
@@ -101,7 +105,12 @@ pub struct Sampling {
     pub paths_per_theta: usize,
     pub seed: u64,
     pub reweight: bool,
+    /// Refuse a θ whose corridor sampler would accept fewer than this share of its proposals.
+    pub min_acceptance: f64,
 }
+
+/// Proposals behind each θ's acceptance estimate before its paths are drawn.
+pub const ACCEPTANCE_PROPOSALS: usize = 256;
 
 /// Proposals behind each θ's corridor-probability estimate when reweighting.
 pub const WEIGHT_PROPOSALS: usize = 500;
@@ -114,7 +123,6 @@ pub fn sample_paths(
     how: Sampling,
     cancel: &AtomicBool,
 ) -> Result<PathSet, ForecastError> {
-    let fixed = set.thetas.len() == 1;
     let per = how.paths_per_theta;
     let blocks = range
         .into_par_iter()
@@ -123,7 +131,20 @@ pub fn sample_paths(
                 return Err(ForecastError::Cancelled);
             }
             let theta = &set.thetas[i];
-            let plan = Plan::new(theta, cond, (!fixed).then_some(i))?;
+            let draw = (!set.fixed).then_some(i);
+            let name = |e: ForecastError| if set.fixed { e } else { e.in_draw(i) };
+            let plan = Plan::new(theta, cond, draw).map_err(name)?;
+            // Fail fast, naming the draw, rather than spend the path budget on a hopeless θ.
+            let mut rng = stream(how.seed, Purpose::Acceptance, i as u64);
+            if let Some(acceptance) = plan.acceptance(&mut rng, ACCEPTANCE_PROPOSALS)?
+                && acceptance < how.min_acceptance
+            {
+                return Err(ForecastError::TooImprobable {
+                    corridors: plan.corridor_names(),
+                    acceptance,
+                    draw,
+                });
+            }
             let mut out = PathSet {
                 notes: plan.notes().to_vec(),
                 ..PathSet::default()

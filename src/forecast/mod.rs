@@ -59,16 +59,20 @@ pub enum ForecastError {
     #[error("corridor '{corridor}' is empty: its lower bound is not below its upper bound")]
     EmptyCorridor { corridor: String },
     #[error(
-        "'{condition}' is (nearly) a combination of other conditions; remove it or the ones it repeats"
+        "{} {} (nearly) a combination of the others{}; remove the condition that repeats the rest",
+        list(conditions), if conditions.len() == 1 { "is" } else { "are" }, at_draw(*draw)
     )]
-    NearlyDependent { condition: String },
+    NearlyDependent {
+        conditions: Vec<String>,
+        draw: Option<usize>,
+    },
     #[error(
-        "the corridors are too improbable to sample{}: no draw met {} in {proposals} proposals. Widen them or check the scenario",
-        at_draw(*draw), list(corridors)
+        "the corridors {} are too improbable to sample{}: the exact sampler would accept about {acceptance:.1e} of its proposals. Widen them or move them towards the forecast",
+        list(corridors), at_draw(*draw)
     )]
     TooImprobable {
         corridors: Vec<String>,
-        proposals: usize,
+        acceptance: f64,
         draw: Option<usize>,
     },
     #[error("cancelled")]
@@ -76,12 +80,28 @@ pub enum ForecastError {
 }
 
 impl ForecastError {
-    /// Attach the posterior draw index to a θ-level error.
+    /// Attach the posterior draw index to an error that lacks it.
     pub fn in_draw(self, i: usize) -> ForecastError {
         match self {
-            ForecastError::Singular(what) => {
+            ForecastError::Singular(what) if !what.contains("posterior draw") => {
                 ForecastError::Singular(format!("{what} (posterior draw {i})"))
             }
+            ForecastError::NearlyDependent {
+                conditions,
+                draw: None,
+            } => ForecastError::NearlyDependent {
+                conditions,
+                draw: Some(i),
+            },
+            ForecastError::TooImprobable {
+                corridors,
+                acceptance,
+                draw: None,
+            } => ForecastError::TooImprobable {
+                corridors,
+                acceptance,
+                draw: Some(i),
+            },
             other => other,
         }
     }

@@ -21,7 +21,12 @@ use rand::Rng;
 use rand_distr::{Distribution, StandardNormal};
 
 use super::{
-    ForecastError, conditions::Conditions, corridor::CorridorLaw, reach, rows::Rows, theta::Theta,
+    ForecastError,
+    conditions::Conditions,
+    corridor::{CorridorLaw, LawRows},
+    reach,
+    rows::Rows,
+    theta::Theta,
 };
 use crate::truncnorm::Probability;
 
@@ -40,6 +45,8 @@ pub struct ShockLaw {
 #[derive(Debug, Clone)]
 pub struct Plan {
     rows: Rows,
+    /// `𝒢 = [R; S]`.
+    stacked: DMatrix<f64>,
     /// `r̃ = r − R μ` (kept pins).
     rtilde: DVector<f64>,
     /// `S μ` (kept corridor rows).
@@ -104,11 +111,9 @@ impl Plan {
         let mean = DVector::from_column_slice(&theta.mean);
         let rtilde = &rows.values - &rows.pins * &mean;
         let smean = &rows.corridors * &mean;
-        let bounds = (rows.lower.clone(), rows.upper.clone());
-        let labels = rows.corridor_labels.clone();
         let (route, gamma, law) = match cond.driver_cells(theta.n(), theta.h) {
             None => {
-                let (w, gamma) = kriging_gain(theta, &g)?;
+                let (w, gamma) = kriging_gain(theta, &g, &rows.labels(), draw)?;
                 let law = (q > 0)
                     .then(|| model_law(&gamma, m, &rtilde, &smean, &rows))
                     .transpose()?;
@@ -127,6 +132,7 @@ impl Plan {
                 let fj = columns(&f, &cells);
                 let gain = pinv(&fj)?;
                 let gamma = &f * f.transpose();
+                well_conditioned(&gamma, &all, draw)?;
                 let law = if q > 0 {
                     let (frj, fsj) = (fj.rows(0, m).into_owned(), fj.rows(m, q).into_owned());
                     let fr_rest = columns(&f, &rest).rows(0, m).into_owned();
@@ -136,14 +142,7 @@ impl Plan {
                     let cov = &fsj * fsj.transpose() - &fsj_pr * (&frj * fsj.transpose());
                     let m0 = &smean + &fsj_pr * &rtilde;
                     let shift = fs_rest - &fsj_pr * fr_rest;
-                    Some(CorridorLaw::new(
-                        cov,
-                        m0,
-                        Some(shift),
-                        bounds,
-                        rows.extra.clone(),
-                        labels,
-                    )?)
+                    Some(CorridorLaw::new(cov, m0, Some(shift), law_rows(&rows))?)
                 } else {
                     None
                 };
@@ -157,6 +156,7 @@ impl Plan {
             }
         };
         Ok(Plan {
+            stacked: g,
             rows,
             rtilde,
             smean,
@@ -178,6 +178,30 @@ impl Plan {
     /// `Γ = 𝒢 K⁻¹ 𝒢'` of the kept rows (pins, then corridor rows).
     pub fn gram(&self) -> &DMatrix<f64> {
         &self.gamma
+    }
+
+    /// Estimated acceptance rate of this plan's corridor sampler (at non-driver shocks zero),
+    /// by `n` proposals; `None` without corridors.
+    pub fn acceptance<R: Rng + ?Sized>(
+        &self,
+        rng: &mut R,
+        n: usize,
+    ) -> Result<Option<f64>, ForecastError> {
+        let zeros = vec![0.0; self.nondriver_count()];
+        Ok(self
+            .corridor_probability(&zeros, rng, n)?
+            .map(|p| p.acceptance()))
+    }
+
+    /// The corridors of this plan (each once), for messages.
+    pub fn corridor_names(&self) -> Vec<String> {
+        let mut names: Vec<String> = Vec::new();
+        for n in &self.rows.corridor_names {
+            if !names.contains(n) {
+                names.push(n.clone());
+            }
+        }
+        names
     }
 
     /// What the row analysis dropped or merged.
@@ -202,8 +226,14 @@ impl Plan {
                     target = target.resize_vertically(m + z.len(), 0.0);
                     target.rows_mut(m, z.len()).copy_from(&z);
                 }
-                let gap = target - &self.rows.stacked() * &y;
-                let y = y + w * gap;
+                // One correction, then one refinement of the rounding it leaves (`𝒢W = I` in
+                // exact arithmetic, so the second step only removes rounding; it matters on long,
+                // explosive horizons).
+                let mut y = y;
+                for _ in 0..2 {
+                    let gap = &target - &self.stacked * &y;
+                    y += w * gap;
+                }
                 Ok((y.as_slice().to_vec(), ystar))
             }
             Route::Drivers {
@@ -382,6 +412,8 @@ impl Plan {
 fn kriging_gain(
     theta: &Theta,
     g: &DMatrix<f64>,
+    labels: &[String],
+    draw: Option<usize>,
 ) -> Result<(DMatrix<f64>, DMatrix<f64>), ForecastError> {
     let (k, big_n) = g.shape();
     let mut v = DMatrix::zeros(big_n, k);
@@ -391,11 +423,63 @@ fn kriging_gain(
         v.set_column(i, &DVector::from_vec(col));
     }
     let gamma = g * &v;
-    let chol = gamma.clone().cholesky().ok_or(ForecastError::Singular(
-        "the condition Gram matrix Γ = 𝒢 K⁻¹ 𝒢' (nearly dependent conditions)".into(),
-    ))?;
+    well_conditioned(&gamma, labels, draw)?;
+    let chol = gamma
+        .clone()
+        .cholesky()
+        .ok_or_else(|| ForecastError::NearlyDependent {
+            conditions: labels.to_vec(),
+            draw,
+        })?;
     // W' = Γ⁻¹ V'.
     Ok((chol.solve(&v.transpose()).transpose(), gamma))
+}
+
+/// Conditions whose Gram matrix `Γ`, scaled to a unit diagonal, has a condition number above
+/// this are nearly dependent: their draws would carry rounding errors of order
+/// `1e−16 × cond` (ALGORITHMS §4.5, §9.1 item 7).
+const NEARLY_DEPENDENT: f64 = 1e12;
+
+/// Refuse nearly dependent conditions, naming those in the direction `Γ` nearly loses.
+fn well_conditioned(
+    gamma: &DMatrix<f64>,
+    labels: &[String],
+    draw: Option<usize>,
+) -> Result<(), ForecastError> {
+    let k = gamma.nrows();
+    if k < 2 {
+        return Ok(());
+    }
+    let d: Vec<f64> = (0..k)
+        .map(|i| 1.0 / gamma[(i, i)].max(f64::MIN_POSITIVE).sqrt())
+        .collect();
+    let scaled = DMatrix::from_fn(k, k, |i, j| d[i] * gamma[(i, j)] * d[j]);
+    let eig = nalgebra::SymmetricEigen::new(scaled);
+    let (lo_at, lo) = eig.eigenvalues.argmin();
+    let hi = eig.eigenvalues.max();
+    if lo > 0.0 && hi / lo <= NEARLY_DEPENDENT {
+        return Ok(());
+    }
+    let v = eig.eigenvectors.column(lo_at);
+    let top = v.amax();
+    Err(ForecastError::NearlyDependent {
+        conditions: (0..k)
+            .filter(|&i| v[i].abs() > 1e-3 * top)
+            .map(|i| labels[i].clone())
+            .collect(),
+        draw,
+    })
+}
+
+/// The corridor rows of a plan as a law needs them.
+fn law_rows(rows: &Rows) -> LawRows {
+    LawRows {
+        lower: rows.lower.clone(),
+        upper: rows.upper.clone(),
+        extra: rows.extra.clone(),
+        labels: rows.corridor_labels.clone(),
+        names: rows.corridor_names.clone(),
+    }
 }
 
 /// The corridor law with every shock free, from `Γ`: mean `Sμ + Γ_SR Γ_RR⁻¹ r̃`, covariance
@@ -420,12 +504,5 @@ fn model_law(
         let solved = chol.solve(&gsr.transpose()); // Γ_RR⁻¹ Γ_RS
         (smean + solved.transpose() * rtilde, gss - &gsr * solved)
     };
-    CorridorLaw::new(
-        cov,
-        mean,
-        None,
-        (rows.lower.clone(), rows.upper.clone()),
-        rows.extra.clone(),
-        rows.corridor_labels.clone(),
-    )
+    CorridorLaw::new(cov, mean, None, law_rows(rows))
 }

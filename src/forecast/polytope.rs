@@ -10,31 +10,42 @@ use nalgebra::DVector;
 
 use super::rows::Extra;
 
-/// The margin must exceed this share of `1 + |largest finite bound|` (the programme itself
-/// meets its constraints to an absolute 1e−7).
+/// The margin must exceed this, with every quantity rescaled by `1 + |largest finite bound|`
+/// (the programme itself meets its constraints to an absolute 1e−7).
 const INTERIOR: f64 = 1e-6;
 
 /// True when the box cut by the extra rows has an interior.
 pub fn has_interior(lower: &DVector<f64>, upper: &DVector<f64>, extra: &[Extra]) -> bool {
+    // Rescale z' = z / s so that the margin (capped at 1) is on the scale of the bounds.
+    let finite = |v: f64| if v.is_finite() { v.abs() } else { 0.0 };
+    let s = 1.0
+        + lower
+            .iter()
+            .chain(upper.iter())
+            .copied()
+            .chain(
+                extra
+                    .iter()
+                    .flat_map(|e| [e.lower - e.offset, e.upper - e.offset]),
+            )
+            .map(finite)
+            .fold(0.0, f64::max);
     let mut lp = Problem::new(OptimizationDirection::Maximize);
     let t = lp.add_var(1.0, (0.0, 1.0));
     let z: Vec<_> = (0..lower.len())
         .map(|_| lp.add_var(0.0, (f64::NEG_INFINITY, f64::INFINITY)))
         .collect();
-    let mut scale: f64 = 0.0;
-    let mut bound = |lp: &mut Problem, terms: Vec<(microlp::Variable, f64)>, lo: f64, hi: f64| {
+    let bound = |lp: &mut Problem, terms: Vec<(microlp::Variable, f64)>, lo: f64, hi: f64| {
         let norm = terms.iter().map(|(_, a)| a * a).sum::<f64>().sqrt();
         if lo.is_finite() {
             let mut row = terms.clone();
             row.push((t, -norm));
-            lp.add_constraint(row.as_slice(), ComparisonOp::Ge, lo);
-            scale = scale.max(lo.abs());
+            lp.add_constraint(row.as_slice(), ComparisonOp::Ge, lo / s);
         }
         if hi.is_finite() {
             let mut row = terms;
             row.push((t, norm));
-            lp.add_constraint(row.as_slice(), ComparisonOp::Le, hi);
-            scale = scale.max(hi.abs());
+            lp.add_constraint(row.as_slice(), ComparisonOp::Le, hi / s);
         }
     };
     for k in 0..lower.len() {
@@ -48,7 +59,7 @@ pub fn has_interior(lower: &DVector<f64>, upper: &DVector<f64>, extra: &[Extra])
         bound(&mut lp, terms, e.lower - e.offset, e.upper - e.offset);
     }
     match lp.solve().map(|o| o.into_solution()) {
-        Ok(Ok(solution)) => solution.objective() > INTERIOR * (1.0 + scale),
+        Ok(Ok(solution)) => solution.objective() > INTERIOR,
         _ => false,
     }
 }
@@ -89,6 +100,24 @@ mod tests {
             &lo,
             &hi,
             &[extra(&[1.0, -1.0], f64::NEG_INFINITY, 1.0)]
+        ));
+    }
+
+    /// The verdict does not depend on the units: the same sets scaled by 1e7.
+    #[test]
+    fn scale_invariant() {
+        let k = 1e7;
+        let lo = DVector::from_column_slice(&[0.0, 0.0]);
+        let hi = DVector::from_column_slice(&[k, k]);
+        assert!(has_interior(
+            &lo,
+            &hi,
+            &[extra(&[1.0, 1.0], 0.5 * k, 1.5 * k)]
+        ));
+        assert!(!has_interior(
+            &lo,
+            &hi,
+            &[extra(&[1.0, 1.0], 2.0 * k, 3.0 * k)]
         ));
     }
 }

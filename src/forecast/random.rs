@@ -14,6 +14,8 @@ pub enum Purpose {
     Weights = 3,
     /// The scenario checks' own estimates.
     Checks = 4,
+    /// Each θ's acceptance estimate before sampling.
+    Acceptance = 5,
 }
 
 /// SplitMix64 finaliser (Steele, Lea and Flood 2014): spreads nearby seeds apart.

@@ -63,6 +63,8 @@ pub struct Rows {
     pub lower: DVector<f64>,
     pub upper: DVector<f64>,
     pub corridor_labels: Vec<String>,
+    /// The corridor each kept row belongs to (its label).
+    pub corridor_names: Vec<String>,
     /// Dependent corridor rows, kept as inequalities on the corridor quantities.
     pub extra: Vec<Extra>,
     /// What was dropped or merged, for the report.
@@ -77,12 +79,20 @@ struct Raw {
     row: DVector<f64>,
     /// Norm before scaling.
     norm: f64,
+    /// The condition it belongs to.
+    name: String,
     lower: f64,
     upper: f64,
     label: String,
 }
 
-fn raw(theta: &Theta, target: &Target, lower: f64, upper: f64, label: String) -> Raw {
+fn raw(
+    theta: &Theta,
+    target: &Target,
+    (lower, upper): (f64, f64),
+    label: String,
+    name: &str,
+) -> Raw {
     let mut row = DVector::zeros(theta.len());
     let offset = match target {
         Target::Path { terms } => {
@@ -104,6 +114,7 @@ fn raw(theta: &Theta, target: &Target, lower: f64, upper: f64, label: String) ->
     Raw {
         row: row * scale,
         norm,
+        name: name.to_string(),
         lower: (lower + offset) * scale,
         upper: (upper + offset) * scale,
         label,
@@ -166,10 +177,28 @@ impl Rows {
         let pins: Vec<Raw> = cond
             .pins
             .iter()
-            .map(|p| raw(theta, &p.target, p.value, p.value, p.label.clone()))
+            .map(|p| {
+                raw(
+                    theta,
+                    &p.target,
+                    (p.value, p.value),
+                    p.label.clone(),
+                    &p.label,
+                )
+            })
             .collect();
         let mut corridor_raw = Vec::new();
+        let mut notes = Vec::new();
         for c in &cond.corridors {
+            if c.rows
+                .iter()
+                .all(|b| b.lower == f64::NEG_INFINITY && b.upper == f64::INFINITY)
+            {
+                notes.push(format!(
+                    "corridor '{}' bounds nothing (its bounds lie outside what the series can take)",
+                    c.label
+                ));
+            }
             for (k, b) in c.rows.iter().enumerate() {
                 if b.lower == f64::NEG_INFINITY && b.upper == f64::INFINITY {
                     continue;
@@ -179,7 +208,13 @@ impl Rows {
                         corridor: c.row_label(k),
                     });
                 }
-                corridor_raw.push(raw(theta, &b.target, b.lower, b.upper, c.row_label(k)));
+                corridor_raw.push(raw(
+                    theta,
+                    &b.target,
+                    (b.lower, b.upper),
+                    c.row_label(k),
+                    &c.label,
+                ));
             }
         }
         let every_pin = stack(&pins, big_n, |r| (r.lower, r.lower));
@@ -189,7 +224,6 @@ impl Rows {
             basis: Vec::new(),
             kept: Vec::new(),
         };
-        let mut notes = Vec::new();
         let mut kept_pins: Vec<Raw> = Vec::new();
         for p in pins {
             let Some(coef) = span.add(&p.row) else {
@@ -309,6 +343,7 @@ impl Rows {
             corridors: corridor_rows,
             lower,
             upper,
+            corridor_names: kept.iter().map(|r| r.name.clone()).collect(),
             corridor_labels: kept.into_iter().map(|r| r.label).collect(),
             extra,
             notes,

@@ -29,7 +29,7 @@ pub fn check_text(report: &CheckReport) -> String {
             };
             let minimal = match f.minimal {
                 Some(true) => " (each one needed)",
-                Some(false) => " (search stopped at its budget; may not be the smallest set)",
+                Some(false) => " (not narrowed down to a set whose every member is needed)",
                 None => "",
             };
             s.push(format!(
@@ -54,20 +54,48 @@ pub fn check_text(report: &CheckReport) -> String {
             p.log10_tail
         ));
     }
-    if let Some(c) = &report.corridors {
+    if let Some(c) = report
+        .corridors
+        .as_ref()
+        .filter(|c| !c.log10_probability.is_finite())
+    {
         s.push(format!(
-            "  corridors probability given the pins 10^{:.2} (relative error {:.1}%, {} proposals; never above 10^{:.2}); exact sampler accepts {:.2} of its proposals",
+            "  corridors no proposal of {} met them (probability given the pins below about 10^{:.1}; never above 10^{:.2})",
+            c.proposals,
+            -(c.proposals as f64).log10(),
+            c.log10_bound
+        ));
+    } else if let Some(c) = &report.corridors {
+        s.push(format!(
+            "  corridors probability given the pins, every shock free, 10^{:.2} (relative error {:.1}%, {} proposals; never above 10^{:.2}); the exact sampler accepts about {:.1e} of its proposals",
             c.log10_probability,
             100.0 * c.relative_error,
             c.proposals,
             c.log10_bound,
             c.acceptance
         ));
+        if !c.saddle_point_found {
+            s.push(
+                "           note: the tilting saddle point was not found; the sampler stays exact but is as slow as plain rejection"
+                    .into(),
+            );
+        }
     }
     if let Some(p) = &report.plausibility {
+        // `+ 0.0` turns a −0 into 0 for printing.
+        let law = if p.corridor_part_with_drivers {
+            ", drivers only"
+        } else {
+            ""
+        };
         s.push(format!(
-            "  plausibility divergence {:.3} nats (pins' mean {:.3}, shape {:.3}, corridors {:.3}; {:.3} per period), coin {:.3}:",
-            p.divergence, p.mean_part, p.shape_part, p.corridor_part, p.per_period, p.coin
+            "  plausibility divergence {:.3} nats (pins' mean {:.3}, shape {:.3}, corridors{law} {:.3}; {:.3} per period), coin {:.3}:",
+            p.divergence + 0.0,
+            p.mean_part + 0.0,
+            p.shape_part + 0.0,
+            p.corridor_part + 0.0,
+            p.per_period + 0.0,
+            p.coin
         ));
         s.push(format!("           {}", p.reading));
     }

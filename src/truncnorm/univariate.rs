@@ -19,6 +19,9 @@ const SQRT_PI: f64 = 1.772_453_850_905_516;
 /// Boundary between the rejection/inverse-transform region and the tail
 /// sampler (Botev 2017).
 const TAIL_THRESHOLD: f64 = 0.66;
+/// An interval narrower than this (times `max(1, |midpoint|)`) is nearly flat: ln P and the
+/// moments use the midpoint expansion.
+const NARROW: f64 = 1e-3;
 /// Above this, ln Φ̄ uses the asymptotic series.
 const ASYMPTOTIC_FROM: f64 = 37.0;
 
@@ -164,7 +167,7 @@ pub fn ln_prob(a: f64, b: f64) -> f64 {
     if a.is_finite() && b.is_finite() {
         let h = b - a;
         let m = 0.5 * a + 0.5 * b;
-        if h * m.abs().max(1.0) <= 1e-3 {
+        if h * m.abs().max(1.0) <= NARROW {
             return h.ln() + ln_pdf(m) + ((m * m - 1.0) * h * h / 24.0).ln_1p();
         }
     }
@@ -203,13 +206,27 @@ fn inverse_mills(x: f64) -> (f64, f64) {
 }
 
 /// Mean and variance of N(0,1) truncated to [a, b] (a < b).
+///
+/// - Narrow intervals (`h = b − a`, midpoint `c`, `h·max(1, |c|) ≤ 10⁻³`): the density is
+///   nearly flat, `mean = c − c h²/12`, `variance = h²/12` (relative error `O((c h)²)`).
+/// - Intervals inside a tail (`a > 0`, or the mirror `b < 0`): moments of the offset `X − a`
+///   from the one-sided tails at `a` and `b`, free of cancellation far out: with inverse Mills
+///   ratios `r_a`, `r_b`, `q = Φ̄(b)/Φ̄(a)`, `E[X − a] = ((r_a − a) − q (r_b − a)) / (1 − q)` and
+///   `E[(X − a)²] = (S_a − q S_b)/(1 − q)`, `S_x = Var_x + (r_x − a)²` with the one-sided
+///   variances `Var_x = 1 − r_x (r_x − x)`.
+/// - Otherwise the textbook ratios.
 pub fn mean_var(a: f64, b: f64) -> (f64, f64) {
-    if a > 0.0 && b == f64::INFINITY {
-        let (r, excess) = inverse_mills(a);
-        return (r, 1.0 - r * excess);
+    if a.is_finite() && b.is_finite() {
+        let (h, c) = (b - a, 0.5 * a + 0.5 * b);
+        if h * c.abs().max(1.0) <= NARROW {
+            return (c - c * h * h / 12.0, h * h / 12.0);
+        }
     }
-    if b < 0.0 && a == f64::NEG_INFINITY {
-        let (mean, var) = mean_var(-b, -a);
+    if a > 0.0 {
+        return tail_moments(a, b);
+    }
+    if b < 0.0 {
+        let (mean, var) = tail_moments(-b, -a);
         return (-mean, var);
     }
     let lp = ln_prob(a, b);
@@ -226,6 +243,36 @@ pub fn mean_var(a: f64, b: f64) -> (f64, f64) {
     let (pb, bpb) = ratio(b);
     let mean = pa - pb;
     (mean, 1.0 + (apa - bpb) - mean * mean)
+}
+
+/// Variance of N(0,1) on `[x, ∞)`, `1 − r (r − x)` from the inverse Mills ratio `r`; beyond
+/// `x = 100`, where that difference keeps only `−log10(1e−16 x²)` digits, its asymptotic series
+/// in `t = 1/x²`: `t − 6t² + 50t³ − 518t⁴ + 6354t⁵` (from the Mills-ratio series
+/// `1/x − 1/x³ + 3/x⁵ − …`, Abramowitz and Stegun 26.2.12; next term `89782 t⁶`, below 1e−15
+/// relative there).
+fn tail_variance(x: f64, r: f64, excess: f64) -> f64 {
+    if x > 100.0 {
+        let t = 1.0 / (x * x);
+        t * (1.0 + t * (-6.0 + t * (50.0 + t * (-518.0 + t * 6354.0))))
+    } else {
+        1.0 - r * excess
+    }
+}
+
+/// Moments on `[a, b]` with `a > 0` (see [`mean_var`]).
+fn tail_moments(a: f64, b: f64) -> (f64, f64) {
+    let (ra, exa) = inverse_mills(a);
+    let var_a = tail_variance(a, ra, exa);
+    if b == f64::INFINITY {
+        return (ra, var_a);
+    }
+    let (rb, exb) = inverse_mills(b);
+    let var_b = tail_variance(b, rb, exb);
+    let q = (ln_phi_upper(b) - ln_phi_upper(a)).exp();
+    let shift_b = exb + (b - a); // r_b − a
+    let offset = (exa - q * shift_b) / (1.0 - q);
+    let second = (var_a + exa * exa - q * (var_b + shift_b * shift_b)) / (1.0 - q);
+    (a + offset, (second - offset * offset).max(0.0))
 }
 
 /// Marsaglia (1964) tail sampler on [a, b], a > 0 (Botev 2017, `ntail`).
