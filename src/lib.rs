@@ -1,7 +1,9 @@
 //! Tiltyard's engine: datasets, the Bayesian VAR, exact conditional forecasts under pins,
-//! corridors and drivers, and the scenario checks. Nothing here depends on a window; the headless commands
-//! and (later) the window both drive this library.
+//! corridors and drivers, and the scenario checks; and, with the `gui` feature, the scenario
+//! window ([`app`]), which only uses the engine (nothing in the engine depends on it).
 
+#[cfg(feature = "gui")]
+pub mod app;
 pub mod banded;
 pub mod checks;
 pub mod dataset;

@@ -12,11 +12,19 @@ use tiltyard::report::{
 use tiltyard::run::{RunError, RunOptions, check, run, summary};
 
 /// Design macro-financial stress-test scenarios: conditional forecasts from a Bayesian VAR.
+/// Without a command, opens the scenario window (on the demo scenario unless one is given).
 #[derive(Parser)]
-#[command(name = "tiltyard", version, about)]
+#[command(
+    name = "tiltyard",
+    version,
+    about,
+    args_conflicts_with_subcommands = true
+)]
 struct Cli {
     #[command(subcommand)]
     command: Option<Command>,
+    /// A scenario file to open in the window.
+    scenario: Option<PathBuf>,
 }
 
 #[derive(Subcommand)]
@@ -94,12 +102,7 @@ fn main() -> ExitCode {
             seed,
             out,
         }) => check_command(scenario, seed, out),
-        None => {
-            println!(
-                "The scenario window is not built yet. Run a scenario headless:\n  tiltyard run scenarios-demo/baseline.ron\n(see tiltyard --help)"
-            );
-            Ok(Outcome::Done)
-        }
+        None => window(cli.scenario),
     };
     match result {
         Ok(Outcome::Done) => ExitCode::SUCCESS,
@@ -109,6 +112,37 @@ fn main() -> ExitCode {
             ExitCode::FAILURE
         }
     }
+}
+
+/// The demo scenario the window opens by default: beside the working folder when run from
+/// the project, else where the project was built.
+fn demo_scenario() -> PathBuf {
+    let here = PathBuf::from("scenarios-demo/adverse.ron");
+    if here.exists() {
+        return here;
+    }
+    Path::new(env!("CARGO_MANIFEST_DIR")).join("scenarios-demo/adverse.ron")
+}
+
+#[cfg(feature = "gui")]
+fn window(scenario: Option<PathBuf>) -> anyhow::Result<Outcome> {
+    let path = scenario.unwrap_or_else(demo_scenario);
+    tiltyard::app::run_window(path).map_err(|e| {
+        anyhow::anyhow!(
+            "cannot open the window ({e}). Without a display, use the headless commands: tiltyard run SCENARIO, tiltyard check SCENARIO (see tiltyard --help)"
+        )
+    })?;
+    Ok(Outcome::Done)
+}
+
+#[cfg(not(feature = "gui"))]
+fn window(scenario: Option<PathBuf>) -> anyhow::Result<Outcome> {
+    let path = scenario.unwrap_or_else(demo_scenario);
+    anyhow::bail!(
+        "this build has no window (built without the gui feature); run {} headless with: tiltyard run {}",
+        path.display(),
+        path.display()
+    )
 }
 
 fn create(out: &Path) -> anyhow::Result<()> {

@@ -1,0 +1,294 @@
+//! The scenario being edited: the file, where it lives, whether it is saved, and the undo
+//! history. History entries are whole-file snapshots: scenarios are small, and a snapshot can
+//! never drift from what it restores. A gesture (a drag, a typed number) makes one entry,
+//! however many frames it lasts.
+
+use std::path::{Path, PathBuf};
+
+use crate::scenario::{self, ScenarioError, ScenarioFile};
+
+/// Most undo steps kept.
+const HISTORY: usize = 200;
+
+#[derive(Debug, Clone)]
+pub struct Document {
+    pub file: ScenarioFile,
+    /// Where the scenario was opened from or last saved to.
+    pub path: PathBuf,
+    /// The file as last opened or saved (to tell unsaved changes).
+    saved: ScenarioFile,
+    undo: Vec<ScenarioFile>,
+    redo: Vec<ScenarioFile>,
+    /// Inside a gesture: further edits join the entry made when it began.
+    in_gesture: bool,
+}
+
+impl Document {
+    /// Read a scenario file (the dataset is read by the engine, so a missing dataset is
+    /// reported there and the text stays editable).
+    pub fn open(path: &Path) -> Result<Document, ScenarioError> {
+        let file = scenario::read(path)?;
+        Ok(Document::from_file(file, path.to_path_buf()))
+    }
+
+    pub fn from_file(file: ScenarioFile, path: PathBuf) -> Document {
+        Document {
+            saved: file.clone(),
+            file,
+            path,
+            undo: Vec::new(),
+            redo: Vec::new(),
+            in_gesture: false,
+        }
+    }
+
+    /// Apply an edit as one undo step (or as part of the current gesture).
+    pub fn edit(&mut self, change: impl FnOnce(&mut ScenarioFile)) {
+        let before = self.file.clone();
+        change(&mut self.file);
+        if self.file == before {
+            return;
+        }
+        if !self.in_gesture || self.undo.is_empty() {
+            self.undo.push(before);
+            if self.undo.len() > HISTORY {
+                self.undo.remove(0);
+            }
+        }
+        self.redo.clear();
+    }
+
+    /// Start a gesture: the first edit inside it makes the undo step; later ones join it.
+    pub fn begin_gesture(&mut self) {
+        if !self.in_gesture {
+            self.undo.push(self.file.clone());
+            self.redo.clear();
+            self.in_gesture = true;
+        }
+    }
+
+    /// End a gesture; a gesture that changed nothing leaves no undo step.
+    pub fn end_gesture(&mut self) {
+        if self.in_gesture {
+            self.in_gesture = false;
+            if self.undo.last() == Some(&self.file) {
+                self.undo.pop();
+            }
+        }
+    }
+
+    pub fn in_gesture(&self) -> bool {
+        self.in_gesture
+    }
+
+    pub fn can_undo(&self) -> bool {
+        !self.undo.is_empty()
+    }
+
+    pub fn can_redo(&self) -> bool {
+        !self.redo.is_empty()
+    }
+
+    pub fn undo(&mut self) -> bool {
+        self.end_gesture();
+        match self.undo.pop() {
+            Some(previous) => {
+                self.redo.push(std::mem::replace(&mut self.file, previous));
+                true
+            }
+            None => false,
+        }
+    }
+
+    pub fn redo(&mut self) -> bool {
+        self.end_gesture();
+        match self.redo.pop() {
+            Some(next) => {
+                self.undo.push(std::mem::replace(&mut self.file, next));
+                true
+            }
+            None => false,
+        }
+    }
+
+    pub fn is_dirty(&self) -> bool {
+        self.file != self.saved
+    }
+
+    /// Save atomically to `path` (write a temporary file beside it, then rename), and make it
+    /// the document's path. Relative dataset paths are rewritten so that they still point at
+    /// the same file from the new folder.
+    pub fn save_as(&mut self, path: &Path) -> std::io::Result<()> {
+        let mut file = self.file.clone();
+        file.dataset = rebase(&self.path, path, &file.dataset);
+        write_atomic(path, &scenario::to_text(&file))?;
+        self.file = file.clone();
+        self.saved = file;
+        self.path = path.to_path_buf();
+        Ok(())
+    }
+
+    pub fn save(&mut self) -> std::io::Result<()> {
+        let path = self.path.clone();
+        self.save_as(&path)
+    }
+
+    /// Where unsaved edits of this scenario are kept against a crash: beside the file, hidden.
+    pub fn recovery_path(&self) -> PathBuf {
+        recovery_path(&self.path)
+    }
+
+    /// Write the current edits to the recovery file (atomically).
+    pub fn write_recovery(&self) -> std::io::Result<()> {
+        write_atomic(&self.recovery_path(), &scenario::to_text(&self.file))
+    }
+
+    /// Remove the recovery file (after a save, or when the user declines it).
+    pub fn clear_recovery(&self) {
+        let _ = std::fs::remove_file(self.recovery_path());
+    }
+}
+
+/// The recovery file of a scenario at `path`: `.<name>.recovery` in the same folder.
+pub fn recovery_path(path: &Path) -> PathBuf {
+    let name = path
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_else(|| "scenario.ron".into());
+    path.with_file_name(format!(".{name}.recovery"))
+}
+
+/// Write `text` to `path` so that a crash leaves either the old file or the new one: write a
+/// temporary file in the same folder, flush it to disk, then rename it over the target.
+pub fn write_atomic(path: &Path, text: &str) -> std::io::Result<()> {
+    use std::io::Write;
+    let dir = path.parent().filter(|d| !d.as_os_str().is_empty());
+    let dir = dir.unwrap_or(Path::new("."));
+    let name = path
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_else(|| "scenario".into());
+    let tmp = dir.join(format!(".{name}.{}.tmp", std::process::id()));
+    let result = (|| {
+        let mut f = std::fs::File::create(&tmp)?;
+        f.write_all(text.as_bytes())?;
+        f.sync_all()?;
+        std::fs::rename(&tmp, path)
+    })();
+    if result.is_err() {
+        let _ = std::fs::remove_file(&tmp);
+    }
+    result
+}
+
+/// A dataset path relative to the scenario at `from`, rewritten for a scenario at `to`
+/// (absolute paths are kept).
+fn rebase(from: &Path, to: &Path, dataset: &str) -> String {
+    let ds = Path::new(dataset);
+    if ds.is_absolute() {
+        return dataset.to_string();
+    }
+    let from_dir = from.parent().unwrap_or(Path::new("."));
+    let to_dir = to.parent().unwrap_or(Path::new("."));
+    if same_dir(from_dir, to_dir) {
+        return dataset.to_string();
+    }
+    let target = from_dir.join(ds);
+    std::path::absolute(&target)
+        .unwrap_or(target)
+        .display()
+        .to_string()
+}
+
+fn same_dir(a: &Path, b: &Path) -> bool {
+    let canon = |p: &Path| {
+        let p = if p.as_os_str().is_empty() {
+            Path::new(".")
+        } else {
+            p
+        };
+        std::fs::canonicalize(p).unwrap_or_else(|_| p.to_path_buf())
+    };
+    canon(a) == canon(b)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn demo() -> Document {
+        let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("scenarios-demo/baseline.ron");
+        Document::open(&path).unwrap()
+    }
+
+    /// Undo and redo walk the history; a gesture of many edits is one step; a new edit clears
+    /// the redo branch.
+    #[test]
+    fn undo_redo_and_gestures() {
+        let mut doc = demo();
+        let v0 = doc.file.pins[0].value;
+        doc.edit(|f| f.pins[0].value = 1.0);
+        doc.begin_gesture();
+        for k in 0..10 {
+            doc.edit(|f| f.pins[0].value = 2.0 + k as f64);
+        }
+        doc.end_gesture();
+        assert_eq!(doc.file.pins[0].value, 11.0);
+        assert!(doc.undo());
+        assert_eq!(doc.file.pins[0].value, 1.0);
+        assert!(doc.undo());
+        assert_eq!(doc.file.pins[0].value, v0);
+        assert!(!doc.undo());
+        assert!(doc.redo());
+        assert_eq!(doc.file.pins[0].value, 1.0);
+        doc.edit(|f| f.pins[0].value = 5.0);
+        assert!(!doc.can_redo());
+        // A gesture that changes nothing leaves no step.
+        let steps = doc.undo.len();
+        doc.begin_gesture();
+        doc.end_gesture();
+        assert_eq!(doc.undo.len(), steps);
+    }
+
+    /// Saves are atomic (no temporary file left behind), round-trip, clear the dirty flag, and
+    /// keep the dataset reachable from a new folder; the recovery file round-trips too.
+    #[test]
+    fn atomic_save_and_recovery() {
+        let dir = tempfile::tempdir().unwrap();
+        let mut doc = demo();
+        // Work on a copy in a temporary folder (the dataset by absolute path).
+        let demo_dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("scenarios-demo");
+        doc.file.dataset = demo_dir.join("economy.csv").display().to_string();
+        doc.path = dir.path().join("baseline.ron");
+        doc.edit(|f| f.pins[0].value = 2.6);
+        assert!(doc.is_dirty());
+        doc.write_recovery().unwrap();
+        let recovered = scenario::read(&doc.recovery_path()).unwrap();
+        assert_eq!(recovered, doc.file);
+        let path = dir.path().join("mine.ron");
+        doc.save_as(&path).unwrap();
+        assert!(!doc.is_dirty());
+        let leftovers: Vec<_> = std::fs::read_dir(dir.path())
+            .unwrap()
+            .filter_map(|e| e.ok())
+            .filter(|e| e.file_name().to_string_lossy().ends_with(".tmp"))
+            .collect();
+        assert!(leftovers.is_empty());
+        let reread = Document::open(&path).unwrap();
+        assert_eq!(reread.file.pins[0].value, 2.6);
+        assert!(scenario::load(&path).is_ok(), "the dataset is still found");
+        doc.clear_recovery();
+        assert!(!doc.recovery_path().exists());
+    }
+
+    /// A relative dataset path is rewritten when the scenario moves to another folder.
+    #[test]
+    fn relative_dataset_follows_a_move() {
+        let dir = tempfile::tempdir().unwrap();
+        let mut doc = demo();
+        let path = dir.path().join("moved.ron");
+        doc.save_as(&path).unwrap();
+        assert!(Path::new(&doc.file.dataset).is_absolute());
+        assert!(scenario::load(&path).is_ok());
+    }
+}

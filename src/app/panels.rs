@@ -1,0 +1,473 @@
+//! The window's layout: the top bar (scenario, files, model, engine state), the series and
+//! shocks on the left, the chart grid in the centre, the conditions and checks on the right,
+//! and the status and caution line at the bottom.
+
+use egui::{Color32, RichText};
+
+use super::chart::{self, ChartInput, CondRef};
+use super::files::Purpose;
+use super::palette::Palette;
+use super::worker::EngineState;
+use super::{AfterSave, Prompt, TiltyardApp, table};
+use crate::checks::{Severity, Status};
+use crate::report::CAUTION;
+use crate::scenario::Units;
+
+/// Units a chart can switch to (those that apply to every transform).
+pub const CHART_UNITS: [Units; 5] = [
+    Units::Level,
+    Units::YearOnYear,
+    Units::Annualised,
+    Units::PctChange,
+    Units::Difference,
+];
+
+pub fn palette(ui: &egui::Ui) -> Palette {
+    Palette::for_theme(ui.visuals().dark_mode)
+}
+
+fn severity_colour(p: &Palette, s: Severity) -> Color32 {
+    match s {
+        Severity::Clash => p.clash,
+        Severity::Strain => p.strain,
+    }
+}
+
+pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp) {
+    let pal = palette(ui);
+    egui::Panel::top("top").show(ui, |ui| top_bar(ui, app, &pal));
+    egui::Panel::bottom("bottom").show(ui, |ui| footer(ui, app, &pal));
+    egui::Panel::left("series")
+        .resizable(true)
+        .default_size(210.0)
+        .show(ui, |ui| series_list(ui, app, &pal));
+    egui::Panel::right("conditions")
+        .resizable(true)
+        .default_size(430.0)
+        .show(ui, |ui| {
+            egui::ScrollArea::vertical().show(ui, |ui| {
+                table::conditions(ui, app, &pal);
+                ui.separator();
+                checks(ui, app, &pal);
+            });
+        });
+    egui::CentralPanel::default().show(ui, |ui| chart_grid(ui, app, &pal));
+    prompts(ui, app);
+}
+
+fn top_bar(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
+    ui.horizontal_wrapped(|ui| {
+        let dirty = if app.doc.is_dirty() { " •" } else { "" };
+        ui.heading(format!("{}{dirty}", app.doc.file.name))
+            .on_hover_text(&app.doc.file.narrative);
+        ui.separator();
+        if ui.button("Open…").clicked() {
+            app.ask_open();
+        }
+        if ui.button("Save").clicked() {
+            app.save();
+        }
+        if ui.button("Save as…").clicked() {
+            app.pick(Purpose::SaveAs);
+        }
+        ui.separator();
+        if ui
+            .add_enabled(app.doc.can_undo(), egui::Button::new("Undo"))
+            .clicked()
+        {
+            app.doc.undo();
+        }
+        if ui
+            .add_enabled(app.doc.can_redo(), egui::Button::new("Redo"))
+            .clicked()
+        {
+            app.doc.redo();
+        }
+        ui.separator();
+        ui.label(RichText::new(&app.model_line).color(pal.muted));
+        ui.separator();
+        let (text, colour) = engine_text(&app.state, pal);
+        ui.label(RichText::new(text).color(colour).strong());
+    });
+    if !app.doc.file.narrative.is_empty() {
+        ui.label(RichText::new(&app.doc.file.narrative).italics().small());
+    }
+    if let Some(n) = &app.notice {
+        ui.colored_label(pal.clash, n);
+    }
+    if let Some(e) = &app.engine_error {
+        ui.colored_label(pal.clash, e);
+    }
+}
+
+fn engine_text(state: &EngineState, pal: &Palette) -> (String, Color32) {
+    match state {
+        EngineState::Idle => ("idle".into(), pal.muted),
+        EngineState::Estimating => ("estimating the model…".into(), pal.fan),
+        EngineState::Checking => ("checking the conditions…".into(), pal.fan),
+        EngineState::Sampling { done, total } => (format!("sampling {done}/{total}"), pal.fan),
+        EngineState::Done { draws, seconds } => (
+            if *draws > 0 {
+                format!("ready: {draws} draws in {seconds:.2} s")
+            } else {
+                format!("ready in {seconds:.2} s")
+            },
+            pal.ok,
+        ),
+        EngineState::Clashing => ("conditions clash: nothing sampled".into(), pal.clash),
+        EngineState::Failed => ("stopped on an error".into(), pal.clash),
+    }
+}
+
+fn footer(ui: &mut egui::Ui, app: &TiltyardApp, pal: &Palette) {
+    ui.horizontal_wrapped(|ui| {
+        if let Some(r) = &app.results {
+            let what = if r.preview {
+                "preview at the posterior mean (understates uncertainty)".to_string()
+            } else if r.total > 0 {
+                format!("{} of {} posterior draws", r.draws, r.total)
+            } else {
+                "fixed coefficients".to_string()
+            };
+            ui.label(what);
+            ui.separator();
+        }
+        ui.label(format!("seed {}", app.doc.file.seed));
+        if let Some(t) = app.first_update {
+            ui.separator();
+            ui.label(format!(
+                "first fans {:.0} ms after the edit",
+                t.as_secs_f64() * 1e3
+            ));
+        }
+    });
+    ui.label(RichText::new(CAUTION).color(pal.muted).small());
+}
+
+fn series_list(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
+    ui.strong("Series");
+    let names: Vec<(String, Units)> = app
+        .doc
+        .file
+        .series
+        .iter()
+        .map(|s| (s.name.clone(), s.display))
+        .collect();
+    for (name, units) in &names {
+        ui.horizontal(|ui| {
+            let mut shown = !app.hidden.contains(name);
+            if ui.checkbox(&mut shown, name.as_str()).changed() {
+                if shown {
+                    app.hidden.remove(name);
+                } else {
+                    app.hidden.insert(name.clone());
+                }
+            }
+            ui.label(RichText::new(units.label()).small().color(pal.muted));
+            if let Some(s) = series_status(app, name) {
+                dot(ui, severity_colour(pal, s));
+            }
+        });
+    }
+    ui.separator();
+    ui.strong("Shocks (identification order)");
+    ui.label(
+        RichText::new(
+            "Ticked shocks drive the scenario; the others keep their usual distribution.",
+        )
+        .small()
+        .color(pal.muted),
+    );
+    let order: Vec<String> = match &app.doc.file.ordering {
+        Some(o) => o.clone(),
+        None => names.iter().map(|(n, _)| n.clone()).collect(),
+    };
+    let all = app.doc.file.drivers.is_none();
+    let mut toggle = None;
+    for name in &order {
+        let mut drives = all
+            || app
+                .doc
+                .file
+                .drivers
+                .as_ref()
+                .is_some_and(|d| d.contains(name));
+        if ui.checkbox(&mut drives, format!("{name} shock")).changed() {
+            toggle = Some((name.clone(), drives));
+        }
+    }
+    if let Some((name, on)) = toggle {
+        app.doc.edit(|f| {
+            let mut d = f.drivers.clone().unwrap_or_else(|| order.clone());
+            d.retain(|x| x != &name);
+            if on {
+                d.push(name.clone());
+            }
+            // Keep the identification order; all shocks ticked means "every shock drives".
+            d.sort_by_key(|x| order.iter().position(|o| o == x));
+            f.drivers = if d.len() == order.len() {
+                None
+            } else {
+                Some(d)
+            };
+        });
+    }
+}
+
+/// A small filled circle (drawn, not a glyph).
+fn dot(ui: &mut egui::Ui, colour: Color32) {
+    let (rect, _) = ui.allocate_exact_size(egui::vec2(10.0, 10.0), egui::Sense::hover());
+    ui.painter().circle_filled(rect.center(), 4.0, colour);
+}
+
+/// The worst status of the conditions on a series.
+fn series_status(app: &TiltyardApp, name: &str) -> Option<Severity> {
+    let f = &app.doc.file;
+    let refs = f
+        .pins
+        .iter()
+        .enumerate()
+        .filter(|(_, p)| p.series.as_deref() == Some(name))
+        .map(|(k, _)| CondRef::Pin(k))
+        .chain(
+            f.corridors
+                .iter()
+                .enumerate()
+                .filter(|(_, c)| c.series.as_deref() == Some(name))
+                .map(|(k, _)| CondRef::Corridor(k)),
+        );
+    let mut worst = None;
+    for r in refs {
+        match app.status_of(r) {
+            Some(Severity::Clash) => return Some(Severity::Clash),
+            Some(s) => worst = Some(s),
+            None => {}
+        }
+    }
+    worst
+}
+
+fn chart_grid(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
+    let Some(results) = app.results.clone() else {
+        ui.centered_and_justified(|ui| {
+            ui.label("The fans appear here as soon as the engine has the first draws.");
+        });
+        return;
+    };
+    if app.stale() {
+        ui.colored_label(
+            pal.clash,
+            "The conditions clash: these are the last fans that could be drawn (greyed). See the checks.",
+        );
+    }
+    let shown: Vec<usize> = match app.enlarged {
+        Some(i) if i < results.series.len() => vec![i],
+        _ => (0..results.series.len())
+            .filter(|&i| !app.hidden.contains(&results.series[i].name))
+            .collect(),
+    };
+    let width = ui.available_width();
+    let columns = if app.enlarged.is_some() {
+        1
+    } else {
+        ((width / 360.0).floor() as usize).clamp(1, 4)
+    };
+    let height = if app.enlarged.is_some() {
+        (ui.available_height() - 60.0).max(240.0)
+    } else {
+        190.0
+    };
+    let mut actions = Vec::new();
+    egui::ScrollArea::vertical().show(ui, |ui| {
+        for row in shown.chunks(columns) {
+            ui.columns(columns, |cols| {
+                for (col, &i) in cols.iter_mut().zip(row) {
+                    let view = &results.series[i];
+                    col.horizontal(|ui| {
+                        ui.strong(&view.name);
+                        let mut units = app.doc.file.series.get(i).map(|s| s.display);
+                        egui::ComboBox::from_id_salt(("units", i))
+                            .selected_text(units.map(|u| u.label()).unwrap_or_default())
+                            .show_ui(ui, |ui| {
+                                for u in CHART_UNITS {
+                                    ui.selectable_value(&mut units, Some(u), u.label());
+                                }
+                            })
+                            .response
+                            .accessible_name(format!("units of the {} chart", view.name));
+                        if let Some(u) = units
+                            && app.doc.file.series.get(i).is_some_and(|s| s.display != u)
+                        {
+                            app.doc.edit(|f| f.series[i].display = u);
+                        }
+                        let label = if app.enlarged == Some(i) {
+                            "back to all"
+                        } else {
+                            "enlarge"
+                        };
+                        if ui.small_button(label).clicked() {
+                            actions.push((view.name.clone(), chart::ChartAction::Enlarge));
+                        }
+                    });
+                    let mut memory = app.charts.remove(&i).unwrap_or_default();
+                    let status = |r: CondRef| app.status_of(r).map(|s| severity_colour(pal, s));
+                    let input = ChartInput {
+                        index: i,
+                        view,
+                        results: &results,
+                        file: &app.doc.file,
+                        stale: app.stale(),
+                        selected: app.selected,
+                        status: &status,
+                        height,
+                        palette: pal,
+                    };
+                    for a in chart::show(col, &input, &mut memory) {
+                        actions.push((view.name.clone(), a));
+                    }
+                    app.charts.insert(i, memory);
+                }
+            });
+            ui.add_space(6.0);
+        }
+    });
+    for (series, action) in actions {
+        app.apply(&series, action);
+    }
+}
+
+fn checks(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
+    ui.strong("Checks");
+    let Some(report) = app.checks.clone() else {
+        ui.label(RichText::new("waiting for the engine…").color(pal.muted));
+        return;
+    };
+    let (verdict, colour) = match report.status {
+        Status::Clear => ("clear: the conditions hold together without strain", pal.ok),
+        Status::Strained => (
+            "strained: they hold together, but only improbably",
+            pal.strain,
+        ),
+        Status::Clashing => ("clash: the conditions cannot hold together", pal.clash),
+    };
+    ui.label(RichText::new(verdict).color(colour).strong());
+    ui.label(
+        RichText::new(format!("evaluated at {}", report.evaluated_at))
+            .small()
+            .color(pal.muted),
+    );
+    for f in &report.findings {
+        let colour = severity_colour(pal, f.severity);
+        let frame = egui::Frame::group(ui.style()).stroke(egui::Stroke::new(1.0, colour));
+        let clicked = frame
+            .show(ui, |ui| {
+                ui.label(RichText::new(&f.message).color(colour));
+                if !f.conditions.is_empty() {
+                    ui.label(
+                        RichText::new(format!("to blame: {}", f.conditions.join("; "))).small(),
+                    );
+                }
+                ui.label(
+                    RichText::new(format!("to resolve: {}", f.remedy))
+                        .small()
+                        .color(pal.muted),
+                );
+            })
+            .response
+            .interact(egui::Sense::click())
+            .on_hover_text("Click to select the first condition named here")
+            .clicked();
+        if clicked {
+            app.selected = f.fields.iter().find_map(|field| parse_field(field));
+        }
+    }
+    if let Some(c) = &report.corridors {
+        ui.label(format!(
+            "Corridors given the pins: probability 10^{:.2} (±{:.0}%), every shock free",
+            c.log10_probability,
+            100.0 * c.relative_error
+        ));
+    }
+    if let Some(p) = &report.pins {
+        ui.label(format!(
+            "Pins: {:.1} standard deviations from the unconditional forecast, jointly",
+            p.mahalanobis.sqrt()
+        ));
+    }
+    if let Some(p) = &report.plausibility {
+        ui.label(format!(
+            "Plausibility: {:.2} nats ({:.3} per period); coin {:.3}",
+            p.divergence, p.per_period, p.coin
+        ));
+        ui.label(RichText::new(&p.reading).small().italics());
+    }
+    for note in &report.notes {
+        ui.label(
+            RichText::new(format!("note: {note}"))
+                .small()
+                .color(pal.muted),
+        );
+    }
+}
+
+/// `pins[2]` or `corridors[0].lower` → the condition.
+pub fn parse_field(field: &str) -> Option<CondRef> {
+    let (kind, rest) = field.split_once('[')?;
+    let k: usize = rest.split(']').next()?.parse().ok()?;
+    match kind {
+        "pins" => Some(CondRef::Pin(k)),
+        "corridors" => Some(CondRef::Corridor(k)),
+        _ => None,
+    }
+}
+
+fn prompts(ui: &mut egui::Ui, app: &mut TiltyardApp) {
+    let Some(prompt) = app.prompt.clone() else {
+        return;
+    };
+    egui::Modal::new(egui::Id::unique("tiltyard prompt")).show(ui.ctx(), |ui| match prompt {
+        Prompt::Unsaved { then } => {
+            ui.heading("Unsaved changes");
+            ui.label(format!(
+                "Save the changes to {} first?",
+                app.doc.path.display()
+            ));
+            ui.horizontal(|ui| {
+                let mut proceed = false;
+                if ui.button("Save").clicked() {
+                    app.save();
+                    proceed = !app.doc.is_dirty();
+                }
+                if ui.button("Discard changes").clicked() {
+                    app.doc.clear_recovery();
+                    proceed = true;
+                }
+                if ui.button("Cancel").clicked() {
+                    app.prompt = None;
+                }
+                if proceed {
+                    app.prompt = None;
+                    match then {
+                        AfterSave::Open => app.pick(Purpose::Open),
+                        AfterSave::Close => app.confirm_close(),
+                    }
+                }
+            });
+        }
+        Prompt::Recover { path } => {
+            ui.heading("Unsaved edits found");
+            ui.label(format!(
+                "Edits to {} were kept when the window last closed without saving. Take them back?",
+                app.doc.path.display()
+            ));
+            ui.horizontal(|ui| {
+                if ui.button("Recover the edits").clicked() {
+                    app.recover(&path);
+                }
+                if ui.button("Discard them").clicked() {
+                    app.clear_recovery_prompt();
+                }
+            });
+        }
+    });
+}

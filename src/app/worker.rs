@@ -1,0 +1,489 @@
+//! The engine worker: one background thread that turns the scenario being edited into checks
+//! and fans, streaming partial results while the window stays responsive.
+//!
+//! Every edit sends a [`Job`] with a new generation and cancels the running one (an atomic
+//! flag checked between blocks of work). Model-level work (estimation, posterior draws and
+//! their caches) is kept while only conditions change, so an edit of a pin or corridor redoes
+//! only the checks and the sampling. Results come in tiers (ALGORITHMS §8.3): a preview at the
+//! posterior mean first, then posterior draws in blocks, fans refreshed after each. A panic
+//! inside a job is caught and reported; the thread lives on.
+
+use std::panic::{AssertUnwindSafe, catch_unwind};
+use std::path::PathBuf;
+use std::sync::Arc;
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::mpsc::{Receiver, Sender};
+use std::time::Instant;
+
+use crate::checks::{CheckReport, check_conditions};
+use crate::dataset::Period;
+use crate::forecast::{
+    Conditions, ParamSource, PathSet, Sampling, Theta, ThetaSet, build_thetas, sample_paths,
+};
+use crate::report::{FanRow, Kind, fans};
+use crate::scenario::{ScenarioError, ScenarioFile, Setup, Units, units::display_value};
+
+/// Posterior draws per block of the streamed results.
+pub const BLOCK: usize = 50;
+/// Paths of the preview at the posterior mean.
+pub const PREVIEW_PATHS: usize = 300;
+/// Years of history shown before the forecast.
+pub const HISTORY_YEARS: usize = 6;
+
+/// A request: the scenario as it now stands.
+pub struct Job {
+    pub generation: u64,
+    pub file: ScenarioFile,
+    /// The scenario's path (relative dataset paths start from its folder).
+    pub path: PathBuf,
+    pub cancel: Arc<AtomicBool>,
+}
+
+/// What the engine is doing.
+#[derive(Debug, Clone, PartialEq)]
+pub enum EngineState {
+    Idle,
+    Estimating,
+    Checking,
+    Sampling {
+        done: usize,
+        total: usize,
+    },
+    Done {
+        draws: usize,
+        seconds: f64,
+    },
+    /// The conditions clash: nothing was sampled.
+    Clashing,
+    Failed,
+}
+
+/// One series' results, in its display units. `x` is the horizon: 0 is the last
+/// observation, negative values are history.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SeriesView {
+    pub name: String,
+    pub units: Units,
+    pub history: Vec<(f64, f64)>,
+    pub conditional: Vec<FanPoint>,
+    pub unconditional: Vec<FanPoint>,
+}
+
+/// A fan at one horizon: the mean and the quantiles of [`crate::report::QUANTILES`].
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct FanPoint {
+    pub x: f64,
+    pub mean: f64,
+    pub q: [f64; 7],
+}
+
+/// Fans of all series, and how many draws they rest on.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Results {
+    pub series: Vec<SeriesView>,
+    /// Posterior draws behind the fans (0 for the preview at the posterior mean).
+    pub draws: usize,
+    pub total: usize,
+    /// True for the preview at the posterior mean (it understates uncertainty).
+    pub preview: bool,
+    /// Label of each horizon `x` from −history to h (index `x + history`).
+    pub labels: Vec<String>,
+    pub history: usize,
+    /// The last observed period (horizon 0).
+    pub last: Period,
+}
+
+impl Results {
+    /// The period label of horizon `x`.
+    pub fn label(&self, x: f64) -> Option<&str> {
+        let k = x.round() as i64 + self.history as i64;
+        usize::try_from(k)
+            .ok()
+            .and_then(|k| self.labels.get(k))
+            .map(String::as_str)
+    }
+}
+
+/// Messages from the worker; each carries the generation of its job.
+#[derive(Debug, Clone)]
+pub enum Message {
+    State(u64, EngineState),
+    Model(u64, String),
+    Checks(u64, Box<CheckReport>),
+    Results(u64, Arc<Results>),
+    Failed(u64, String),
+}
+
+/// Model-level work kept between jobs.
+struct ModelCache {
+    key: String,
+    source: ParamSource,
+    central: Theta,
+    central_label: String,
+    thetas: ThetaSet,
+    model_line: String,
+}
+
+/// The worker's loop: take the newest job, run it, report.
+pub fn run(rx: Receiver<Job>, tx: Sender<Message>, wake: impl Fn() + Send + 'static) {
+    let mut cache: Option<ModelCache> = None;
+    run_with(rx, tx, wake, move |job, send| {
+        process(job, &mut cache, send)
+    });
+}
+
+/// The loop with the work itself passed in (tests pass work that fails or panics). A job's
+/// error becomes a `Failed` message; so does a panic, after which the loop goes on.
+pub fn run_with(
+    rx: Receiver<Job>,
+    tx: Sender<Message>,
+    wake: impl Fn() + Send + 'static,
+    mut work: impl FnMut(&Job, &dyn Fn(Message)) -> Result<(), String>,
+) {
+    while let Ok(mut job) = rx.recv() {
+        while let Ok(newer) = rx.try_recv() {
+            job = newer;
+        }
+        let g = job.generation;
+        let send = |m: Message| {
+            let _ = tx.send(m);
+            wake();
+        };
+        let outcome = catch_unwind(AssertUnwindSafe(|| work(&job, &send)));
+        let failure = match outcome {
+            Ok(Ok(())) => None,
+            Ok(Err(message)) => Some(message),
+            Err(panic) => {
+                let text = panic
+                    .downcast_ref::<&str>()
+                    .map(|s| s.to_string())
+                    .or_else(|| panic.downcast_ref::<String>().cloned())
+                    .unwrap_or_else(|| "unknown cause".into());
+                Some(format!(
+                    "the engine stopped on an internal error ({text}); the scenario is unchanged, and the next edit starts it again"
+                ))
+            }
+        };
+        if let Some(message) = failure {
+            send(Message::Failed(g, message));
+            send(Message::State(g, EngineState::Failed));
+        }
+    }
+}
+
+/// Everything that decides the posterior draws: the file without its conditions, name and
+/// narrative.
+fn model_key(file: &ScenarioFile) -> String {
+    let mut f = file.clone();
+    f.pins.clear();
+    f.corridors.clear();
+    f.drivers = None;
+    f.name.clear();
+    f.narrative.clear();
+    f.checks = Default::default();
+    f.reweight = false;
+    for s in &mut f.series {
+        s.display = Units::Level;
+    }
+    crate::scenario::to_text(&f)
+}
+
+fn text(e: impl std::fmt::Display) -> String {
+    e.to_string()
+}
+
+fn process(
+    job: &Job,
+    cache: &mut Option<ModelCache>,
+    send: &dyn Fn(Message),
+) -> Result<(), String> {
+    let g = job.generation;
+    let cancelled = || job.cancel.load(Ordering::Relaxed);
+    let start = Instant::now();
+    crate::scenario::setup::check_counts(&job.file).map_err(text)?;
+    let setup = Setup::new(job.file.clone(), &job.path).map_err(text)?;
+    let key = model_key(&job.file);
+    if cache.as_ref().is_none_or(|c| c.key != key) {
+        send(Message::State(g, EngineState::Estimating));
+        *cache = Some(estimate(&setup, key, &job.cancel)?);
+    }
+    let Some(model) = cache.as_ref() else {
+        return Err("no model".into());
+    };
+    send(Message::Model(g, model.model_line.clone()));
+    if cancelled() {
+        return Ok(());
+    }
+    let (conditions, problems) = setup.read_conditions();
+    // First fans fast: the preview at the central θ, before the checks (which take longer).
+    // Invalid conditions are clashes; no preview is shown for them.
+    let preview = if problems.is_empty() {
+        match preview(&setup, model, &conditions, job) {
+            Ok(paths) => {
+                let fixed = matches!(model.source, ParamSource::Fixed(_));
+                let total = if fixed { 0 } else { model.thetas.thetas.len() };
+                send(Message::Results(
+                    g,
+                    Arc::new(results(&setup, &paths, 0, total, !fixed)),
+                ));
+                Ok(())
+            }
+            Err(e) => Err(e),
+        }
+    } else {
+        Ok(())
+    };
+    if cancelled() {
+        return Ok(());
+    }
+    send(Message::State(g, EngineState::Checking));
+    let invalid = problems.iter().map(invalid_finding).collect();
+    let report = check_conditions(
+        &model.central,
+        &conditions,
+        &setup.file.checks,
+        setup.file.seed,
+        &model.central_label,
+        invalid,
+    );
+    let clashes = report.clashes();
+    send(Message::Checks(g, Box::new(report)));
+    if clashes {
+        send(Message::State(g, EngineState::Clashing));
+        return Ok(());
+    }
+    match preview {
+        Err(crate::forecast::ForecastError::Cancelled) => Ok(()),
+        Err(e) => Err(e.to_string()),
+        Ok(()) => posterior(&setup, model, &conditions, job, send, start),
+    }
+}
+
+fn estimate(setup: &Setup, key: String, cancel: &AtomicBool) -> Result<ModelCache, String> {
+    let (source, fit) = setup.estimate().map_err(text)?;
+    let file = &setup.file;
+    let (params, central_label) = match &source {
+        ParamSource::Fixed(p) => (p.clone(), "the fixed coefficients"),
+        ParamSource::Posterior(post) => (
+            post.mean()
+                .ok_or("too few observations for the posterior mean of Σ")?,
+            "the posterior mean of the parameters",
+        ),
+    };
+    let tail = setup.tail().map_err(text)?;
+    let central = Theta::new(params, &setup.ordering, &tail, file.horizon).map_err(text)?;
+    let count = match source {
+        ParamSource::Fixed(_) => 1,
+        ParamSource::Posterior(_) => file.draws,
+    };
+    let thetas = build_thetas(
+        &source,
+        &setup.ordering,
+        &tail,
+        file.horizon,
+        count,
+        file.seed,
+        cancel,
+    )
+    .map_err(text)?;
+    let p = setup.lags();
+    let model_line = match (&fit, &source) {
+        (_, ParamSource::Fixed(_)) => format!(
+            "{} series · VAR({p}), fixed coefficients · {}–{}",
+            setup.n(),
+            setup.dataset.first_period(),
+            setup.last_period()
+        ),
+        (Some(fit), _) => format!(
+            "{} series · VAR({p}){} · T = {} · {} draws",
+            setup.n(),
+            fit.lambda
+                .map(|l| format!(", Minnesota prior, tightness {l:.3}"))
+                .unwrap_or_else(|| ", flat prior".into()),
+            fit.observations,
+            file.draws
+        ),
+        (None, _) => format!("{} series · VAR({p})", setup.n()),
+    };
+    Ok(ModelCache {
+        key,
+        source,
+        central,
+        central_label: central_label.into(),
+        thetas,
+        model_line,
+    })
+}
+
+fn invalid_finding(e: &ScenarioError) -> crate::checks::Finding {
+    let field = match e {
+        ScenarioError::Invalid { field, .. }
+        | ScenarioError::Condition { field, .. }
+        | ScenarioError::UnknownSeries { field, .. }
+        | ScenarioError::UnknownShock { field, .. } => field.clone(),
+        _ => String::new(),
+    };
+    crate::checks::Finding {
+        severity: crate::checks::Severity::Clash,
+        kind: "invalid_condition".into(),
+        conditions: Vec::new(),
+        fields: vec![field],
+        message: e.to_string(),
+        remedy: "correct the field named here".into(),
+        minimal: None,
+    }
+}
+
+fn sampling(file: &ScenarioFile, paths_per_theta: usize) -> Sampling {
+    Sampling {
+        paths_per_theta,
+        seed: file.seed,
+        reweight: false,
+        min_acceptance: file.checks.min_acceptance,
+    }
+}
+
+/// Tier 0: paths at the central θ alone (for fixed coefficients, all the paths there are).
+fn preview(
+    setup: &Setup,
+    model: &ModelCache,
+    conditions: &Conditions,
+    job: &Job,
+) -> Result<PathSet, crate::forecast::ForecastError> {
+    let file = &setup.file;
+    let central = ThetaSet {
+        thetas: vec![model.central.clone()],
+        fixed: true,
+        explosive: 0,
+        median_root: f64::NAN,
+    };
+    let paths = match model.source {
+        ParamSource::Fixed(_) => file.draws * file.paths_per_draw,
+        ParamSource::Posterior(_) => PREVIEW_PATHS,
+    };
+    sample_paths(
+        &central,
+        0..1,
+        conditions,
+        sampling(file, paths),
+        &job.cancel,
+    )
+}
+
+/// Tier 1: posterior draws in blocks, fans after each (nothing more for fixed coefficients).
+fn posterior(
+    setup: &Setup,
+    model: &ModelCache,
+    conditions: &Conditions,
+    job: &Job,
+    send: &dyn Fn(Message),
+    start: Instant,
+) -> Result<(), String> {
+    let g = job.generation;
+    let file = &setup.file;
+    let total = match model.source {
+        ParamSource::Fixed(_) => 0,
+        ParamSource::Posterior(_) => model.thetas.thetas.len(),
+    };
+    let mut all = PathSet::default();
+    let mut done = 0;
+    while done < total {
+        if job.cancel.load(Ordering::Relaxed) {
+            return Ok(());
+        }
+        send(Message::State(g, EngineState::Sampling { done, total }));
+        let end = (done + BLOCK).min(total);
+        let block = sample_paths(
+            &model.thetas,
+            done..end,
+            conditions,
+            sampling(file, file.paths_per_draw),
+            &job.cancel,
+        );
+        let block = match block {
+            Ok(b) => b,
+            Err(crate::forecast::ForecastError::Cancelled) => return Ok(()),
+            Err(e) => return Err(e.to_string()),
+        };
+        all.conditional.extend(block.conditional);
+        all.unconditional.extend(block.unconditional);
+        done = end;
+        send(Message::Results(
+            g,
+            Arc::new(results(setup, &all, done, total, false)),
+        ));
+    }
+    send(Message::State(
+        g,
+        EngineState::Done {
+            draws: total,
+            seconds: start.elapsed().as_secs_f64(),
+        },
+    ));
+    Ok(())
+}
+
+/// Fans and history of every series in display units.
+fn results(setup: &Setup, paths: &PathSet, draws: usize, total: usize, preview: bool) -> Results {
+    let cond = fans(setup, &paths.conditional, None, Kind::Conditional);
+    let uncond = fans(setup, &paths.unconditional, None, Kind::Unconditional);
+    let h = setup.file.horizon;
+    let history = HISTORY_YEARS * setup.periods_per_year();
+    let history = history.min(setup.dataset.len().saturating_sub(1));
+    let point = |r: &FanRow| FanPoint {
+        x: r.horizon as f64,
+        mean: r.mean,
+        q: r.quantiles,
+    };
+    let last = setup.last_period();
+    let labels = (-(history as i64)..=h as i64)
+        .map(|t| last.offset(t).to_string())
+        .collect();
+    let series = (0..setup.n())
+        .map(|i| {
+            let col = &setup.columns[i];
+            let x = |s: i64| -> Option<f64> {
+                if s >= 1 {
+                    None
+                } else {
+                    col.len().checked_sub(1 + (-s) as usize).map(|k| col[k])
+                }
+            };
+            let mut hist: Vec<(f64, f64)> = (-(history as i64)..=0)
+                .filter_map(|t| {
+                    display_value(
+                        setup.display[i],
+                        setup.transforms[i],
+                        setup.periods_per_year(),
+                        t,
+                        &x,
+                    )
+                    .map(|v| (t as f64, v))
+                })
+                .collect();
+            hist.retain(|(_, v)| v.is_finite());
+            let pick = |rows: &[FanRow]| -> Vec<FanPoint> {
+                rows.iter()
+                    .filter(|r| r.series == setup.names[i])
+                    .map(point)
+                    .collect()
+            };
+            SeriesView {
+                name: setup.names[i].clone(),
+                units: setup.display[i],
+                history: hist,
+                conditional: pick(&cond),
+                unconditional: pick(&uncond),
+            }
+        })
+        .collect();
+    Results {
+        series,
+        draws,
+        total,
+        preview,
+        labels,
+        history,
+        last,
+    }
+}
