@@ -252,3 +252,34 @@ fn worker_survives_a_panic() {
         }
     }
 }
+
+/// The model settings are in the window; changing the lags re-estimates in the background
+/// (the model line follows), while an edit of a condition does not re-estimate.
+#[test]
+fn model_settings_re_estimate_in_the_background() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut h = harness(&demo_copy(&dir));
+    settle(&mut h);
+    assert!(
+        h.state().model_line.contains("VAR(2)"),
+        "{}",
+        h.state().model_line
+    );
+    h.get_by_label("Model settings").click();
+    h.run_steps(2);
+    assert!(
+        h.query_all_by_label("lags").count() >= 1,
+        "the lags field is shown"
+    );
+    h.state_mut().doc.edit(|f| {
+        if let scenario::ModelSpec::Minnesota(m) = &mut f.model {
+            m.lags = 3;
+        }
+    });
+    settle(&mut h);
+    assert!(
+        h.state().model_line.contains("VAR(3)"),
+        "{}",
+        h.state().model_line
+    );
+}

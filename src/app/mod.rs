@@ -8,6 +8,7 @@
 //! - [`worker`]: the engine thread and its messages;
 //! - [`chart`]: one series' chart and its gestures;
 //! - [`panels`]: the bars and side panels; [`table`]: the conditions table;
+//!   [`settings`]: the model settings;
 //! - [`files`]: file dialogs off the window's thread; [`palette`]: colours.
 
 pub mod chart;
@@ -15,6 +16,7 @@ pub mod document;
 pub mod files;
 pub mod palette;
 pub mod panels;
+pub mod settings;
 pub mod table;
 pub mod worker;
 
@@ -169,6 +171,8 @@ impl TiltyardApp {
         self.job_started = Instant::now();
         self.first_update = None;
         self.engine_error = None;
+        // Until the worker reports on the new job, the old job's state no longer applies.
+        self.state = EngineState::Idle;
         let job = Job {
             generation: self.generation,
             file: self.doc.file.clone(),

@@ -40,7 +40,13 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp) {
     egui::Panel::left("series")
         .resizable(true)
         .default_size(210.0)
-        .show(ui, |ui| series_list(ui, app, &pal));
+        .show(ui, |ui| {
+            egui::ScrollArea::vertical().show(ui, |ui| {
+                series_list(ui, app, &pal);
+                ui.separator();
+                super::settings::show(ui, app, &pal);
+            });
+        });
     egui::Panel::right("conditions")
         .resizable(true)
         .default_size(430.0)
@@ -102,7 +108,7 @@ fn top_bar(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
 
 fn engine_text(state: &EngineState, pal: &Palette) -> (String, Color32) {
     match state {
-        EngineState::Idle => ("idle".into(), pal.muted),
+        EngineState::Idle => ("waiting for the engine…".into(), pal.muted),
         EngineState::Estimating => ("estimating the model…".into(), pal.fan),
         EngineState::Checking => ("checking the conditions…".into(), pal.fan),
         EngineState::Sampling { done, total } => (format!("sampling {done}/{total}"), pal.fan),

@@ -42,6 +42,7 @@ pub struct Job {
 /// What the engine is doing.
 #[derive(Debug, Clone, PartialEq)]
 pub enum EngineState {
+    /// A job was sent and the worker has not reported on it yet.
     Idle,
     Estimating,
     Checking,

@@ -1,0 +1,176 @@
+//! The model settings: lags, prior tightness (chosen by marginal likelihood or set), the
+//! estimation window, draws, seed, horizon and the identification ordering. Any change here
+//! makes the worker re-estimate in the background (the top bar says so); edits of conditions
+//! never do.
+
+use egui::{RichText, Ui};
+
+use super::TiltyardApp;
+use super::palette::Palette;
+use crate::model::{Tightness, Window};
+use crate::scenario::ModelSpec;
+
+pub fn show(ui: &mut Ui, app: &mut TiltyardApp, pal: &Palette) {
+    egui::CollapsingHeader::new("Model settings")
+        .default_open(false)
+        .show(ui, |ui| body(ui, app, pal));
+}
+
+fn body(ui: &mut Ui, app: &mut TiltyardApp, pal: &Palette) {
+    let mut file = app.doc.file.clone();
+    let mut gesture = None;
+    let track = |r: &egui::Response, g: &mut Option<bool>| {
+        if r.drag_started() || r.gained_focus() {
+            *g = Some(true);
+        }
+        if r.drag_stopped() || r.lost_focus() {
+            *g = Some(false);
+        }
+    };
+    egui::Grid::new("model settings")
+        .num_columns(2)
+        .show(ui, |ui| {
+            match &mut file.model {
+                ModelSpec::Minnesota(m) => {
+                    ui.label("prior");
+                    ui.label("Minnesota");
+                    ui.end_row();
+                    ui.label("lags");
+                    let r = ui
+                        .add(egui::DragValue::new(&mut m.lags).range(1..=12))
+                        .accessible_name("lags");
+                    track(&r, &mut gesture);
+                    ui.end_row();
+                    ui.label("tightness");
+                    ui.horizontal(|ui| {
+                        let mut auto = m.tightness == Tightness::Auto;
+                        if ui.checkbox(&mut auto, "by marginal likelihood").changed() {
+                            m.tightness = if auto {
+                                Tightness::Auto
+                            } else {
+                                Tightness::Fixed(0.2)
+                            };
+                        }
+                        if let Tightness::Fixed(l) = &mut m.tightness {
+                            let r = ui
+                                .add(egui::DragValue::new(l).range(0.001..=5.0).speed(0.005))
+                                .accessible_name("tightness");
+                            track(&r, &mut gesture);
+                        }
+                    });
+                    ui.end_row();
+                    window_row(ui, &mut m.window, &mut gesture, &track);
+                }
+                ModelSpec::Flat(f) => {
+                    ui.label("prior");
+                    ui.label("flat");
+                    ui.end_row();
+                    ui.label("lags");
+                    let r = ui
+                        .add(egui::DragValue::new(&mut f.lags).range(1..=12))
+                        .accessible_name("lags");
+                    track(&r, &mut gesture);
+                    ui.end_row();
+                    window_row(ui, &mut f.window, &mut gesture, &track);
+                }
+                ModelSpec::Fixed(f) => {
+                    ui.label("model");
+                    ui.label(format!("fixed coefficients, {} lags", f.lags.len()));
+                    ui.end_row();
+                }
+            }
+            ui.label("horizon");
+            let r = ui
+                .add(egui::DragValue::new(&mut file.horizon).range(1..=120))
+                .accessible_name("horizon");
+            track(&r, &mut gesture);
+            ui.end_row();
+            ui.label("draws");
+            let r = ui
+                .add(
+                    egui::DragValue::new(&mut file.draws)
+                        .range(10..=20_000)
+                        .speed(10),
+                )
+                .accessible_name("draws");
+            track(&r, &mut gesture);
+            ui.end_row();
+            ui.label("seed");
+            let r = ui
+                .add(egui::DragValue::new(&mut file.seed))
+                .accessible_name("seed");
+            track(&r, &mut gesture);
+            ui.end_row();
+        });
+    ui.label(
+        RichText::new(
+            "Identification order (a shock moves the series below it on impact, not those above)",
+        )
+        .small()
+        .color(pal.muted),
+    );
+    let mut order: Vec<String> = file
+        .ordering
+        .clone()
+        .unwrap_or_else(|| file.series.iter().map(|s| s.name.clone()).collect());
+    let mut swap = None;
+    for (k, name) in order.iter().enumerate() {
+        ui.horizontal(|ui| {
+            ui.label(format!("{}. {name}", k + 1));
+            if ui
+                .add_enabled(k > 0, egui::Button::new("up").small())
+                .clicked()
+            {
+                swap = Some(k - 1);
+            }
+            if ui
+                .add_enabled(k + 1 < order.len(), egui::Button::new("down").small())
+                .clicked()
+            {
+                swap = Some(k);
+            }
+        });
+    }
+    if let Some(k) = swap {
+        order.swap(k, k + 1);
+        file.ordering = Some(order);
+    }
+    match gesture {
+        Some(true) => app.doc.begin_gesture(),
+        Some(false) => app.doc.end_gesture(),
+        None => {}
+    }
+    if file != app.doc.file {
+        app.doc.edit(|f| *f = file);
+    }
+}
+
+fn window_row(
+    ui: &mut Ui,
+    window: &mut Option<Window>,
+    gesture: &mut Option<bool>,
+    track: &impl Fn(&egui::Response, &mut Option<bool>),
+) {
+    ui.label("estimation window");
+    ui.horizontal(|ui| {
+        let w = window.get_or_insert_with(Window::default);
+        for (name, end) in [("from", &mut w.from), ("to", &mut w.to)] {
+            let mut text = end.clone().unwrap_or_default();
+            let r = ui
+                .add(
+                    egui::TextEdit::singleline(&mut text)
+                        .desired_width(64.0)
+                        .hint_text(if name == "from" { "first" } else { "last" }),
+                )
+                .accessible_name(name);
+            track(&r, gesture);
+            if r.changed() {
+                *end = (!text.trim().is_empty()).then(|| text.trim().to_string());
+            }
+        }
+        if w.from.is_none() && w.to.is_none() {
+            *window = None;
+        }
+    });
+    ui.end_row();
+}
