@@ -1,6 +1,8 @@
 //! The scenario window, driven headless with egui_kittest: opening a scenario from a path
-//! shows its series; a drag on a chart moves a pin (and undo restores it); a Shift+drag draws a
-//! corridor that appears in the table and reaches the engine; Delete removes it; the worker
+//! shows its series; a drag on a chart moves a pin (and undo restores it); a drag across
+//! future periods draws a corridor that appears in the table and reaches the engine; Delete
+//! removes it; corridor edges and ends move; the shocks view takes conditions on shocks; a
+//! clashing scenario shows its clash; unsaved edits come back after a crash; the worker
 //! cancels stale jobs and survives a panic. No file dialog is ever opened.
 #![cfg(feature = "gui")]
 
@@ -16,7 +18,7 @@ use egui_kittest::kittest::Queryable;
 use egui_plot::PlotPoint;
 use tiltyard::app::TiltyardApp;
 use tiltyard::app::files::PathPicker;
-use tiltyard::app::worker::{self, EngineState, Job, Message};
+use tiltyard::app::worker::{self, EngineState, Job, Message, Subject};
 use tiltyard::scenario;
 
 /// Tests never open a dialog.
@@ -28,6 +30,25 @@ impl PathPicker for NoDialogs {
     }
     fn save(&self, _: &Path, _: &str) -> Option<PathBuf> {
         panic!("a test opened a file dialog")
+    }
+    fn dataset(&self, _: &Path) -> Option<PathBuf> {
+        panic!("a test opened a file dialog")
+    }
+}
+
+/// Answers every save dialog with one path (and records that it was asked).
+struct SaveTo(PathBuf, Arc<AtomicBool>);
+
+impl PathPicker for SaveTo {
+    fn open(&self, _: &Path) -> Option<PathBuf> {
+        None
+    }
+    fn save(&self, _: &Path, _: &str) -> Option<PathBuf> {
+        self.1.store(true, std::sync::atomic::Ordering::SeqCst);
+        Some(self.0.clone())
+    }
+    fn dataset(&self, _: &Path) -> Option<PathBuf> {
+        None
     }
 }
 
@@ -44,7 +65,11 @@ fn demo_copy(dir: &tempfile::TempDir) -> PathBuf {
 }
 
 fn harness(path: &Path) -> Harness<'static, TiltyardApp> {
-    let app = TiltyardApp::new(path, Arc::new(NoDialogs), Arc::new(|| {}));
+    harness_with(path, Arc::new(NoDialogs))
+}
+
+fn harness_with(path: &Path, picker: Arc<dyn PathPicker>) -> Harness<'static, TiltyardApp> {
+    let app = TiltyardApp::new(path, picker, Arc::new(|| {}));
     Harness::builder()
         .with_size(Vec2::new(1500.0, 950.0))
         .build_ui_state(|ui, app: &mut TiltyardApp| app.ui(ui), app)
@@ -69,10 +94,30 @@ fn settle(h: &mut Harness<'static, TiltyardApp>) {
     h.run_steps(2);
 }
 
-/// Screen position of a value on chart `i`.
+/// Screen position of a value on series chart `i`.
 fn screen(h: &Harness<'static, TiltyardApp>, i: usize, x: f64, y: f64) -> Pos2 {
-    let t = h.state().charts[&i].transform.expect("the chart was drawn");
+    screen_of(h, Subject::Series, i, x, y)
+}
+
+fn screen_of(h: &Harness<'static, TiltyardApp>, s: Subject, i: usize, x: f64, y: f64) -> Pos2 {
+    let t = h.state().charts[&(s, i)]
+        .transform
+        .expect("the chart was drawn");
     t.position_from_point(&PlotPoint::new(x, y))
+}
+
+/// Press at `from`, move in steps to `to`, release.
+fn drag(h: &mut Harness<'static, TiltyardApp>, from: Pos2, to: Pos2) {
+    h.hover_at(from);
+    h.step();
+    h.drag_at(from);
+    h.step();
+    for k in 1..=5 {
+        h.hover_at(from + (to - from) * (k as f32 / 5.0));
+        h.step();
+    }
+    h.drop_at(to);
+    h.step();
 }
 
 fn horizon(h: &Harness<'static, TiltyardApp>, label: &str) -> f64 {
@@ -111,16 +156,7 @@ fn dragging_a_pin_changes_its_value_and_undo_restores_it() {
     let x = horizon(&h, "2027Q2");
     let from = screen(&h, 5, x, before);
     let to = screen(&h, 5, x, before + 4.0);
-    h.hover_at(from);
-    h.step();
-    h.drag_at(from);
-    h.step();
-    for k in 1..=5 {
-        h.hover_at(from + (to - from) * (k as f32 / 5.0));
-        h.step();
-    }
-    h.drop_at(to);
-    h.step();
+    drag(&mut h, from, to);
     let after = h.state().doc.file.pins[1].value;
     assert!((after - (before + 4.0)).abs() < 0.5, "pin moved to {after}");
     // The engine got the new value.
@@ -135,7 +171,7 @@ fn dragging_a_pin_changes_its_value_and_undo_restores_it() {
 }
 
 #[test]
-fn shift_drag_draws_a_corridor_and_delete_removes_it() {
+fn a_drag_across_future_periods_draws_a_corridor_and_delete_removes_it() {
     let dir = tempfile::tempdir().unwrap();
     let mut h = harness(&demo_copy(&dir));
     settle(&mut h);
@@ -144,19 +180,7 @@ fn shift_drag_draws_a_corridor_and_delete_removes_it() {
     let (x0, x1) = (horizon(&h, "2026Q3"), horizon(&h, "2027Q1"));
     let from = screen(&h, 0, x0, 0.0);
     let to = screen(&h, 0, x1, 2.0);
-    h.event(egui::Event::ModifiersChanged(Modifiers::SHIFT));
-    h.hover_at(from);
-    h.step();
-    h.drag_at(from);
-    h.step();
-    for k in 1..=5 {
-        h.hover_at(from + (to - from) * (k as f32 / 5.0));
-        h.step();
-    }
-    h.drop_at(to);
-    h.step();
-    h.event(egui::Event::ModifiersChanged(Modifiers::NONE));
-    h.step();
+    drag(&mut h, from, to);
     let app = h.state();
     assert_eq!(app.doc.file.corridors.len(), count + 1);
     let c = app.doc.file.corridors.last().unwrap().clone();
@@ -175,8 +199,8 @@ fn shift_drag_draws_a_corridor_and_delete_removes_it() {
     assert_eq!(h.state().doc.file.corridors.len(), count);
 }
 
-/// The worker drops stale jobs: of two jobs sent back to back, only the newer one finishes;
-/// a job cancelled in flight stops without a result.
+/// The worker drops stale jobs: a job cancelled while it samples stops without finishing,
+/// and the next one finishes.
 #[test]
 fn worker_cancels_stale_jobs() {
     let dir = tempfile::tempdir().unwrap();
@@ -186,25 +210,37 @@ fn worker_cancels_stale_jobs() {
     let (tx, rx) = channel();
     std::thread::spawn(move || worker::run(job_rx, tx, || {}));
     let old = Arc::new(AtomicBool::new(false));
-    for (g, cancel) in [(1, old.clone()), (2, Arc::new(AtomicBool::new(false)))] {
-        jobs.send(Job {
-            generation: g,
-            file: file.clone(),
-            path: path.clone(),
-            cancel,
-        })
-        .unwrap();
+    let job = |generation, draws, cancel| Job {
+        generation,
+        file: scenario::ScenarioFile {
+            draws,
+            ..file.clone()
+        },
+        path: path.clone(),
+        cancel,
+    };
+    // Job 1 is long enough to be caught in flight.
+    jobs.send(job(1, 4000, old.clone())).unwrap();
+    // Wait until job 1 is sampling its posterior draws, then cancel it and send job 2.
+    loop {
+        match rx.recv_timeout(Duration::from_secs(120)).unwrap() {
+            Message::State(1, EngineState::Sampling { .. }) => break,
+            Message::Failed(g, m) => panic!("job {g} failed: {m}"),
+            _ => {}
+        }
     }
     old.store(true, std::sync::atomic::Ordering::Relaxed);
+    jobs.send(job(2, 100, Arc::new(AtomicBool::new(false))))
+        .unwrap();
     let mut done = Vec::new();
-    while done.is_empty() {
+    while !done.contains(&2) {
         match rx.recv_timeout(Duration::from_secs(120)).unwrap() {
             Message::State(g, EngineState::Done { .. }) => done.push(g),
             Message::Failed(g, m) => panic!("job {g} failed: {m}"),
             _ => {}
         }
     }
-    assert_eq!(done, vec![2]);
+    assert_eq!(done, vec![2], "the cancelled job never finished");
 }
 
 /// A panic inside a job is reported as a failure of that job, and the worker takes the next.
@@ -282,4 +318,435 @@ fn model_settings_re_estimate_in_the_background() {
         "{}",
         h.state().model_line
     );
+}
+
+/// A corridor's upper edge moves at every period; Ctrl on its lower edge moves one period
+/// only (the side becomes one bound per period, as many as the corridor has); its last end
+/// moves sideways, taking its per-period bounds along; each drag is one undo step.
+#[test]
+fn corridor_edges_and_ends_move() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut h = harness(&demo_copy(&dir));
+    settle(&mut h);
+    // corridors[2]: policy_rate (series 3, level), 2026Q1–2027Q4, between 1 and 3.
+    let original = h.state().doc.file.corridors[2].clone();
+    assert_eq!(
+        (original.from.as_str(), original.to.as_str()),
+        ("2026Q1", "2027Q4")
+    );
+    let x = horizon(&h, "2026Q3");
+    // The upper edge, all periods: up by about half a point.
+    let (a, b) = (screen(&h, 3, x, 3.0), screen(&h, 3, x, 3.5));
+    drag(&mut h, a, b);
+    let c = h.state().doc.file.corridors[2].clone();
+    let Some(scenario::Bound::Same(up)) = c.upper else {
+        panic!("upper bound {:?}", c.upper)
+    };
+    assert!((up - 3.5).abs() < 0.15, "upper edge moved to {up}");
+    assert_eq!(c.lower, original.lower);
+    // The lower edge at 2026Q3 only (Ctrl): down by about half a point.
+    h.event(egui::Event::ModifiersChanged(Modifiers::COMMAND));
+    let (a, b) = (screen(&h, 3, x, 1.0), screen(&h, 3, x, 0.5));
+    drag(&mut h, a, b);
+    h.event(egui::Event::ModifiersChanged(Modifiers::NONE));
+    h.step();
+    let c = h.state().doc.file.corridors[2].clone();
+    let Some(scenario::Bound::Each(lower)) = c.lower else {
+        panic!("lower bound {:?}", c.lower)
+    };
+    assert_eq!(lower.len(), 8, "one bound per period of 2026Q1–2027Q4");
+    for (k, v) in lower.iter().enumerate() {
+        let v = v.expect("no period opened");
+        if k == 2 {
+            assert!((v - 0.5).abs() < 0.15, "2026Q3 lower bound {v}");
+        } else {
+            assert_eq!(v, 1.0, "period {k} kept its bound");
+        }
+    }
+    // The last end, from 2027Q4 back to 2027Q2 (grabbed on the corridor's right side).
+    let (e0, e1) = (horizon(&h, "2027Q4") + 0.45, horizon(&h, "2027Q2") + 0.45);
+    let (a, b) = (screen(&h, 3, e0, 2.0), screen(&h, 3, e1, 2.0));
+    drag(&mut h, a, b);
+    let c = h.state().doc.file.corridors[2].clone();
+    assert_eq!((c.from.as_str(), c.to.as_str()), ("2026Q1", "2027Q2"));
+    let Some(scenario::Bound::Each(lower)) = &c.lower else {
+        panic!("lower bound {:?}", c.lower)
+    };
+    assert_eq!(lower.len(), 6);
+    // The engine takes the edited corridor: no invalid condition.
+    settle(&mut h);
+    let checks = h.state().checks.clone().unwrap();
+    assert!(
+        checks
+            .findings
+            .iter()
+            .all(|f| f.kind != "invalid_condition"),
+        "{:?}",
+        checks.findings
+    );
+    // Three drags, three undo steps.
+    for _ in 0..3 {
+        h.key_press_modifiers(Modifiers::COMMAND, egui::Key::Z);
+        h.step();
+    }
+    assert_eq!(h.state().doc.file.corridors[2], original);
+}
+
+/// The shocks view draws each structural shock and takes conditions on it. Its fans are
+/// checked against what the model implies: without conditions each shock is N(0, 1), so the
+/// half-width of the central 90% band from 100 paths averages E[(q̂95 − q̂05)/2] = 1.59602
+/// (linear-interpolation quantiles of 100 standard normals; expected order statistics by
+/// numerical integration with scipy, not the asymptotic 1.64485); a pinned shock equals its
+/// pin on every path; a corridor on a shock holds on every path.
+#[test]
+fn the_shocks_view_draws_shocks_and_takes_conditions_on_them() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut h = harness(&demo_copy(&dir));
+    settle(&mut h);
+    h.get_by_label("Structural shocks").click();
+    h.run_steps(3);
+    assert_eq!(h.state().view, Subject::Shock);
+    // Output's shock (index 0): a corridor over 2026Q2–2026Q4 between −2 and −0.5.
+    let (x0, x1) = (horizon(&h, "2026Q2"), horizon(&h, "2026Q4"));
+    let from = screen_of(&h, Subject::Shock, 0, x0, -2.0);
+    let to = screen_of(&h, Subject::Shock, 0, x1, -0.5);
+    drag(&mut h, from, to);
+    let c = h.state().doc.file.corridors.last().unwrap().clone();
+    assert_eq!(c.shock.as_deref(), Some("output"));
+    assert_eq!(c.series, None);
+    assert_eq!((c.from.as_str(), c.to.as_str()), ("2026Q2", "2026Q4"));
+    let (Some(scenario::Bound::Same(lo)), Some(scenario::Bound::Same(hi))) =
+        (c.lower.clone(), c.upper.clone())
+    else {
+        panic!("bounds {c:?}")
+    };
+    assert!(
+        (lo + 2.0).abs() < 0.1 && (hi + 0.5).abs() < 0.1,
+        "{lo} … {hi}"
+    );
+    // And a pin on the credit-spread shock in 2026Q1, as the table would add it.
+    h.state_mut().doc.edit(|f| {
+        f.pins.push(scenario::PinSpec {
+            series: None,
+            shock: Some("credit_spread".into()),
+            period: "2026Q1".into(),
+            units: scenario::Units::Level,
+            value: 1.5,
+            active: true,
+        })
+    });
+    settle(&mut h);
+    let r = h.state().results.clone().unwrap();
+    assert_eq!(r.draws, 100);
+    let shock = |name: &str| r.shocks.iter().find(|s| s.name == name).unwrap();
+    // Unconditional fans: 10 shocks × 12 periods, independent cells; the per-cell standard
+    // deviation of the half-width is 0.139 (numpy, 200 000 replications), so the mean over
+    // 120 cells has standard error 0.0127.
+    let widths: Vec<f64> = r
+        .shocks
+        .iter()
+        .flat_map(|s| s.unconditional.iter().map(|f| (f.q[6] - f.q[0]) / 2.0))
+        .collect();
+    assert_eq!(widths.len(), 120);
+    let mean = widths.iter().sum::<f64>() / 120.0;
+    assert!(
+        (mean - 1.59602).abs() < 4.0 * 0.0127,
+        "mean half-width {mean}"
+    );
+    let centre = r
+        .shocks
+        .iter()
+        .flat_map(|s| s.unconditional.iter().map(|f| f.mean))
+        .sum::<f64>()
+        / 120.0;
+    assert!(
+        centre.abs() < 4.0 * 0.1 / 120f64.sqrt(),
+        "mean shock {centre}"
+    );
+    // The pinned shock equals its pin on every path (under each path's own parameters).
+    let pinned = shock("credit_spread").conditional[0];
+    assert!(
+        pinned.q.iter().all(|q| (q - 1.5).abs() < 1e-8),
+        "{:?}",
+        pinned.q
+    );
+    // The corridor holds on every path.
+    for f in &shock("output").conditional[1..4] {
+        assert!(f.q[0] >= lo - 1e-9 && f.q[6] <= hi + 1e-9, "{:?}", f.q);
+    }
+}
+
+/// A clashing scenario opens on its clash: the engine samples nothing, the checks name the
+/// conditions (their rows and the status are red), and the window still shows fans (drawn
+/// without the conditions, greyed) rather than an empty screen.
+#[test]
+fn a_clashing_scenario_opens_on_its_clash() {
+    let dir = tempfile::tempdir().unwrap();
+    let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("scenarios-demo");
+    let mut file = scenario::read(&root.join("clash.ron")).unwrap();
+    file.dataset = root.join("economy.csv").display().to_string();
+    file.draws = 100;
+    let path = dir.path().join("clash.ron");
+    std::fs::write(&path, scenario::to_text(&file)).unwrap();
+    let mut h = harness(&path);
+    let start = Instant::now();
+    while h.state().state != EngineState::Clashing || h.state().results.is_none() {
+        h.step();
+        assert!(
+            start.elapsed() < Duration::from_secs(120),
+            "{:?}",
+            h.state().state
+        );
+        std::thread::sleep(Duration::from_millis(20));
+    }
+    h.run_steps(2);
+    let app = h.state();
+    assert!(app.stale());
+    assert!(app.results.as_ref().unwrap().without_conditions);
+    let clash = app
+        .checks
+        .as_ref()
+        .unwrap()
+        .findings
+        .iter()
+        .find(|f| f.severity == tiltyard::checks::Severity::Clash)
+        .expect("a clash is reported")
+        .clone();
+    // The pin at 9% and the unemployment corridor are both to blame, and marked.
+    let blamed: Vec<_> = clash
+        .fields
+        .iter()
+        .filter_map(|f| tiltyard::app::panels::parse_field(f))
+        .collect();
+    assert!(blamed.len() >= 2, "{clash:?}");
+    for c in blamed {
+        assert_eq!(app.status_of(c), Some(tiltyard::checks::Severity::Clash));
+    }
+    assert!(
+        h.query_all_by_label_contains("conditions clash").count() >= 1,
+        "the clash is said"
+    );
+}
+
+/// Edits kept in the recovery file by a session that did not end cleanly are offered at the
+/// next start, come back as one undo step, and are saved with Ctrl+S (which removes the
+/// recovery file).
+#[test]
+fn unsaved_edits_come_back_after_a_crash() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = demo_copy(&dir);
+    let mut edited = scenario::read(&path).unwrap();
+    edited.pins[0].value = 4.25;
+    let recovery = tiltyard::app::document::recovery_path(&path);
+    std::fs::write(&recovery, scenario::to_text(&edited)).unwrap();
+    // The scenario file is older than its recovery file.
+    let old = std::time::SystemTime::now() - Duration::from_secs(60);
+    std::fs::File::options()
+        .write(true)
+        .open(&path)
+        .unwrap()
+        .set_modified(old)
+        .unwrap();
+    let mut h = harness(&path);
+    h.run_steps(2);
+    assert!(h.query_by_label_contains("Unsaved edits found").is_some());
+    // Shortcuts wait while the question is asked.
+    h.key_press_modifiers(Modifiers::COMMAND, egui::Key::S);
+    h.run_steps(2);
+    assert!(recovery.exists());
+    h.get_by_label("Recover the edits").click();
+    h.run_steps(2);
+    assert!(h.state().prompt.is_none());
+    assert_eq!(h.state().doc.file, edited);
+    assert!(h.state().doc.is_dirty() && h.state().doc.can_undo());
+    h.key_press_modifiers(Modifiers::COMMAND, egui::Key::S);
+    h.run_steps(2);
+    assert_eq!(scenario::read(&path).unwrap(), edited);
+    let start = Instant::now();
+    while recovery.exists() {
+        assert!(
+            start.elapsed() < Duration::from_secs(10),
+            "recovery file kept"
+        );
+        std::thread::sleep(Duration::from_millis(10));
+    }
+}
+
+/// A scenario file that cannot be read opens as a blank scenario, and Save then asks where
+/// (the unreadable file is never overwritten).
+#[test]
+fn a_scenario_that_cannot_be_read_is_never_overwritten() {
+    let dir = tempfile::tempdir().unwrap();
+    let broken = dir.path().join("broken.ron");
+    let text = "(name: \"half typed\", dataset: ";
+    std::fs::write(&broken, text).unwrap();
+    let elsewhere = dir.path().join("elsewhere.ron");
+    let asked = Arc::new(AtomicBool::new(false));
+    let mut h = harness_with(&broken, Arc::new(SaveTo(elsewhere.clone(), asked.clone())));
+    h.run_steps(2);
+    assert!(
+        h.query_by_label_contains("cannot open the scenario")
+            .is_some()
+    );
+    assert!(h.state().doc.untitled);
+    h.state_mut().doc.edit(|f| f.name = "rescued".into());
+    h.key_press_modifiers(Modifiers::COMMAND, egui::Key::S);
+    let start = Instant::now();
+    while !elsewhere.exists() {
+        h.step();
+        assert!(start.elapsed() < Duration::from_secs(10), "nothing saved");
+        std::thread::sleep(Duration::from_millis(10));
+    }
+    assert!(asked.load(std::sync::atomic::Ordering::SeqCst));
+    assert_eq!(std::fs::read_to_string(&broken).unwrap(), text);
+    assert_eq!(scenario::read(&elsewhere).unwrap().name, "rescued");
+    h.run_steps(2);
+    assert!(!h.state().doc.untitled);
+}
+
+/// A new scenario starts from a dataset: every column a series, no conditions, unsaved; the
+/// engine estimates it and draws its fans.
+#[test]
+fn a_new_scenario_starts_from_a_dataset() {
+    let dir = tempfile::tempdir().unwrap();
+    let data = dir.path().join("economy.csv");
+    let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("scenarios-demo");
+    std::fs::copy(root.join("economy.csv"), &data).unwrap();
+    let mut h = harness(&demo_copy(&dir));
+    settle(&mut h);
+    h.state_mut().new_from_dataset(&data);
+    h.state_mut().doc.edit(|f| f.draws = 100);
+    settle(&mut h);
+    let app = h.state();
+    assert!(app.doc.untitled && app.doc.is_dirty());
+    assert_eq!(app.doc.file.series.len(), 10);
+    assert!(app.doc.file.pins.is_empty() && app.doc.file.corridors.is_empty());
+    assert_eq!(app.doc.path, dir.path().join("economy-scenario.ron"));
+    let r = app.results.as_ref().unwrap();
+    assert_eq!((r.series.len(), r.draws), (10, 100));
+    assert_eq!(r.series[0].conditional.len(), 8, "two years of quarters");
+    assert_eq!(
+        app.checks.as_ref().unwrap().status,
+        tiltyard::checks::Status::Clear
+    );
+}
+
+/// The arrow keys nudge the selected condition: up and down by its chart's step, left and
+/// right by a period (one undo step each); G turns snapping off and on.
+#[test]
+fn arrow_keys_nudge_the_selected_condition() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut h = harness(&demo_copy(&dir));
+    settle(&mut h);
+    // pins[0]: credit_spread (series 7) at 2026Q3 = 3.5.
+    h.state_mut().selected = Some(tiltyard::app::chart::CondRef::Pin(0));
+    let step = h.state().charts[&(Subject::Series, 7)].step;
+    assert!(step > 0.0);
+    h.key_press(egui::Key::ArrowUp);
+    h.key_press(egui::Key::ArrowRight);
+    h.step();
+    let p = h.state().doc.file.pins[0].clone();
+    assert_eq!(p.value, tiltyard::app::chart::tidy(3.5 + step));
+    assert_eq!(p.period, "2026Q4");
+    h.key_press_modifiers(Modifiers::COMMAND, egui::Key::Z);
+    h.step();
+    assert_eq!(h.state().doc.file.pins[0].period, "2026Q3");
+    // A corridor moves as a whole: corridors[2] (policy rate, 1 … 3) down one step.
+    h.state_mut().selected = Some(tiltyard::app::chart::CondRef::Corridor(2));
+    h.key_press(egui::Key::ArrowDown);
+    h.step();
+    let c = h.state().doc.file.corridors[2].clone();
+    let step = h.state().charts[&(Subject::Series, 3)].step;
+    assert_eq!(
+        c.lower,
+        Some(scenario::Bound::Same(tiltyard::app::chart::tidy(
+            1.0 - step
+        )))
+    );
+    assert_eq!(
+        c.upper,
+        Some(scenario::Bound::Same(tiltyard::app::chart::tidy(
+            3.0 - step
+        )))
+    );
+    assert!(h.state().snapping);
+    h.key_press(egui::Key::G);
+    h.step();
+    assert!(!h.state().snapping);
+}
+
+/// The window's fans, streamed in blocks, are the headless run's fans: the same paths, to the
+/// last digit (every path has its own random stream), with and without reweighting.
+#[test]
+fn the_window_draws_the_same_fans_as_the_headless_run() {
+    for reweight in [false, true] {
+        let dir = tempfile::tempdir().unwrap();
+        let path = demo_copy(&dir);
+        let mut file = scenario::read(&path).unwrap();
+        file.reweight = reweight;
+        std::fs::write(&path, scenario::to_text(&file)).unwrap();
+        let mut setup = scenario::load(&path).unwrap();
+        let out = tiltyard::run::run(&mut setup, &Default::default()).unwrap();
+        let mut h = harness(&path);
+        settle(&mut h);
+        let r = h.state().results.clone().unwrap();
+        assert_eq!(r.draws, 100);
+        assert_eq!(r.effective_draws.is_some(), reweight);
+        let mut compared = 0;
+        for row in &out.fans {
+            let view = r.series.iter().find(|s| s.name == row.series).unwrap();
+            let fan = match row.kind {
+                tiltyard::report::Kind::Conditional => &view.conditional,
+                tiltyard::report::Kind::Unconditional => &view.unconditional,
+            };
+            let point = fan.iter().find(|f| f.x == row.horizon as f64).unwrap();
+            for (a, b) in point.q.iter().zip(&row.quantiles) {
+                assert!(
+                    (a - b).abs() <= 1e-12 * (1.0 + b.abs()),
+                    "{row:?}: {a} vs {b}"
+                );
+            }
+            compared += 1;
+        }
+        assert_eq!(compared, 2 * 10 * 12);
+    }
+}
+
+/// A period typed in the table applies when the field is left (not at every keystroke), as
+/// one undo step, and a corridor's per-period bounds follow its new length.
+#[test]
+fn a_period_typed_in_the_table_applies_when_the_field_is_left() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut h = harness(&demo_copy(&dir));
+    settle(&mut h);
+    // corridors[1]: unemployment, 2027Q1–2027Q4, lower [6.5, 6.8, 7.0, 7.0].
+    let before = h.state().doc.file.corridors[1].clone();
+    h.get_all_by_label("to").nth(1).unwrap().click();
+    h.run_steps(2);
+    h.key_press_modifiers(Modifiers::COMMAND, egui::Key::A);
+    h.get_all_by_label("to").nth(1).unwrap().type_text("2028Q2");
+    h.run_steps(2);
+    assert_eq!(
+        h.state().doc.file.corridors[1],
+        before,
+        "nothing applied while typing"
+    );
+    h.key_press(egui::Key::Enter);
+    h.run_steps(2);
+    let c = h.state().doc.file.corridors[1].clone();
+    assert_eq!(c.to, "2028Q2");
+    assert_eq!(
+        c.lower,
+        Some(scenario::Bound::Each(vec![
+            Some(6.5),
+            Some(6.8),
+            Some(7.0),
+            Some(7.0),
+            Some(7.0),
+            Some(7.0)
+        ]))
+    );
+    h.key_press_modifiers(Modifiers::COMMAND, egui::Key::Z);
+    h.run_steps(2);
+    assert_eq!(h.state().doc.file.corridors[1], before);
 }

@@ -2,18 +2,23 @@
 //! fan (50/68/90% bands and the median), a line at the last observation, and the pins and
 //! corridors on this series in the chart's units, with handles.
 //!
+//! The same chart shows a structural shock (standardised, future periods only) in the shocks
+//! view, with the conditions on that shock.
+//!
 //! Gestures (hit-tested in screen pixels, so the tolerance does not depend on zoom):
-//! drag a pin up and down; drag a corridor's upper or lower edge (all its periods, or with Alt
-//! only the period under the pointer); Ctrl+click a future period to place a pin; Shift+drag
-//! across future periods to draw a corridor; right-click a handle to remove its condition.
-//! Values snap to readable steps; hold Alt while dragging a pin to move it freely. The chart
-//! never pans or zooms, so a drag always means an edit.
+//! drag a pin up and down; drag a corridor's upper or lower edge (all its periods, or with Ctrl
+//! only the period under the pointer) or its first or last period sideways; Ctrl+click a future
+//! period to place a pin; drag across empty future periods to draw a corridor; right-click a
+//! handle to remove its condition. Values snap to readable steps; hold Shift to move freely
+//! (G turns snapping off and on; Shift then snaps).
+//! The chart never pans or zooms, so a drag always means an edit, and its value range stays
+//! put while a drag lasts.
 
 use egui::{Color32, Pos2, Stroke};
 use egui_plot::{FilledArea, GridMark, Line, LineStyle, Plot, PlotPoint, Points, Polygon, VLine};
 
 use super::palette::Palette;
-use super::worker::{Results, SeriesView};
+use super::worker::{Results, SeriesView, Subject};
 use crate::scenario::{Bound, ScenarioFile, Units};
 
 /// A condition of the scenario file, by list and index.
@@ -42,20 +47,33 @@ pub enum ChartAction {
         pin: usize,
         value: f64,
     },
-    /// Shift one bound of a corridor by `delta`, at every period or at `period` only.
+    /// Shift one bound of a corridor by `delta`, at every period or at `period` only (of
+    /// `periods`).
     MoveBound {
         corridor: usize,
         upper: bool,
         delta: f64,
         period: Option<usize>,
+        periods: usize,
     },
+    /// Move a corridor's first (or last) period by `shift` periods, to `label`.
+    MoveEnd {
+        corridor: usize,
+        last: bool,
+        shift: i64,
+        label: String,
+    },
+    /// A new pin, in the chart's units.
     AddPin {
         period: String,
+        units: Units,
         value: f64,
     },
+    /// A new corridor, in the chart's units.
     AddCorridor {
         from: String,
         to: String,
+        units: Units,
         lower: f64,
         upper: f64,
     },
@@ -67,14 +85,25 @@ pub enum ChartAction {
 /// A gesture in progress on one chart.
 #[derive(Debug, Clone, PartialEq)]
 pub enum Drag {
+    /// The pin moves by the pointer's travel from where it was grabbed (so grabbing it
+    /// off-centre does not make it jump): `start` value and pointer, `value` now.
     Pin {
         pin: usize,
+        start: f64,
+        start_y: f64,
+        value: f64,
     },
     Bound {
         corridor: usize,
         upper: bool,
         period: Option<usize>,
         last_y: f64,
+    },
+    End {
+        corridor: usize,
+        last: bool,
+        /// Horizon the end now sits at.
+        at: i64,
     },
     NewCorridor {
         start: PlotPoint,
@@ -86,12 +115,14 @@ pub enum Drag {
 #[derive(Debug, Clone, Default)]
 pub struct ChartMemory {
     pub drag: Option<Drag>,
-    /// The pointer was over a handle last frame (the plot is told before it runs).
+    /// The pointer is over a handle.
     pub over_handle: bool,
     /// The condition a right-click landed on.
     pub context: Option<CondRef>,
     /// The plot's last transform between values and screen positions.
     pub transform: Option<egui_plot::PlotTransform>,
+    /// The chart's snapping step (the arrow keys nudge by it).
+    pub step: f64,
 }
 
 /// Everything a chart needs to draw itself.
@@ -107,6 +138,8 @@ pub struct ChartInput<'a> {
     pub status: &'a dyn Fn(CondRef) -> Option<Color32>,
     pub height: f32,
     pub palette: &'a Palette,
+    /// Values snap to readable steps (Shift inverts this while held).
+    pub snapping: bool,
 }
 
 /// Pixels within which a pointer picks a handle.
@@ -130,7 +163,22 @@ pub fn snap_step(range: f64) -> f64 {
 }
 
 pub fn snap(value: f64, step: f64) -> f64 {
-    (value / step).round() * step
+    tidy((value / step).round() * step)
+}
+
+/// `x` rounded to 12 significant digits, so that sums of readable steps stay readable
+/// (0.7, not 0.7000000000000001).
+pub fn tidy(x: f64) -> f64 {
+    if x == 0.0 || !x.is_finite() {
+        return x;
+    }
+    let digits = 12 - x.abs().log10().ceil() as i32;
+    if !(0..=290).contains(&digits) {
+        return x;
+    }
+    let scale = 10f64.powi(digits);
+    let y = (x * scale).round() / scale;
+    if y.is_finite() { y } else { x }
 }
 
 /// Horizon of a period label (`None` if it does not parse).
@@ -151,9 +199,17 @@ pub fn bounds(b: &Option<Bound>, periods: usize) -> Vec<Option<f64>> {
     }
 }
 
-/// Whether a condition on `series`/`units` is drawn on a chart of `name` in `chart_units`.
-fn on_chart(series: &Option<String>, units: Units, name: &str, chart_units: Units) -> bool {
-    series.as_deref() == Some(name) && units == chart_units
+/// Whether a condition on `series` or `shock` in `units` is drawn on the chart of `view`.
+fn on_chart(
+    series: &Option<String>,
+    shock: &Option<String>,
+    units: Units,
+    view: &SeriesView,
+) -> bool {
+    match view.subject {
+        Subject::Series => series.as_deref() == Some(&view.name) && units == view.units,
+        Subject::Shock => shock.as_deref() == Some(&view.name),
+    }
 }
 
 /// A corridor as drawn: its index, first horizon, and per-period (lower, upper) bounds.
@@ -164,9 +220,13 @@ struct Handles {
     pins: Vec<(usize, Pos2)>,
     /// Corridor index, upper?, period offset, screen segment (x0, x1, y).
     edges: Vec<(usize, bool, usize, f32, f32, f32)>,
+    /// Corridor index, last?, horizon, screen segment (x, y0, y1) at its outer side.
+    ends: Vec<(usize, bool, i64, f32, f32, f32)>,
 }
 
 impl Handles {
+    /// The handle nearest `pos` within [`PICK`] pixels; pins first, then whichever edge or end
+    /// is nearer.
     fn pick(&self, pos: Pos2) -> Option<Pick> {
         let pin = self
             .pins
@@ -177,19 +237,40 @@ impl Handles {
         if let Some((k, _)) = pin {
             return Some(Pick::Pin(k));
         }
-        self.edges
+        let edges = self
+            .edges
             .iter()
             .filter(|&&(_, _, _, x0, x1, y)| {
                 pos.x >= x0 && pos.x <= x1 && (pos.y - y).abs() <= PICK
             })
-            .min_by(|a, b| (pos.y - a.5).abs().total_cmp(&(pos.y - b.5).abs()))
-            .map(|&(c, upper, period, ..)| Pick::Edge(c, upper, period))
+            .map(|&(c, upper, period, _, _, y)| ((pos.y - y).abs(), Pick::Edge(c, upper, period)));
+        let ends = self
+            .ends
+            .iter()
+            .filter(|&&(_, _, _, x, y0, y1)| {
+                pos.y >= y0.min(y1) && pos.y <= y0.max(y1) && (pos.x - x).abs() <= PICK
+            })
+            .map(|&(c, last, at, x, ..)| ((pos.x - x).abs(), Pick::End(c, last, at)));
+        edges
+            .chain(ends)
+            .min_by(|a, b| a.0.total_cmp(&b.0))
+            .map(|(_, pick)| pick)
     }
 }
 
 enum Pick {
     Pin(usize),
     Edge(usize, bool, usize),
+    End(usize, bool, i64),
+}
+
+impl Pick {
+    fn condition(&self) -> CondRef {
+        match *self {
+            Pick::Pin(k) => CondRef::Pin(k),
+            Pick::Edge(c, ..) | Pick::End(c, ..) => CondRef::Corridor(c),
+        }
+    }
 }
 
 /// Draw the chart and turn gestures into actions.
@@ -198,8 +279,6 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
     let view = input.view;
     let pal = input.palette;
     let results = input.results;
-    let name = view.name.clone();
-    let units = view.units;
     let h = results.labels.len() as i64 - results.history as i64 - 1;
     // Value range of the data, for open corridor sides and snapping.
     let mut lo = f64::INFINITY;
@@ -218,13 +297,14 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
     let pad = 0.15 * (hi - lo).max(1e-6);
     let (open_lo, open_hi) = (lo - pad, hi + pad);
     let step = snap_step(hi - lo);
+    memory.step = step;
 
     let pins: Vec<(usize, f64, f64)> = input
         .file
         .pins
         .iter()
         .enumerate()
-        .filter(|(_, p)| p.active && on_chart(&p.series, p.units, &name, units))
+        .filter(|(_, p)| p.active && on_chart(&p.series, &p.shock, p.units, view))
         .filter_map(|(k, p)| horizon(results, &p.period).map(|t| (k, t as f64, p.value)))
         .collect();
     // Corridors: (index, first horizon, per-period (lower, upper)).
@@ -233,9 +313,13 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
         .corridors
         .iter()
         .enumerate()
-        .filter(|(_, c)| c.active && on_chart(&c.series, c.units, &name, units))
+        .filter(|(_, c)| c.active && on_chart(&c.series, &c.shock, c.units, view))
         .filter_map(|(k, c)| {
             let (a, b) = (horizon(results, &c.from)?, horizon(results, &c.to)?);
+            // Only corridors within the forecast are drawn (the checks name the others).
+            if a < 1 || b > h {
+                return None;
+            }
             let n = usize::try_from(b - a + 1).ok()?;
             let lower = bounds(&c.lower, n);
             let upper = bounds(&c.upper, n);
@@ -244,11 +328,17 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
         .collect();
 
     let dragging = memory.drag.is_some();
+    let free = ui.input(|i| i.modifiers.shift) == input.snapping;
+    let free_or_snap = |y: f64| if free { y } else { snap(y, step) };
     let label_results = results;
     let label_view = view;
-    let plot = Plot::new(("chart", input.index))
+    let first_x = match view.subject {
+        Subject::Series => -(results.history as f64) - 0.5,
+        Subject::Shock => -0.5,
+    };
+    let plot = Plot::new(("chart", view.subject, input.index))
         .height(input.height)
-        .include_x(-(results.history as f64) - 0.5)
+        .include_x(first_x)
         .include_x(h as f64 + 0.6)
         .allow_drag(false)
         .allow_zoom(false)
@@ -283,15 +373,9 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
             }
             Some(text)
         });
-    let plot = if dragging {
-        plot.include_y(open_lo).include_y(open_hi)
-    } else {
-        plot
-    };
     let response = plot.show(ui, |pui| {
-        if dragging {
-            pui.set_auto_bounds(false);
-        }
+        // The range stays put under a drag, and follows the fans otherwise.
+        pui.set_auto_bounds(!dragging);
         let fan_colour = if input.stale { pal.stale } else { pal.fan };
         // Unconditional fan, muted, then the conditional one.
         let xs: Vec<f64> = view.unconditional.iter().map(|f| f.x).collect();
@@ -360,6 +444,7 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
         let mut handles = Handles {
             pins: Vec::new(),
             edges: Vec::new(),
+            ends: Vec::new(),
         };
         for (c, first, periods) in &corridors {
             let cref = CondRef::Corridor(*c);
@@ -394,6 +479,17 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
                         .edges
                         .push((*c, true, k, x0, x1, t.position_from_point_y(*v)));
                 }
+                // The outer sides of the first and last periods move the ends.
+                let (y0, y1) = (t.position_from_point_y(yl), t.position_from_point_y(yu));
+                let last = *first + periods.len() as i64 - 1;
+                if k == 0 {
+                    let xe = t.position_from_point_x(x - 0.45);
+                    handles.ends.push((*c, false, *first, xe, y0, y1));
+                }
+                if k + 1 == periods.len() {
+                    let xe = t.position_from_point_x(x + 0.45);
+                    handles.ends.push((*c, true, last, xe, y0, y1));
+                }
             }
         }
         for &(k, x, v) in &pins {
@@ -419,8 +515,15 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
                 .push((k, t.position_from_point(&PlotPoint::new(x, v))));
         }
         if let Some(Drag::NewCorridor { start, now }) = &memory.drag {
-            let (x0, x1) = (start.x.min(now.x).round(), start.x.max(now.x).round());
-            let (y0, y1) = (start.y.min(now.y), start.y.max(now.y));
+            // Drawn as it will be made: whole future periods, snapped values.
+            let (x0, x1) = (
+                start.x.min(now.x).round().max(1.0),
+                start.x.max(now.x).round().min(h as f64),
+            );
+            let (y0, y1) = (
+                free_or_snap(start.y.min(now.y)),
+                free_or_snap(start.y.max(now.y)),
+            );
             pui.polygon(
                 Polygon::new(
                     "new corridor",
@@ -439,7 +542,7 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
         (handles, t)
     });
     let (handles, t) = response.inner;
-    memory.transform = Some(t);
+    memory.transform = Some(response.transform);
     let r = &response.response;
     let (pointer, press, modifiers, primary_released) = ui.input(|i| {
         (
@@ -449,66 +552,133 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
             i.pointer.primary_released(),
         )
     });
-    memory.over_handle = pointer.is_some_and(|p| r.rect.contains(p) && handles.pick(p).is_some());
-    if memory.over_handle || memory.drag.is_some() {
+    let hovered = pointer
+        .filter(|p| r.rect.contains(*p))
+        .and_then(|p| handles.pick(p));
+    memory.over_handle = hovered.is_some();
+    let sideways = matches!(memory.drag, Some(Drag::End { .. }))
+        || (memory.drag.is_none() && matches!(hovered, Some(Pick::End(..))));
+    if sideways {
+        ui.ctx().set_cursor_icon(egui::CursorIcon::ResizeHorizontal);
+    } else if memory.over_handle || memory.drag.is_some() {
         ui.ctx().set_cursor_icon(egui::CursorIcon::ResizeVertical);
     }
     let value_at = |p: Pos2| t.value_from_position(p);
-    let snapped = |y: f64| if modifiers.alt { y } else { snap(y, step) };
 
     // Start of a gesture.
     if r.drag_started()
         && let Some(origin) = press
     {
         let at = value_at(origin);
-        if modifiers.shift {
-            if at.x.round() >= 1.0 {
-                memory.drag = Some(Drag::NewCorridor { start: at, now: at });
-            }
-        } else {
-            match handles.pick(origin) {
-                Some(Pick::Pin(k)) => {
-                    memory.drag = Some(Drag::Pin { pin: k });
-                    actions.push(ChartAction::Select(Some(CondRef::Pin(k))));
-                    actions.push(ChartAction::BeginGesture);
-                }
-                Some(Pick::Edge(c, upper, k)) => {
-                    memory.drag = Some(Drag::Bound {
+        match handles.pick(origin) {
+            Some(pick) => {
+                memory.drag = Some(match pick {
+                    Pick::Pin(k) => {
+                        let value = pins.iter().find(|p| p.0 == k).map_or(at.y, |p| p.2);
+                        Drag::Pin {
+                            pin: k,
+                            start: value,
+                            start_y: at.y,
+                            value,
+                        }
+                    }
+                    Pick::Edge(c, upper, k) => Drag::Bound {
                         corridor: c,
                         upper,
-                        period: modifiers.alt.then_some(k),
-                        last_y: snap(at.y, step),
-                    });
-                    actions.push(ChartAction::Select(Some(CondRef::Corridor(c))));
-                    actions.push(ChartAction::BeginGesture);
-                }
-                None => {}
+                        period: modifiers.command.then_some(k),
+                        last_y: at.y,
+                    },
+                    Pick::End(c, last, at) => Drag::End {
+                        corridor: c,
+                        last,
+                        at,
+                    },
+                });
+                actions.push(ChartAction::Select(Some(pick.condition())));
+                actions.push(ChartAction::BeginGesture);
             }
+            None if at.x.round() >= 1.0 => {
+                memory.drag = Some(Drag::NewCorridor { start: at, now: at });
+            }
+            None => {}
         }
     }
     // The gesture goes on.
     if let (Some(drag), Some(p)) = (memory.drag.as_mut(), pointer) {
         let at = value_at(p);
         match drag {
-            Drag::Pin { pin } => actions.push(ChartAction::SetPin {
-                pin: *pin,
-                value: snapped(at.y),
-            }),
+            Drag::Pin {
+                pin,
+                start,
+                start_y,
+                value,
+            } => {
+                let v = free_or_snap(*start + at.y - *start_y);
+                if at.y != *start_y && v != *value {
+                    actions.push(ChartAction::SetPin {
+                        pin: *pin,
+                        value: v,
+                    });
+                    *value = v;
+                }
+            }
             Drag::Bound {
                 corridor,
                 upper,
                 period,
                 last_y,
             } => {
-                let y = snap(at.y, step);
-                if y != *last_y {
+                // Move by whole steps of the pointer's travel (any travel with Shift).
+                let travel = at.y - *last_y;
+                let delta = free_or_snap(travel);
+                if delta != 0.0 {
+                    let periods = corridors
+                        .iter()
+                        .find(|(c, ..)| c == corridor)
+                        .map_or(0, |d| d.2.len());
                     actions.push(ChartAction::MoveBound {
                         corridor: *corridor,
                         upper: *upper,
-                        delta: y - *last_y,
+                        delta,
                         period: *period,
+                        periods,
                     });
-                    *last_y = y;
+                    *last_y += delta;
+                }
+            }
+            Drag::End {
+                corridor,
+                last,
+                at: end,
+            } => {
+                // Keep the end within the forecast and on its side of the other end.
+                let other =
+                    corridors
+                        .iter()
+                        .find(|(c, ..)| c == corridor)
+                        .map(|(_, first, periods)| {
+                            if *last {
+                                *first
+                            } else {
+                                first + periods.len() as i64 - 1
+                            }
+                        });
+                let x = at.x.round() as i64;
+                let x = match (other, *last) {
+                    (Some(o), true) => x.clamp(o, h),
+                    (Some(o), false) => x.clamp(1, o),
+                    (None, _) => *end,
+                };
+                if x != *end
+                    && let Some(label) = results.label(x as f64)
+                {
+                    actions.push(ChartAction::MoveEnd {
+                        corridor: *corridor,
+                        last: *last,
+                        shift: x - *end,
+                        label: label.to_string(),
+                    });
+                    *end = x;
                 }
             }
             Drag::NewCorridor { now, .. } => *now = at,
@@ -523,8 +693,8 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
                     start.x.max(now.x).round().min(h as f64),
                 );
                 let (y0, y1) = (
-                    snap(start.y.min(now.y), step),
-                    snap(start.y.max(now.y), step),
+                    free_or_snap(start.y.min(now.y)),
+                    free_or_snap(start.y.max(now.y)),
                 );
                 if x1 >= x0
                     && y1 > y0
@@ -533,6 +703,7 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
                     actions.push(ChartAction::AddCorridor {
                         from: from.to_string(),
                         to: to.to_string(),
+                        units: view.units,
                         lower: y0,
                         upper: y1,
                     });
@@ -548,33 +719,28 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
         let at = value_at(p);
         if modifiers.command {
             let x = at.x.round();
-            if x >= 1.0
+            // A second click on a period that has a pin selects it (no duplicate pins).
+            if let Some(&(k, ..)) = pins.iter().find(|p| p.1 == x) {
+                actions.push(ChartAction::Select(Some(CondRef::Pin(k))));
+            } else if x >= 1.0
                 && x <= h as f64
                 && let Some(period) = results.label(x)
             {
                 actions.push(ChartAction::AddPin {
                     period: period.to_string(),
-                    value: snapped(at.y),
+                    units: view.units,
+                    value: free_or_snap(at.y),
                 });
             }
         } else {
-            let picked = handles.pick(p).map(|pick| match pick {
-                Pick::Pin(k) => CondRef::Pin(k),
-                Pick::Edge(c, ..) => CondRef::Corridor(c),
-            });
-            actions.push(ChartAction::Select(picked));
+            actions.push(ChartAction::Select(handles.pick(p).map(|k| k.condition())));
         }
     }
-    if r.double_clicked() {
+    if r.double_clicked() && !modifiers.command {
         actions.push(ChartAction::Enlarge);
     }
     if r.secondary_clicked() {
-        memory.context = pointer
-            .and_then(|p| handles.pick(p))
-            .map(|pick| match pick {
-                Pick::Pin(k) => CondRef::Pin(k),
-                Pick::Edge(c, ..) => CondRef::Corridor(c),
-            });
+        memory.context = pointer.and_then(|p| handles.pick(p)).map(|k| k.condition());
     }
     if let Some(cref) = memory.context {
         r.context_menu(|ui| {
@@ -588,17 +754,22 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
             }
         });
     }
+    let elsewhere_units = |series: &Option<String>, units: Units| {
+        view.subject == Subject::Series
+            && series.as_deref() == Some(view.name.as_str())
+            && units != view.units
+    };
     let elsewhere = input
         .file
         .pins
         .iter()
-        .filter(|p| p.active && p.series.as_deref() == Some(name.as_str()) && p.units != units)
+        .filter(|p| p.active && elsewhere_units(&p.series, p.units))
         .count()
         + input
             .file
             .corridors
             .iter()
-            .filter(|c| c.active && c.series.as_deref() == Some(name.as_str()) && c.units != units)
+            .filter(|c| c.active && elsewhere_units(&c.series, c.units))
             .count();
     if elsewhere > 0 {
         ui.label(
@@ -610,4 +781,23 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
         );
     }
     actions
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Steps are 1, 2 or 5 times a power of ten near a fiftieth of the range, and snapped
+    /// values print as typed (decimal arithmetic by hand).
+    #[test]
+    fn steps_and_snapped_values_are_readable() {
+        assert_eq!(snap_step(10.0), 0.2);
+        assert_eq!(snap_step(3.0), 0.05);
+        assert_eq!(snap_step(400.0), 10.0);
+        assert_eq!(snap(-4.79, 0.2).to_string(), "-4.8");
+        assert_eq!(snap(0.31, 0.1).to_string(), "0.3");
+        assert_eq!(tidy(1.0 - 0.1 - 0.1 - 0.1).to_string(), "0.7");
+        assert_eq!(tidy(123456.7 + 0.1), 123456.8);
+        assert_eq!(tidy(-1e-320), -1e-320);
+    }
 }

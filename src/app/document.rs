@@ -13,8 +13,12 @@ const HISTORY: usize = 200;
 #[derive(Debug, Clone)]
 pub struct Document {
     pub file: ScenarioFile,
-    /// Where the scenario was opened from or last saved to.
+    /// Where the scenario was opened from or last saved to (for a new or unreadable scenario,
+    /// where it would go: its folder is where relative dataset paths start).
     pub path: PathBuf,
+    /// Not yet saved anywhere, or its file could not be read: Save asks where (it must never
+    /// overwrite a file the window could not read).
+    pub untitled: bool,
     /// The file as last opened or saved (to tell unsaved changes).
     saved: ScenarioFile,
     undo: Vec<ScenarioFile>,
@@ -36,6 +40,7 @@ impl Document {
             saved: file.clone(),
             file,
             path,
+            untitled: false,
             undo: Vec::new(),
             redo: Vec::new(),
             in_gesture: false,
@@ -59,10 +64,10 @@ impl Document {
     }
 
     /// Start a gesture: the first edit inside it makes the undo step; later ones join it.
+    /// (The redo branch goes only when an edit is made: focusing a field keeps it.)
     pub fn begin_gesture(&mut self) {
         if !self.in_gesture {
             self.undo.push(self.file.clone());
-            self.redo.clear();
             self.in_gesture = true;
         }
     }
@@ -118,13 +123,19 @@ impl Document {
     /// Save atomically to `path` (write a temporary file beside it, then rename), and make it
     /// the document's path. Relative dataset paths are rewritten so that they still point at
     /// the same file from the new folder.
+    /// The undo history is rewritten the same way, so that undoing after a move still finds
+    /// the dataset.
     pub fn save_as(&mut self, path: &Path) -> std::io::Result<()> {
         let mut file = self.file.clone();
         file.dataset = rebase(&self.path, path, &file.dataset);
         write_atomic(path, &scenario::to_text(&file))?;
+        for f in self.undo.iter_mut().chain(&mut self.redo) {
+            f.dataset = rebase(&self.path, path, &f.dataset);
+        }
         self.file = file.clone();
         self.saved = file;
         self.path = path.to_path_buf();
+        self.untitled = false;
         Ok(())
     }
 
@@ -136,16 +147,6 @@ impl Document {
     /// Where unsaved edits of this scenario are kept against a crash: beside the file, hidden.
     pub fn recovery_path(&self) -> PathBuf {
         recovery_path(&self.path)
-    }
-
-    /// Write the current edits to the recovery file (atomically).
-    pub fn write_recovery(&self) -> std::io::Result<()> {
-        write_atomic(&self.recovery_path(), &scenario::to_text(&self.file))
-    }
-
-    /// Remove the recovery file (after a save, or when the user declines it).
-    pub fn clear_recovery(&self) {
-        let _ = std::fs::remove_file(self.recovery_path());
     }
 }
 
@@ -262,7 +263,7 @@ mod tests {
         doc.path = dir.path().join("baseline.ron");
         doc.edit(|f| f.pins[0].value = 2.6);
         assert!(doc.is_dirty());
-        doc.write_recovery().unwrap();
+        write_atomic(&doc.recovery_path(), &scenario::to_text(&doc.file)).unwrap();
         let recovered = scenario::read(&doc.recovery_path()).unwrap();
         assert_eq!(recovered, doc.file);
         let path = dir.path().join("mine.ron");
@@ -277,8 +278,6 @@ mod tests {
         let reread = Document::open(&path).unwrap();
         assert_eq!(reread.file.pins[0].value, 2.6);
         assert!(scenario::load(&path).is_ok(), "the dataset is still found");
-        doc.clear_recovery();
-        assert!(!doc.recovery_path().exists());
     }
 
     /// A relative dataset path is rewritten when the scenario moves to another folder.

@@ -1,10 +1,14 @@
-//! File dialogs off the window's thread. Dialogs sit behind [`PathPicker`] so that tests give
-//! paths directly and never open one; the real picker uses the desktop's file dialog (rfd).
-//! A dialog runs on its own thread and answers through a channel, so a slow or hung dialog
-//! service never freezes the window.
+//! File dialogs and file reading off the window's thread. Dialogs sit behind [`PathPicker`]
+//! so that tests give paths directly and never open one; the real picker uses the desktop's
+//! file dialog (rfd). A dialog runs on its own thread, reads what was picked there, and
+//! answers through a channel, so a slow or hung dialog service or disk never freezes the
+//! window.
 
 use std::path::{Path, PathBuf};
 use std::sync::mpsc::{Receiver, Sender, channel};
+
+use crate::dataset::{Dataset, Frequency};
+use crate::scenario::{self, ModelSpec, ScenarioFile, SeriesSpec};
 
 /// Asks the user for paths.
 pub trait PathPicker: Send + Sync {
@@ -12,6 +16,8 @@ pub trait PathPicker: Send + Sync {
     fn open(&self, start: &Path) -> Option<PathBuf>;
     /// Where to save a scenario.
     fn save(&self, start: &Path, name: &str) -> Option<PathBuf>;
+    /// A dataset (CSV) to start a new scenario on.
+    fn dataset(&self, start: &Path) -> Option<PathBuf>;
 }
 
 /// The desktop's file dialogs.
@@ -32,20 +38,99 @@ impl PathPicker for DesktopPicker {
             .add_filter("scenario", &["ron"])
             .save_file()
     }
+
+    fn dataset(&self, start: &Path) -> Option<PathBuf> {
+        rfd::FileDialog::new()
+            .set_directory(start)
+            .add_filter("dataset", &["csv"])
+            .pick_file()
+    }
 }
 
-/// What a picked path is for.
+/// What a dialog is for.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum Purpose {
     Open,
     SaveAs,
+    NewFromData,
+}
+
+/// A dialog's answer, with what was read from the picked file.
+pub enum Answer {
+    /// A scenario, read (or why not), and whether a newer recovery file is beside it.
+    Open(PathBuf, Result<ScenarioFile, String>, bool),
+    SaveAs(PathBuf),
+    /// A new scenario on a dataset (or why the dataset cannot be used).
+    NewFromData(PathBuf, Result<ScenarioFile, String>),
+}
+
+/// Read a scenario file for the window, and tell whether a newer recovery file is beside it.
+pub fn read_scenario(path: &Path) -> (Result<ScenarioFile, String>, bool) {
+    let file = scenario::read(path).map_err(|e| e.to_string());
+    (file, newer_recovery(path))
+}
+
+/// True when the recovery file of `path` exists and is newer than it (or `path` is missing).
+pub fn newer_recovery(path: &Path) -> bool {
+    let recovery = super::document::recovery_path(path);
+    let modified = |p: &Path| std::fs::metadata(p).and_then(|m| m.modified()).ok();
+    match (modified(&recovery), modified(path)) {
+        (Some(r), Some(p)) => r > p,
+        (Some(_), None) => true,
+        _ => false,
+    }
+}
+
+/// A new scenario on the dataset at `path`: every column a series, as it is (no transform),
+/// the Minnesota prior with its tightness chosen by marginal likelihood, two years ahead, and
+/// no conditions yet. The dataset is named by file name: the scenario is meant to be saved
+/// beside it.
+pub fn scenario_for(path: &Path) -> Result<ScenarioFile, String> {
+    let data = Dataset::read(path).map_err(|e| e.to_string())?;
+    let stem = path
+        .file_stem()
+        .map(|s| s.to_string_lossy().into_owned())
+        .unwrap_or_else(|| "data".into());
+    let horizon = match data.frequency {
+        Frequency::Quarterly => 8,
+        Frequency::Monthly => 24,
+    };
+    Ok(ScenarioFile {
+        name: format!("New scenario on {stem}"),
+        narrative: String::new(),
+        dataset: path
+            .file_name()
+            .map(|n| n.to_string_lossy().into_owned())
+            .unwrap_or_default(),
+        series: data
+            .names
+            .iter()
+            .map(|name| SeriesSpec {
+                name: name.clone(),
+                transform: crate::dataset::Transform::AsIs,
+                centre: Default::default(),
+                display: Default::default(),
+            })
+            .collect(),
+        model: ModelSpec::Minnesota(Default::default()),
+        ordering: None,
+        drivers: None,
+        horizon,
+        draws: 1000,
+        paths_per_draw: 1,
+        seed: 1,
+        pins: Vec::new(),
+        corridors: Vec::new(),
+        checks: Default::default(),
+        reweight: false,
+    })
 }
 
 /// Dialogs in flight.
 pub struct Dialogs {
     picker: std::sync::Arc<dyn PathPicker>,
-    tx: Sender<(Purpose, Option<PathBuf>)>,
-    rx: Receiver<(Purpose, Option<PathBuf>)>,
+    tx: Sender<Option<Answer>>,
+    rx: Receiver<Option<Answer>>,
     pub open: bool,
 }
 
@@ -75,21 +160,82 @@ impl Dialogs {
         let picker = self.picker.clone();
         let tx = self.tx.clone();
         std::thread::spawn(move || {
-            let path = match purpose {
-                Purpose::Open => picker.open(&start),
-                Purpose::SaveAs => picker.save(&start, &name),
+            let answer = match purpose {
+                Purpose::Open => picker.open(&start).map(|p| {
+                    let (file, recovery) = read_scenario(&p);
+                    Answer::Open(p, file, recovery)
+                }),
+                Purpose::SaveAs => picker.save(&start, &name).map(Answer::SaveAs),
+                Purpose::NewFromData => picker.dataset(&start).map(|p| {
+                    let file = scenario_for(&p);
+                    Answer::NewFromData(p, file)
+                }),
             };
-            let _ = tx.send((purpose, path));
+            let _ = tx.send(answer);
             wake();
         });
     }
 
-    /// An answered dialog, if any.
-    pub fn answer(&mut self) -> Option<(Purpose, Option<PathBuf>)> {
+    /// A dialog's answer, if one came (`None` inside for a cancelled dialog).
+    pub fn answer(&mut self) -> Option<Option<Answer>> {
         let answer = self.rx.try_recv().ok();
         if answer.is_some() {
             self.open = false;
         }
         answer
+    }
+}
+
+/// Small file chores (the recovery file) done in order on a thread of their own, so that a
+/// slow disk never stalls the window.
+pub struct Chores {
+    tx: Sender<Chore>,
+    failures: Receiver<String>,
+}
+
+enum Chore {
+    Write(PathBuf, String),
+    Remove(PathBuf),
+}
+
+impl Chores {
+    /// Start the chores' thread.
+    pub fn start() -> Chores {
+        let (tx, rx) = channel::<Chore>();
+        let (fail_tx, failures) = channel();
+        std::thread::spawn(move || {
+            for chore in rx {
+                let failure = match chore {
+                    Chore::Write(path, text) => super::document::write_atomic(&path, &text)
+                        .err()
+                        .map(|e| format!("cannot write {}: {e}", path.display())),
+                    Chore::Remove(path) => match std::fs::remove_file(&path) {
+                        Err(e) if e.kind() != std::io::ErrorKind::NotFound => {
+                            Some(format!("cannot remove {}: {e}", path.display()))
+                        }
+                        _ => None,
+                    },
+                };
+                if let Some(f) = failure {
+                    let _ = fail_tx.send(f);
+                }
+            }
+        });
+        Chores { tx, failures }
+    }
+
+    /// Write `text` to `path` atomically.
+    pub fn write(&self, path: PathBuf, text: String) {
+        let _ = self.tx.send(Chore::Write(path, text));
+    }
+
+    /// Remove `path` if it is there.
+    pub fn remove(&self, path: PathBuf) {
+        let _ = self.tx.send(Chore::Remove(path));
+    }
+
+    /// A chore that failed, if any.
+    pub fn failure(&self) -> Option<String> {
+        self.failures.try_recv().ok()
     }
 }

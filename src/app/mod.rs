@@ -29,8 +29,8 @@ use std::time::{Duration, Instant};
 
 use chart::{ChartAction, ChartMemory, CondRef};
 use document::Document;
-use files::{Dialogs, PathPicker, Purpose};
-use worker::{EngineState, Job, Message, Results};
+use files::{Answer, Chores, Dialogs, PathPicker, Purpose};
+use worker::{EngineState, Job, Message, Results, Subject};
 
 use crate::checks::{CheckReport, Severity};
 use crate::scenario::{Bound, CorridorSpec, PinSpec, ScenarioFile};
@@ -49,9 +49,14 @@ pub enum Prompt {
     Recover { path: PathBuf },
 }
 
-#[derive(Debug, Clone, PartialEq)]
+/// What the window does once unsaved changes are saved or discarded.
+#[derive(Debug, Clone, Copy, PartialEq)]
 pub enum AfterSave {
     Open,
+    /// A blank scenario on the same data and model.
+    New,
+    /// A new scenario on a dataset picked next.
+    NewFromData,
     Close,
 }
 
@@ -70,20 +75,30 @@ pub struct TiltyardApp {
     // What the worker said for the current generation (results are kept until replaced).
     pub results: Option<Arc<Results>>,
     pub checks: Option<Box<CheckReport>>,
+    /// How many pins and corridors the scenario had when it was checked (the findings name
+    /// conditions by position, so they colour nothing once the lists change).
+    checked: (usize, usize),
     pub state: EngineState,
     pub model_line: String,
     pub engine_error: Option<String>,
     /// Time from the last edit to its first fans.
     pub first_update: Option<Duration>,
     // Interface.
-    pub charts: HashMap<usize, ChartMemory>,
+    pub charts: HashMap<(Subject, usize), ChartMemory>,
     pub hidden: HashSet<String>,
     pub selected: Option<CondRef>,
-    pub enlarged: Option<usize>,
+    /// Series charts or shock charts.
+    pub view: Subject,
+    /// Values dragged on charts snap to readable steps.
+    pub snapping: bool,
+    pub enlarged: Option<(Subject, usize)>,
     pub prompt: Option<Prompt>,
     dialogs: Dialogs,
+    chores: Chores,
     wake: Arc<dyn Fn() + Send + Sync>,
     last_autosave: Instant,
+    /// A recovery file was written for the current document.
+    recovery_written: bool,
     close_confirmed: bool,
 }
 
@@ -98,10 +113,13 @@ impl TiltyardApp {
         let (doc, notice) = match Document::open(path) {
             Ok(doc) => (doc, None),
             Err(e) => {
-                let file = blank(path);
+                let mut doc = Document::from_file(blank(path), path.to_path_buf());
+                doc.untitled = true;
                 (
-                    Document::from_file(file, path.to_path_buf()),
-                    Some(format!("cannot open the scenario: {e}")),
+                    doc,
+                    Some(format!(
+                        "cannot open the scenario: {e} (the file is left as it is; Save asks for a new name)"
+                    )),
                 )
             }
         };
@@ -113,7 +131,7 @@ impl TiltyardApp {
             .spawn(move || worker::run(job_rx, msg_tx, move || w()))
             .expect("the engine thread starts");
         let recovery = document::recovery_path(path);
-        let prompt = newer(&recovery, path).then_some(Prompt::Recover { path: recovery });
+        let prompt = files::newer_recovery(path).then_some(Prompt::Recover { path: recovery });
         TiltyardApp {
             doc,
             notice,
@@ -125,6 +143,7 @@ impl TiltyardApp {
             job_started: Instant::now(),
             results: None,
             checks: None,
+            checked: (0, 0),
             state: EngineState::Idle,
             model_line: String::new(),
             engine_error: None,
@@ -132,11 +151,15 @@ impl TiltyardApp {
             charts: HashMap::new(),
             hidden: HashSet::new(),
             selected: None,
+            view: Subject::Series,
+            snapping: true,
             enlarged: None,
             prompt,
             dialogs: Dialogs::new(picker),
+            chores: Chores::start(),
             wake,
             last_autosave: Instant::now(),
+            recovery_written: false,
             close_confirmed: false,
         }
     }
@@ -196,8 +219,18 @@ impl TiltyardApp {
             match message {
                 Message::State(g, s) if g == self.generation => self.state = s,
                 Message::Model(g, line) if g == self.generation => self.model_line = line,
-                Message::Checks(g, report) if g == self.generation => self.checks = Some(report),
-                Message::Results(g, r) if g == self.generation => {
+                Message::Checks(g, report) if g == self.generation => {
+                    // The checks are of the scenario last sent (the newest generation).
+                    if let Some(f) = &self.sent {
+                        self.checked = (f.pins.len(), f.corridors.len());
+                    }
+                    self.checks = Some(report);
+                }
+                // Fans without the conditions only stand in for having none at all.
+                Message::Results(g, r)
+                    if g == self.generation
+                        && !(r.without_conditions && self.results.is_some()) =>
+                {
                     self.first_update.get_or_insert(self.job_started.elapsed());
                     self.results = Some(r);
                 }
@@ -211,6 +244,10 @@ impl TiltyardApp {
     pub fn status_of(&self, cref: CondRef) -> Option<Severity> {
         let field = cref.field();
         let checks = self.checks.as_ref()?;
+        let f = &self.doc.file;
+        if self.checked != (f.pins.len(), f.corridors.len()) {
+            return None;
+        }
         let mut worst = None;
         for f in &checks.findings {
             if f.fields
@@ -226,21 +263,27 @@ impl TiltyardApp {
         worst
     }
 
-    /// True when the shown fans are from before a clash.
+    /// True when the shown fans are from before a clash or a failure.
     pub fn stale(&self) -> bool {
-        self.state == EngineState::Clashing
+        matches!(self.state, EngineState::Clashing | EngineState::Failed)
     }
 
-    /// Apply a chart's action to the document.
-    pub fn apply(&mut self, series: &str, action: ChartAction) {
-        let units = self
-            .doc
-            .file
-            .series
-            .iter()
-            .find(|s| s.name == series)
-            .map(|s| s.display)
-            .unwrap_or_default();
+    /// True while a file dialog is up (the window waits for it, without blocking).
+    pub fn dialog_open(&self) -> bool {
+        self.dialogs.open
+    }
+
+    /// True while a handle or a new corridor is being dragged on some chart.
+    pub fn dragging(&self) -> bool {
+        self.charts.values().any(|m| m.drag.is_some())
+    }
+
+    /// Apply an action of the chart of series or shock `name` to the document.
+    pub fn apply(&mut self, subject: Subject, name: &str, action: ChartAction) {
+        let (series, shock) = match subject {
+            Subject::Series => (Some(name.to_string()), None),
+            Subject::Shock => (None, Some(name.to_string())),
+        };
         match action {
             ChartAction::BeginGesture => self.doc.begin_gesture(),
             ChartAction::EndGesture => self.doc.end_gesture(),
@@ -254,16 +297,31 @@ impl TiltyardApp {
                 upper,
                 delta,
                 period,
+                periods,
             } => self.doc.edit(|f| {
                 if let Some(c) = f.corridors.get_mut(corridor) {
-                    move_bound(c, upper, delta, period);
+                    move_bound(c, upper, delta, period, periods);
                 }
             }),
-            ChartAction::AddPin { period, value } => {
+            ChartAction::MoveEnd {
+                corridor,
+                last,
+                shift,
+                label,
+            } => self.doc.edit(|f| {
+                if let Some(c) = f.corridors.get_mut(corridor) {
+                    move_end(c, last, shift, label);
+                }
+            }),
+            ChartAction::AddPin {
+                period,
+                units,
+                value,
+            } => {
                 self.doc.edit(|f| {
                     f.pins.push(PinSpec {
-                        series: Some(series.to_string()),
-                        shock: None,
+                        series,
+                        shock,
                         period,
                         units,
                         value,
@@ -275,13 +333,14 @@ impl TiltyardApp {
             ChartAction::AddCorridor {
                 from,
                 to,
+                units,
                 lower,
                 upper,
             } => {
                 self.doc.edit(|f| {
                     f.corridors.push(CorridorSpec {
-                        series: Some(series.to_string()),
-                        shock: None,
+                        series,
+                        shock,
                         from,
                         to,
                         units,
@@ -295,7 +354,13 @@ impl TiltyardApp {
             ChartAction::Select(s) => self.selected = s,
             ChartAction::Remove(cref) => self.remove(cref),
             ChartAction::Enlarge => {
-                let i = self.doc.file.series.iter().position(|s| s.name == series);
+                let i = self
+                    .doc
+                    .file
+                    .series
+                    .iter()
+                    .position(|s| s.name == name)
+                    .map(|i| (subject, i));
                 self.enlarged = if self.enlarged == i { None } else { i };
             }
         }
@@ -321,15 +386,42 @@ impl TiltyardApp {
         let redo = KeyboardShortcut::new(Modifiers::COMMAND | Modifiers::SHIFT, Key::Z);
         let redo_y = KeyboardShortcut::new(Modifiers::COMMAND, Key::Y);
         let save = KeyboardShortcut::new(Modifiers::COMMAND, Key::S);
-        let typing = ctx.text_edit_focused();
+        // Not while a question is asked or a dialog is up; undo, redo and Delete not while a
+        // drag is under way (it holds indices into the lists) or a field is being typed in
+        // (the field has its own).
+        if self.prompt.is_some() || self.dialogs.open {
+            return;
+        }
+        let typing = ctx.text_edit_focused() || self.dragging();
         let (do_redo, do_undo, do_save, delete) = ctx.input_mut(|i| {
-            let redo = i.consume_shortcut(&redo) || i.consume_shortcut(&redo_y);
+            let redo = !typing && (i.consume_shortcut(&redo) || i.consume_shortcut(&redo_y));
             let undo = !typing && i.consume_shortcut(&undo);
             let save = i.consume_shortcut(&save);
             let delete = !typing && i.key_pressed(Key::Delete);
             (redo, undo, save, delete)
         });
-        if do_redo && !typing {
+        let plain =
+            |i: &egui::InputState, k: Key| !typing && i.modifiers.is_none() && i.key_pressed(k);
+        let (up, down, left, right, toggle) = ctx.input(|i| {
+            (
+                plain(i, Key::ArrowUp),
+                plain(i, Key::ArrowDown),
+                plain(i, Key::ArrowLeft),
+                plain(i, Key::ArrowRight),
+                plain(i, Key::G),
+            )
+        });
+        if toggle {
+            self.snapping = !self.snapping;
+        }
+        if let Some(cref) = self.selected {
+            let steps = i32::from(up) - i32::from(down);
+            let periods = i64::from(right) - i64::from(left);
+            if steps != 0 || periods != 0 {
+                self.nudge(cref, steps, periods);
+            }
+        }
+        if do_redo {
             self.doc.redo();
         }
         if do_undo {
@@ -343,11 +435,83 @@ impl TiltyardApp {
         }
     }
 
-    /// Save to the document's path (atomic); clears the recovery file.
+    /// Move a condition by `steps` of its chart's snapping step (a corridor's bounds all
+    /// together) and by `periods` in time, staying within the forecast.
+    pub fn nudge(&mut self, cref: CondRef, steps: i32, periods: i64) {
+        let Some(results) = self.results.clone() else {
+            return;
+        };
+        let f = &self.doc.file;
+        let (series, shock) = match cref {
+            CondRef::Pin(k) => match f.pins.get(k) {
+                Some(p) => (&p.series, &p.shock),
+                None => return,
+            },
+            CondRef::Corridor(k) => match f.corridors.get(k) {
+                Some(c) => (&c.series, &c.shock),
+                None => return,
+            },
+        };
+        let chart = match (series, shock) {
+            (Some(name), _) => f
+                .series
+                .iter()
+                .position(|s| &s.name == name)
+                .map(|i| (Subject::Series, i)),
+            (None, Some(name)) => f
+                .series
+                .iter()
+                .position(|s| &s.name == name)
+                .map(|i| (Subject::Shock, i)),
+            _ => None,
+        };
+        let step = chart
+            .and_then(|c| self.charts.get(&c))
+            .map_or(0.0, |m| m.step);
+        let delta = f64::from(steps) * step;
+        let h = results.labels.len() as i64 - results.history as i64 - 1;
+        // A label moved by `periods` (if it stays within the forecast).
+        let shifted = |label: &str| -> Option<String> {
+            let t = chart::horizon(&results, label)? + periods;
+            (1..=h)
+                .contains(&t)
+                .then(|| results.label(t as f64).map(str::to_string))?
+        };
+        self.doc.edit(|f| match cref {
+            CondRef::Pin(k) => {
+                if let Some(p) = f.pins.get_mut(k) {
+                    if steps != 0 {
+                        p.value = chart::tidy(p.value + delta);
+                    }
+                    if let Some(label) = shifted(&p.period) {
+                        p.period = label;
+                    }
+                }
+            }
+            CondRef::Corridor(k) => {
+                if let Some(c) = f.corridors.get_mut(k) {
+                    for upper in [false, true].into_iter().filter(|_| steps != 0) {
+                        move_bound(c, upper, delta, None, 0);
+                    }
+                    if let (Some(from), Some(to)) = (shifted(&c.from), shifted(&c.to)) {
+                        c.from = from;
+                        c.to = to;
+                    }
+                }
+            }
+        });
+    }
+
+    /// Save to the document's path (atomic); clears the recovery file. A new scenario, or one
+    /// whose file could not be read, asks where instead.
     pub fn save(&mut self) {
+        if self.doc.untitled {
+            self.pick(Purpose::SaveAs);
+            return;
+        }
         match self.doc.save() {
             Ok(()) => {
-                self.doc.clear_recovery();
+                self.forget_recovery();
                 self.notice = None;
             }
             Err(e) => {
@@ -356,13 +520,56 @@ impl TiltyardApp {
         }
     }
 
-    pub fn ask_open(&mut self) {
+    /// Open, New or New from data, after asking about unsaved changes.
+    pub fn ask(&mut self, then: AfterSave) {
         if self.doc.is_dirty() {
-            self.prompt = Some(Prompt::Unsaved {
-                then: AfterSave::Open,
-            });
+            self.prompt = Some(Prompt::Unsaved { then });
         } else {
-            self.pick(Purpose::Open);
+            self.proceed(then);
+        }
+    }
+
+    /// Go on once unsaved changes are dealt with.
+    pub fn proceed(&mut self, then: AfterSave) {
+        match then {
+            AfterSave::Open => self.pick(Purpose::Open),
+            AfterSave::NewFromData => self.pick(Purpose::NewFromData),
+            AfterSave::New => self.new_scenario(),
+            AfterSave::Close => self.confirm_close(),
+        }
+    }
+
+    /// A blank scenario on the same data, series and model: no conditions, not yet saved.
+    pub fn new_scenario(&mut self) {
+        let mut file = self.doc.file.clone();
+        file.name = "New scenario".into();
+        file.narrative.clear();
+        file.pins.clear();
+        file.corridors.clear();
+        file.drivers = None;
+        let path = self.doc.path.with_file_name("new-scenario.ron");
+        self.install(file, path, true, false);
+    }
+
+    /// Start a new scenario on a dataset (read here; the dialog reads it on its own thread).
+    pub fn new_from_dataset(&mut self, dataset: &Path) {
+        let file = files::scenario_for(dataset);
+        self.take_new(dataset, file);
+    }
+
+    fn take_new(&mut self, dataset: &Path, file: Result<ScenarioFile, String>) {
+        match file {
+            Ok(file) => {
+                let path = dataset.with_file_name(format!(
+                    "{}-scenario.ron",
+                    dataset
+                        .file_stem()
+                        .map(|s| s.to_string_lossy().into_owned())
+                        .unwrap_or_else(|| "new".into())
+                ));
+                self.install(file, path, true, false);
+            }
+            Err(e) => self.notice = Some(format!("cannot start a scenario on this data: {e}")),
         }
     }
 
@@ -382,47 +589,84 @@ impl TiltyardApp {
         self.dialogs.ask(purpose, start, name, self.wake.clone());
     }
 
-    /// Open a scenario from a path (no dialog).
+    /// Open a scenario from a path (no dialog; read here, where the dialog reads it on its
+    /// own thread).
     pub fn open_path(&mut self, path: &Path) {
-        match Document::open(path) {
-            Ok(doc) => {
-                self.doc = doc;
-                self.selected = None;
-                self.enlarged = None;
-                self.results = None;
-                self.checks = None;
-                self.notice = None;
-                self.charts.clear();
-                if newer(&document::recovery_path(path), path) {
-                    self.prompt = Some(Prompt::Recover {
-                        path: document::recovery_path(path),
-                    });
-                }
-            }
+        let (file, recovery) = files::read_scenario(path);
+        self.take_opened(path, file, recovery);
+    }
+
+    fn take_opened(&mut self, path: &Path, file: Result<ScenarioFile, String>, recovery: bool) {
+        match file {
+            Ok(file) => self.install(file, path.to_path_buf(), false, recovery),
             Err(e) => self.notice = Some(format!("cannot open {}: {e}", path.display())),
         }
     }
 
+    /// Replace the document. The edits of the one it replaces were saved or discarded before;
+    /// its recovery file goes now, not before (a cancelled dialog keeps both).
+    fn install(&mut self, file: ScenarioFile, path: PathBuf, untitled: bool, recovery: bool) {
+        self.forget_recovery();
+        self.doc = Document::from_file(file, path);
+        self.doc.untitled = untitled;
+        self.selected = None;
+        self.enlarged = None;
+        self.results = None;
+        self.checks = None;
+        self.notice = None;
+        self.charts.clear();
+        self.hidden.clear();
+        if recovery {
+            self.prompt = Some(Prompt::Recover {
+                path: self.doc.recovery_path(),
+            });
+        }
+    }
+
     fn answers(&mut self) {
-        if let Some((purpose, path)) = self.dialogs.answer() {
-            match (purpose, path) {
-                (Purpose::Open, Some(p)) => self.open_path(&p),
-                (Purpose::SaveAs, Some(p)) => match self.doc.save_as(&p) {
-                    Ok(()) => self.notice = None,
-                    Err(e) => self.notice = Some(format!("cannot save {}: {e}", p.display())),
-                },
-                (_, None) => {}
+        if let Some(answer) = self.dialogs.answer() {
+            match answer {
+                Some(Answer::Open(p, file, recovery)) => self.take_opened(&p, file, recovery),
+                Some(Answer::NewFromData(p, file)) => self.take_new(&p, file),
+                None => {}
+                Some(Answer::SaveAs(p)) => {
+                    let old = self.doc.recovery_path();
+                    match self.doc.save_as(&p) {
+                        Ok(()) => {
+                            self.chores.remove(old);
+                            self.recovery_written = false;
+                            self.notice = None;
+                        }
+                        Err(e) => self.notice = Some(format!("cannot save {}: {e}", p.display())),
+                    }
+                }
             }
         }
     }
 
+    /// Every [`AUTOSAVE`], unsaved edits go to the recovery file; when undo brings the
+    /// document back to what is saved, the recovery file goes.
     fn autosave(&mut self) {
-        if self.doc.is_dirty() && self.last_autosave.elapsed() >= AUTOSAVE {
+        let dirty = self.doc.is_dirty();
+        if dirty && self.last_autosave.elapsed() >= AUTOSAVE {
             self.last_autosave = Instant::now();
-            if let Err(e) = self.doc.write_recovery() {
-                self.notice = Some(format!("cannot write the recovery file: {e}"));
-            }
+            self.chores.write(
+                self.doc.recovery_path(),
+                crate::scenario::to_text(&self.doc.file),
+            );
+            self.recovery_written = true;
+        } else if !dirty && self.recovery_written {
+            self.forget_recovery();
         }
+        if let Some(failure) = self.chores.failure() {
+            self.notice = Some(failure);
+        }
+    }
+
+    /// Remove the document's recovery file (after a save, or when its edits are let go).
+    pub fn forget_recovery(&mut self) {
+        self.chores.remove(self.doc.recovery_path());
+        self.recovery_written = false;
     }
 
     /// Draw the window and handle everything that happened since the last frame.
@@ -458,7 +702,7 @@ impl TiltyardApp {
     }
 
     pub fn clear_recovery_prompt(&mut self) {
-        self.doc.clear_recovery();
+        self.forget_recovery();
         self.prompt = None;
     }
 
@@ -478,45 +722,70 @@ impl eframe::App for TiltyardApp {
     }
 }
 
-/// Shift one side of a corridor by `delta`, at every period or at one (which turns the side
-/// into per-period bounds).
-fn move_bound(c: &mut CorridorSpec, upper: bool, delta: f64, period: Option<usize>) {
-    let periods = match (&c.lower, &c.upper) {
-        (Some(Bound::Each(v)), _) | (_, Some(Bound::Each(v))) => v.len(),
-        _ => 0,
-    };
+/// Shift one side of a corridor of `periods` periods by `delta`, at every period or at one
+/// (which turns the side into per-period bounds).
+fn move_bound(
+    c: &mut CorridorSpec,
+    upper: bool,
+    delta: f64,
+    period: Option<usize>,
+    periods: usize,
+) {
     let side = if upper { &mut c.upper } else { &mut c.lower };
     match (side.as_mut(), period) {
-        (Some(Bound::Same(v)), None) => *v += delta,
+        (Some(Bound::Same(v)), None) => *v = chart::tidy(*v + delta),
         (Some(Bound::Each(list)), None) => {
             for v in list.iter_mut().flatten() {
-                *v += delta;
+                *v = chart::tidy(*v + delta);
             }
         }
         (Some(Bound::Same(v)), Some(k)) => {
             let n = periods.max(k + 1);
             let mut list = vec![Some(*v); n];
             if let Some(x) = list[k].as_mut() {
-                *x += delta;
+                *x = chart::tidy(*x + delta);
             }
             *side = Some(Bound::Each(list));
         }
         (Some(Bound::Each(list)), Some(k)) => {
             if let Some(Some(x)) = list.get_mut(k) {
-                *x += delta;
+                *x = chart::tidy(*x + delta);
             }
         }
         (None, _) => {}
     }
 }
 
-/// True when `recovery` exists and is newer than `path` (or `path` is missing).
-fn newer(recovery: &Path, path: &Path) -> bool {
-    let modified = |p: &Path| std::fs::metadata(p).and_then(|m| m.modified()).ok();
-    match (modified(recovery), modified(path)) {
-        (Some(r), Some(p)) => r > p,
-        (Some(_), None) => true,
-        _ => false,
+/// Move the first (or last) period of a corridor by `shift` periods to `label`; per-period
+/// bounds gain copies of their end value or lose the periods left behind.
+pub(super) fn move_end(c: &mut CorridorSpec, last: bool, shift: i64, label: String) {
+    let grow = if last { shift } else { -shift };
+    for side in [&mut c.lower, &mut c.upper] {
+        let Some(Bound::Each(list)) = side.as_mut() else {
+            continue;
+        };
+        let n = grow.unsigned_abs() as usize;
+        if grow > 0 {
+            let fill = if last { list.last() } else { list.first() };
+            let fill = fill.copied().flatten();
+            if last {
+                list.extend(std::iter::repeat_n(fill, n));
+            } else {
+                list.splice(0..0, std::iter::repeat_n(fill, n));
+            }
+        } else {
+            let n = n.min(list.len().saturating_sub(1));
+            if last {
+                list.truncate(list.len() - n);
+            } else {
+                list.drain(..n);
+            }
+        }
+    }
+    if last {
+        c.to = label;
+    } else {
+        c.from = label;
     }
 }
 

@@ -7,7 +7,7 @@ use egui::{Color32, RichText};
 use super::chart::{self, ChartInput, CondRef};
 use super::files::Purpose;
 use super::palette::Palette;
-use super::worker::EngineState;
+use super::worker::{EngineState, Subject};
 use super::{AfterSave, Prompt, TiltyardApp, table};
 use crate::checks::{Severity, Status};
 use crate::report::CAUTION;
@@ -67,8 +67,22 @@ fn top_bar(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
         ui.heading(format!("{}{dirty}", app.doc.file.name))
             .on_hover_text(&app.doc.file.narrative);
         ui.separator();
+        if ui
+            .button("New")
+            .on_hover_text("A blank scenario on the same data and model")
+            .clicked()
+        {
+            app.ask(AfterSave::New);
+        }
+        if ui
+            .button("New from data…")
+            .on_hover_text("A new scenario on a dataset (CSV) you pick")
+            .clicked()
+        {
+            app.ask(AfterSave::NewFromData);
+        }
         if ui.button("Open…").clicked() {
-            app.ask_open();
+            app.ask(AfterSave::Open);
         }
         if ui.button("Save").clicked() {
             app.save();
@@ -94,6 +108,8 @@ fn top_bar(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
         ui.separator();
         let (text, colour) = engine_text(&app.state, pal);
         ui.label(RichText::new(text).color(colour).strong());
+        ui.separator();
+        theme_switch(ui);
     });
     if !app.doc.file.narrative.is_empty() {
         ui.label(RichText::new(&app.doc.file.narrative).italics().small());
@@ -103,6 +119,23 @@ fn top_bar(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     }
     if let Some(e) = &app.engine_error {
         ui.colored_label(pal.clash, e);
+    }
+}
+
+/// Light, dark, or as the desktop says (words, not glyphs: the bundled font has no symbols).
+fn theme_switch(ui: &mut egui::Ui) {
+    use egui::ThemePreference;
+    let before = ui.ctx().options(|o| o.theme_preference);
+    let mut pref = before;
+    for (p, name) in [
+        (ThemePreference::Light, "light"),
+        (ThemePreference::Dark, "dark"),
+        (ThemePreference::System, "system"),
+    ] {
+        ui.selectable_value(&mut pref, p, name);
+    }
+    if pref != before {
+        ui.ctx().set_theme(pref);
     }
 }
 
@@ -128,7 +161,9 @@ fn engine_text(state: &EngineState, pal: &Palette) -> (String, Color32) {
 fn footer(ui: &mut egui::Ui, app: &TiltyardApp, pal: &Palette) {
     ui.horizontal_wrapped(|ui| {
         if let Some(r) = &app.results {
-            let what = if r.preview {
+            let what = if r.without_conditions {
+                "forecast without the conditions, at the posterior mean".to_string()
+            } else if r.preview {
                 "preview at the posterior mean (understates uncertainty)".to_string()
             } else if r.total > 0 {
                 format!("{} of {} posterior draws", r.draws, r.total)
@@ -136,9 +171,20 @@ fn footer(ui: &mut egui::Ui, app: &TiltyardApp, pal: &Palette) {
                 "fixed coefficients".to_string()
             };
             ui.label(what);
+            if let Some(ess) = r.effective_draws {
+                ui.label(format!(
+                    "reweighted by the scenario: effective sample size {ess:.0}"
+                ));
+            }
             ui.separator();
         }
         ui.label(format!("seed {}", app.doc.file.seed));
+        ui.separator();
+        ui.label(if app.snapping {
+            "values snap (G: off)"
+        } else {
+            "free values (G: snap)"
+        });
         if let Some(t) = app.first_update {
             ui.separator();
             ui.label(format!(
@@ -170,7 +216,7 @@ fn series_list(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
                 }
             }
             ui.label(RichText::new(units.label()).small().color(pal.muted));
-            if let Some(s) = series_status(app, name) {
+            if let Some(s) = status(app, Subject::Series, name) {
                 dot(ui, severity_colour(pal, s));
             }
         });
@@ -184,10 +230,7 @@ fn series_list(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
         .small()
         .color(pal.muted),
     );
-    let order: Vec<String> = match &app.doc.file.ordering {
-        Some(o) => o.clone(),
-        None => names.iter().map(|(n, _)| n.clone()).collect(),
-    };
+    let order = shock_order(app);
     let all = app.doc.file.drivers.is_none();
     let mut toggle = None;
     for name in &order {
@@ -198,9 +241,14 @@ fn series_list(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
                 .drivers
                 .as_ref()
                 .is_some_and(|d| d.contains(name));
-        if ui.checkbox(&mut drives, format!("{name} shock")).changed() {
-            toggle = Some((name.clone(), drives));
-        }
+        ui.horizontal(|ui| {
+            if ui.checkbox(&mut drives, format!("{name} shock")).changed() {
+                toggle = Some((name.clone(), drives));
+            }
+            if let Some(s) = status(app, Subject::Shock, name) {
+                dot(ui, severity_colour(pal, s));
+            }
+        });
     }
     if let Some((name, on)) = toggle {
         app.doc.edit(|f| {
@@ -226,20 +274,24 @@ fn dot(ui: &mut egui::Ui, colour: Color32) {
     ui.painter().circle_filled(rect.center(), 4.0, colour);
 }
 
-/// The worst status of the conditions on a series.
-fn series_status(app: &TiltyardApp, name: &str) -> Option<Severity> {
+/// The worst status of the conditions on a series or a shock.
+fn status(app: &TiltyardApp, subject: Subject, name: &str) -> Option<Severity> {
     let f = &app.doc.file;
+    let on = |series: &Option<String>, shock: &Option<String>| match subject {
+        Subject::Series => series.as_deref() == Some(name),
+        Subject::Shock => shock.as_deref() == Some(name),
+    };
     let refs = f
         .pins
         .iter()
         .enumerate()
-        .filter(|(_, p)| p.series.as_deref() == Some(name))
+        .filter(|(_, p)| on(&p.series, &p.shock))
         .map(|(k, _)| CondRef::Pin(k))
         .chain(
             f.corridors
                 .iter()
                 .enumerate()
-                .filter(|(_, c)| c.series.as_deref() == Some(name))
+                .filter(|(_, c)| on(&c.series, &c.shock))
                 .map(|(k, _)| CondRef::Corridor(k)),
         );
     let mut worst = None;
@@ -254,6 +306,19 @@ fn series_status(app: &TiltyardApp, name: &str) -> Option<Severity> {
 }
 
 fn chart_grid(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
+    ui.horizontal(|ui| {
+        ui.selectable_value(&mut app.view, Subject::Series, "Series paths");
+        ui.selectable_value(&mut app.view, Subject::Shock, "Structural shocks");
+        let hint = match app.view {
+            Subject::Series => {
+                "drag across future periods: corridor · Ctrl+click: pin · arrows: nudge the selected"
+            }
+            Subject::Shock => {
+                "standardised shocks; grey: their usual N(0, 1) · drag: corridor · Ctrl+click: pin"
+            }
+        };
+        ui.label(RichText::new(hint).small().color(pal.muted));
+    });
     let Some(results) = app.results.clone() else {
         ui.centered_and_justified(|ui| {
             ui.label("The fans appear here as soon as the engine has the first draws.");
@@ -261,24 +326,44 @@ fn chart_grid(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
         return;
     };
     if app.stale() {
-        ui.colored_label(
-            pal.clash,
-            "The conditions clash: these are the last fans that could be drawn (greyed). See the checks.",
-        );
+        let what = if results.without_conditions {
+            "the greyed fans are the model's forecast without any conditions"
+        } else {
+            "the greyed fans are the last that could be drawn"
+        };
+        let why = match app.state {
+            EngineState::Failed => "The engine stopped on an error",
+            _ => "The conditions clash",
+        };
+        ui.colored_label(pal.clash, format!("{why}: {what}. See the checks."));
     }
-    let shown: Vec<usize> = match app.enlarged {
-        Some(i) if i < results.series.len() => vec![i],
-        _ => (0..results.series.len())
-            .filter(|&i| !app.hidden.contains(&results.series[i].name))
+    let subject = app.view;
+    let views = match subject {
+        Subject::Series => &results.series,
+        Subject::Shock => &results.shocks,
+    };
+    let enlarged = app
+        .enlarged
+        .filter(|&(s, i)| s == subject && i < views.len())
+        .map(|(_, i)| i);
+    let shown: Vec<usize> = match (enlarged, subject) {
+        (Some(i), _) => vec![i],
+        (None, Subject::Series) => (0..views.len())
+            .filter(|&i| !app.hidden.contains(&views[i].name))
+            .collect(),
+        // Shocks in identification order.
+        (None, Subject::Shock) => shock_order(app)
+            .iter()
+            .filter_map(|name| views.iter().position(|v| &v.name == name))
             .collect(),
     };
     let width = ui.available_width();
-    let columns = if app.enlarged.is_some() {
+    let columns = if enlarged.is_some() {
         1
     } else {
         ((width / 360.0).floor() as usize).clamp(1, 4)
     };
-    let height = if app.enlarged.is_some() {
+    let height = if enlarged.is_some() {
         (ui.available_height() - 60.0).max(240.0)
     } else {
         190.0
@@ -288,25 +373,18 @@ fn chart_grid(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
         for row in shown.chunks(columns) {
             ui.columns(columns, |cols| {
                 for (col, &i) in cols.iter_mut().zip(row) {
-                    let view = &results.series[i];
+                    let view = &views[i];
                     col.horizontal(|ui| {
-                        ui.strong(&view.name);
-                        let mut units = app.doc.file.series.get(i).map(|s| s.display);
-                        egui::ComboBox::from_id_salt(("units", i))
-                            .selected_text(units.map(|u| u.label()).unwrap_or_default())
-                            .show_ui(ui, |ui| {
-                                for u in CHART_UNITS {
-                                    ui.selectable_value(&mut units, Some(u), u.label());
-                                }
-                            })
-                            .response
-                            .accessible_name(format!("units of the {} chart", view.name));
-                        if let Some(u) = units
-                            && app.doc.file.series.get(i).is_some_and(|s| s.display != u)
-                        {
-                            app.doc.edit(|f| f.series[i].display = u);
+                        match subject {
+                            Subject::Series => {
+                                ui.strong(&view.name);
+                                units_box(ui, app, i, &view.name);
+                            }
+                            Subject::Shock => {
+                                ui.strong(format!("{} shock", view.name));
+                            }
                         }
-                        let label = if app.enlarged == Some(i) {
+                        let label = if enlarged == Some(i) {
                             "back to all"
                         } else {
                             "enlarge"
@@ -315,7 +393,7 @@ fn chart_grid(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
                             actions.push((view.name.clone(), chart::ChartAction::Enlarge));
                         }
                     });
-                    let mut memory = app.charts.remove(&i).unwrap_or_default();
+                    let mut memory = app.charts.remove(&(subject, i)).unwrap_or_default();
                     let status = |r: CondRef| app.status_of(r).map(|s| severity_colour(pal, s));
                     let input = ChartInput {
                         index: i,
@@ -327,18 +405,46 @@ fn chart_grid(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
                         status: &status,
                         height,
                         palette: pal,
+                        snapping: app.snapping,
                     };
                     for a in chart::show(col, &input, &mut memory) {
                         actions.push((view.name.clone(), a));
                     }
-                    app.charts.insert(i, memory);
+                    app.charts.insert((subject, i), memory);
                 }
             });
             ui.add_space(6.0);
         }
     });
-    for (series, action) in actions {
-        app.apply(&series, action);
+    for (name, action) in actions {
+        app.apply(subject, &name, action);
+    }
+}
+
+/// The units switch of series `i`'s chart.
+fn units_box(ui: &mut egui::Ui, app: &mut TiltyardApp, i: usize, name: &str) {
+    let mut units = app.doc.file.series.get(i).map(|s| s.display);
+    egui::ComboBox::from_id_salt(("units", i))
+        .selected_text(units.map(|u| u.label()).unwrap_or_default())
+        .show_ui(ui, |ui| {
+            for u in CHART_UNITS {
+                ui.selectable_value(&mut units, Some(u), u.label());
+            }
+        })
+        .response
+        .accessible_name(format!("units of the {name} chart"));
+    if let Some(u) = units
+        && app.doc.file.series.get(i).is_some_and(|s| s.display != u)
+    {
+        app.doc.edit(|f| f.series[i].display = u);
+    }
+}
+
+/// Shock names in identification order.
+fn shock_order(app: &TiltyardApp) -> Vec<String> {
+    match &app.doc.file.ordering {
+        Some(o) => o.clone(),
+        None => app.doc.file.series.iter().map(|s| s.name.clone()).collect(),
     }
 }
 
@@ -428,6 +534,13 @@ pub fn parse_field(field: &str) -> Option<CondRef> {
 }
 
 fn prompts(ui: &mut egui::Ui, app: &mut TiltyardApp) {
+    // While a file dialog is up, edits wait (its answer could replace the scenario).
+    if app.dialog_open() {
+        egui::Modal::new(egui::Id::unique("tiltyard dialog")).show(ui.ctx(), |ui| {
+            ui.label("Waiting for the file dialog…");
+        });
+        return;
+    }
     let Some(prompt) = app.prompt.clone() else {
         return;
     };
@@ -445,7 +558,10 @@ fn prompts(ui: &mut egui::Ui, app: &mut TiltyardApp) {
                     proceed = !app.doc.is_dirty();
                 }
                 if ui.button("Discard changes").clicked() {
-                    app.doc.clear_recovery();
+                    // On close the edits go now; otherwise once the next scenario is there.
+                    if then == AfterSave::Close {
+                        app.forget_recovery();
+                    }
                     proceed = true;
                 }
                 if ui.button("Cancel").clicked() {
@@ -453,10 +569,7 @@ fn prompts(ui: &mut egui::Ui, app: &mut TiltyardApp) {
                 }
                 if proceed {
                     app.prompt = None;
-                    match then {
-                        AfterSave::Open => app.pick(Purpose::Open),
-                        AfterSave::Close => app.confirm_close(),
-                    }
+                    app.proceed(then);
                 }
             });
         }

@@ -7,6 +7,7 @@ use egui::{RichText, Ui};
 
 use super::TiltyardApp;
 use super::palette::Palette;
+use super::table::draft_field;
 use crate::model::{Tightness, Window};
 use crate::scenario::ModelSpec;
 
@@ -18,14 +19,11 @@ pub fn show(ui: &mut Ui, app: &mut TiltyardApp, pal: &Palette) {
 
 fn body(ui: &mut Ui, app: &mut TiltyardApp, pal: &Palette) {
     let mut file = app.doc.file.clone();
-    let mut gesture = None;
-    let track = |r: &egui::Response, g: &mut Option<bool>| {
-        if r.drag_started() || r.gained_focus() {
-            *g = Some(true);
-        }
-        if r.drag_stopped() || r.lost_focus() {
-            *g = Some(false);
-        }
+    // (began, ended) of a field's gesture this frame.
+    let mut gesture = (false, false);
+    let track = |r: &egui::Response, g: &mut (bool, bool)| {
+        g.0 |= r.drag_started() || r.gained_focus();
+        g.1 |= r.drag_stopped() || r.lost_focus();
     };
     egui::Grid::new("model settings")
         .num_columns(2)
@@ -37,7 +35,11 @@ fn body(ui: &mut Ui, app: &mut TiltyardApp, pal: &Palette) {
                     ui.end_row();
                     ui.label("lags");
                     let r = ui
-                        .add(egui::DragValue::new(&mut m.lags).range(1..=12))
+                        .add(
+                            egui::DragValue::new(&mut m.lags)
+                                .range(1..=12)
+                                .update_while_editing(false),
+                        )
                         .accessible_name("lags");
                     track(&r, &mut gesture);
                     ui.end_row();
@@ -53,13 +55,18 @@ fn body(ui: &mut Ui, app: &mut TiltyardApp, pal: &Palette) {
                         }
                         if let Tightness::Fixed(l) = &mut m.tightness {
                             let r = ui
-                                .add(egui::DragValue::new(l).range(0.001..=5.0).speed(0.005))
+                                .add(
+                                    egui::DragValue::new(l)
+                                        .range(0.001..=5.0)
+                                        .speed(0.005)
+                                        .update_while_editing(false),
+                                )
                                 .accessible_name("tightness");
                             track(&r, &mut gesture);
                         }
                     });
                     ui.end_row();
-                    window_row(ui, &mut m.window, &mut gesture, &track);
+                    window_row(ui, &mut m.window);
                 }
                 ModelSpec::Flat(f) => {
                     ui.label("prior");
@@ -67,11 +74,15 @@ fn body(ui: &mut Ui, app: &mut TiltyardApp, pal: &Palette) {
                     ui.end_row();
                     ui.label("lags");
                     let r = ui
-                        .add(egui::DragValue::new(&mut f.lags).range(1..=12))
+                        .add(
+                            egui::DragValue::new(&mut f.lags)
+                                .range(1..=12)
+                                .update_while_editing(false),
+                        )
                         .accessible_name("lags");
                     track(&r, &mut gesture);
                     ui.end_row();
-                    window_row(ui, &mut f.window, &mut gesture, &track);
+                    window_row(ui, &mut f.window);
                 }
                 ModelSpec::Fixed(f) => {
                     ui.label("model");
@@ -81,7 +92,11 @@ fn body(ui: &mut Ui, app: &mut TiltyardApp, pal: &Palette) {
             }
             ui.label("horizon");
             let r = ui
-                .add(egui::DragValue::new(&mut file.horizon).range(1..=120))
+                .add(
+                    egui::DragValue::new(&mut file.horizon)
+                        .range(1..=120)
+                        .update_while_editing(false),
+                )
                 .accessible_name("horizon");
             track(&r, &mut gesture);
             ui.end_row();
@@ -90,14 +105,15 @@ fn body(ui: &mut Ui, app: &mut TiltyardApp, pal: &Palette) {
                 .add(
                     egui::DragValue::new(&mut file.draws)
                         .range(10..=20_000)
-                        .speed(10),
+                        .speed(10)
+                        .update_while_editing(false),
                 )
                 .accessible_name("draws");
             track(&r, &mut gesture);
             ui.end_row();
             ui.label("seed");
             let r = ui
-                .add(egui::DragValue::new(&mut file.seed))
+                .add(egui::DragValue::new(&mut file.seed).update_while_editing(false))
                 .accessible_name("seed");
             track(&r, &mut gesture);
             ui.end_row();
@@ -135,41 +151,30 @@ fn body(ui: &mut Ui, app: &mut TiltyardApp, pal: &Palette) {
         order.swap(k, k + 1);
         file.ordering = Some(order);
     }
-    match gesture {
-        Some(true) => app.doc.begin_gesture(),
-        Some(false) => app.doc.end_gesture(),
-        None => {}
-    }
-    if file != app.doc.file {
-        app.doc.edit(|f| *f = file);
-    }
+    super::table::in_gesture(app, gesture.0, gesture.1, |app| {
+        if file != app.doc.file {
+            app.doc.edit(|f| *f = file);
+        }
+    });
 }
 
-fn window_row(
-    ui: &mut Ui,
-    window: &mut Option<Window>,
-    gesture: &mut Option<bool>,
-    track: &impl Fn(&egui::Response, &mut Option<bool>),
-) {
+/// The estimation window's ends, applied when a field loses focus (so the model is not
+/// re-estimated on every keystroke, nor on half-typed periods); empty means the data's end.
+fn window_row(ui: &mut Ui, window: &mut Option<Window>) {
     ui.label("estimation window");
     ui.horizontal(|ui| {
-        let w = window.get_or_insert_with(Window::default);
+        let mut w = window.clone().unwrap_or_default();
+        let mut commit = false;
         for (name, end) in [("from", &mut w.from), ("to", &mut w.to)] {
-            let mut text = end.clone().unwrap_or_default();
-            let r = ui
-                .add(
-                    egui::TextEdit::singleline(&mut text)
-                        .desired_width(64.0)
-                        .hint_text(if name == "from" { "first" } else { "last" }),
-                )
-                .accessible_name(name);
-            track(&r, gesture);
-            if r.changed() {
-                *end = (!text.trim().is_empty()).then(|| text.trim().to_string());
+            let hint = if name == "from" { "first" } else { "last" };
+            let current = end.clone().unwrap_or_default();
+            if let Some(text) = draft_field(ui, ("estimation window", name), &current, name, hint) {
+                *end = (!text.is_empty()).then_some(text);
+                commit = true;
             }
         }
-        if w.from.is_none() && w.to.is_none() {
-            *window = None;
+        if commit {
+            *window = (w.from.is_some() || w.to.is_some()).then_some(w);
         }
     });
     ui.end_row();

@@ -9,15 +9,22 @@ use super::palette::Palette;
 use crate::checks::Severity;
 use crate::scenario::{Bound, CorridorSpec, PinSpec, ScenarioFile, Units};
 
-/// Units offered in the table (averages are written in the file).
-const UNITS: [Units; 6] = [
-    Units::Level,
-    Units::PctChange,
-    Units::Annualised,
-    Units::YearOnYear,
-    Units::Difference,
-    Units::Average(4),
-];
+/// Units offered in the table: the linear ones, the average over a year's periods, and
+/// whatever the condition already has (other averages are written in the file).
+fn units_offered(per_year: usize, current: Units) -> Vec<Units> {
+    let mut list = vec![
+        Units::Level,
+        Units::PctChange,
+        Units::Annualised,
+        Units::YearOnYear,
+        Units::Difference,
+        Units::Average(per_year),
+    ];
+    if !list.contains(&current) {
+        list.push(current);
+    }
+    list
+}
 
 /// Edits made through the table this frame, applied after drawing.
 enum Edit {
@@ -42,23 +49,27 @@ pub fn conditions(ui: &mut Ui, app: &mut TiltyardApp, pal: &Palette) {
         }
     });
     ui.label(
-        RichText::new("On a chart: Ctrl+click places a pin, Shift+drag draws a corridor, drag a handle to move it.")
+        RichText::new("On a chart: drag across future periods to draw a corridor, Ctrl+click to place a pin, drag a handle to move it (Shift: no snapping; Ctrl on an edge: that period only).")
             .small()
             .color(pal.muted),
     );
     let file = app.doc.file.clone();
     let series: Vec<String> = file.series.iter().map(|s| s.name.clone()).collect();
+    let per_year = app
+        .results
+        .as_ref()
+        .map_or(4, |r| r.last.freq.periods_per_year());
     let mut edits = Vec::new();
     for (k, pin) in file.pins.iter().enumerate() {
         let cref = CondRef::Pin(k);
         row_frame(ui, app, pal, cref, |ui| {
-            pin_row(ui, k, pin, &series, &mut edits)
+            pin_row(ui, k, pin, &series, per_year, &mut edits)
         });
     }
     for (k, c) in file.corridors.iter().enumerate() {
         let cref = CondRef::Corridor(k);
         row_frame(ui, app, pal, cref, |ui| {
-            corridor_row(ui, k, c, &series, &mut edits)
+            corridor_row(ui, k, c, &series, per_year, &mut edits)
         });
     }
     if file.pins.is_empty() && file.corridors.is_empty() {
@@ -81,7 +92,7 @@ fn row_frame(
     let stroke_colour = match app.status_of(cref) {
         Some(Severity::Clash) => pal.clash,
         Some(Severity::Strain) => pal.strain,
-        None if app.selected == Some(cref) => pal.pin,
+        None if app.selected == Some(cref) => ui.visuals().selection.bg_fill,
         None => ui.visuals().widgets.noninteractive.bg_stroke.color,
     };
     let width = if app.selected == Some(cref) { 2.0 } else { 1.0 };
@@ -99,13 +110,68 @@ fn gesture(r: &egui::Response, edits: &mut Vec<Edit>) {
     }
 }
 
-fn units_box(ui: &mut Ui, id: (&str, usize), units: &mut Units) -> bool {
+/// A short text field applied when it loses focus (Enter, Tab or a click elsewhere): while it
+/// has focus a draft is kept, so half-typed periods never reach the engine and the whole
+/// entry is one undo step. Returns the new text when it differs from `current`.
+pub(super) fn draft_field(
+    ui: &mut Ui,
+    salt: impl std::hash::Hash + std::fmt::Debug,
+    current: &str,
+    name: &str,
+    hint: &str,
+) -> Option<String> {
+    let id = ui.make_persistent_id(salt);
+    let mut text = ui
+        .data(|d| d.get_temp::<String>(id))
+        .unwrap_or_else(|| current.to_string());
+    let r = ui
+        .add(
+            egui::TextEdit::singleline(&mut text)
+                .id(id.with("field"))
+                .desired_width(64.0)
+                .hint_text(hint),
+        )
+        .accessible_name(name);
+    if r.lost_focus() {
+        ui.data_mut(|d| d.remove::<String>(id));
+        let text = text.trim().to_string();
+        return (text != current).then_some(text);
+    }
+    if r.has_focus() {
+        ui.data_mut(|d| d.insert_temp(id, text));
+    }
+    None
+}
+
+/// Where a frame's edits go in the undo history when a field's gesture (focus or drag) begins
+/// or ends in that frame: a beginning gesture takes the frame's edit; an ending one keeps it;
+/// when focus moves from one field to another, the edit ends the old gesture and the new one
+/// begins after it.
+pub(super) fn in_gesture(
+    app: &mut TiltyardApp,
+    began: bool,
+    ended: bool,
+    edit: impl FnOnce(&mut TiltyardApp),
+) {
+    if began && !ended {
+        app.doc.begin_gesture();
+    }
+    edit(app);
+    if ended {
+        app.doc.end_gesture();
+        if began {
+            app.doc.begin_gesture();
+        }
+    }
+}
+
+fn units_box(ui: &mut Ui, id: (&str, usize), units: &mut Units, per_year: usize) -> bool {
     let before = *units;
     egui::ComboBox::from_id_salt(id)
         .selected_text(units.label())
         .width(96.0)
         .show_ui(ui, |ui| {
-            for u in UNITS {
+            for u in units_offered(per_year, before) {
                 ui.selectable_value(units, u, u.label());
             }
         })
@@ -166,7 +232,14 @@ fn target_box(
     }
 }
 
-fn pin_row(ui: &mut Ui, k: usize, pin: &PinSpec, names: &[String], edits: &mut Vec<Edit>) {
+fn pin_row(
+    ui: &mut Ui,
+    k: usize,
+    pin: &PinSpec,
+    names: &[String],
+    per_year: usize,
+    edits: &mut Vec<Edit>,
+) {
     let mut p = pin.clone();
     let mut changed = false;
     ui.horizontal_wrapped(|ui| {
@@ -182,13 +255,12 @@ fn pin_row(ui: &mut Ui, k: usize, pin: &PinSpec, names: &[String], edits: &mut V
             edits.push(Edit::Select(CondRef::Pin(k)));
         }
         changed |= target_box(ui, ("pin target", k), &mut p.series, &mut p.shock, names);
-        let r = ui
-            .add(egui::TextEdit::singleline(&mut p.period).desired_width(64.0))
-            .accessible_name("period");
-        gesture(&r, edits);
-        changed |= r.changed();
+        if let Some(text) = draft_field(ui, ("pin period", k), &p.period, "period", "") {
+            p.period = text;
+            changed = true;
+        }
         if p.shock.is_none() {
-            changed |= units_box(ui, ("pin units", k), &mut p.units);
+            changed |= units_box(ui, ("pin units", k), &mut p.units, per_year);
         }
         let r = ui
             .add(
@@ -208,7 +280,14 @@ fn pin_row(ui: &mut Ui, k: usize, pin: &PinSpec, names: &[String], edits: &mut V
     }
 }
 
-fn corridor_row(ui: &mut Ui, k: usize, c: &CorridorSpec, names: &[String], edits: &mut Vec<Edit>) {
+fn corridor_row(
+    ui: &mut Ui,
+    k: usize,
+    c: &CorridorSpec,
+    names: &[String],
+    per_year: usize,
+    edits: &mut Vec<Edit>,
+) {
     let mut s = c.clone();
     let mut changed = false;
     ui.horizontal_wrapped(|ui| {
@@ -231,14 +310,13 @@ fn corridor_row(ui: &mut Ui, k: usize, c: &CorridorSpec, names: &[String], edits
             names,
         );
         for (name, period) in [("from", &mut s.from), ("to", &mut s.to)] {
-            let r = ui
-                .add(egui::TextEdit::singleline(period).desired_width(64.0))
-                .accessible_name(name);
-            gesture(&r, edits);
-            changed |= r.changed();
+            if let Some(text) = draft_field(ui, (name, k), period, name, "") {
+                *period = text;
+                changed = true;
+            }
         }
         if s.shock.is_none() {
-            changed |= units_box(ui, ("corridor units", k), &mut s.units);
+            changed |= units_box(ui, ("corridor units", k), &mut s.units, per_year);
         }
         if ui.small_button("remove").clicked() {
             edits.push(Edit::Remove(CondRef::Corridor(k)));
@@ -281,6 +359,15 @@ fn bound_editor(
             changed |= r.changed();
         }
         Some(Bound::Each(list)) => {
+            if ui
+                .small_button("one value")
+                .on_hover_text("the same bound at every period (the first one's)")
+                .clicked()
+            {
+                let first = list.iter().flatten().next().copied().unwrap_or(0.0);
+                *bound = Some(Bound::Same(first));
+                return true;
+            }
             ui.push_id(id, |ui| {
                 for (i, v) in list.iter_mut().enumerate() {
                     match v {
@@ -314,40 +401,64 @@ fn bound_editor(
 }
 
 fn edits_apply(app: &mut TiltyardApp, edits: Vec<Edit>) {
-    for e in edits {
-        match e {
-            Edit::Begin => app.doc.begin_gesture(),
-            Edit::End => app.doc.end_gesture(),
-            Edit::Pin(k, p) => app.doc.edit(|f| {
-                if let Some(slot) = f.pins.get_mut(k) {
-                    *slot = p;
+    let began = edits.iter().any(|e| matches!(e, Edit::Begin));
+    let ended = edits.iter().any(|e| matches!(e, Edit::End));
+    in_gesture(app, began, ended, |app| {
+        for e in edits {
+            apply_one(app, e);
+        }
+    });
+}
+
+fn apply_one(app: &mut TiltyardApp, e: Edit) {
+    match e {
+        Edit::Begin | Edit::End => {}
+        Edit::Pin(k, p) => app.doc.edit(|f| {
+            if let Some(slot) = f.pins.get_mut(k) {
+                *slot = p;
+            }
+        }),
+        Edit::Corridor(k, mut c) => {
+            // Per-period bounds follow a typed change of the first or last period.
+            if let (Some(old), Some(r)) = (app.doc.file.corridors.get(k), &app.results) {
+                let at = |label: &str| super::chart::horizon(r, label);
+                let ends = [
+                    (false, old.from.clone(), c.from.clone()),
+                    (true, old.to.clone(), c.to.clone()),
+                ];
+                for (last, before, now) in ends {
+                    if let (Some(a), Some(b)) = (at(&before), at(&now))
+                        && a != b
+                    {
+                        super::move_end(&mut c, last, b - a, now);
+                    }
                 }
-            }),
-            Edit::Corridor(k, c) => app.doc.edit(|f| {
+            }
+            app.doc.edit(|f| {
                 if let Some(slot) = f.corridors.get_mut(k) {
                     *slot = c;
                 }
-            }),
-            Edit::Remove(cref) => app.remove(cref),
-            Edit::Select(cref) => app.selected = Some(cref),
-            Edit::AddPin => {
-                let first = first_future(app);
-                let median = app
-                    .results
-                    .as_ref()
-                    .and_then(|r| r.series.first())
-                    .and_then(|s| s.conditional.first())
-                    .map_or(0.0, |f| f.q[3]);
-                app.doc
-                    .edit(|f| f.pins.push(new_pin(f, first.clone(), median)));
-                app.selected = Some(CondRef::Pin(app.doc.file.pins.len() - 1));
-            }
-            Edit::AddCorridor => {
-                let first = first_future(app);
-                app.doc
-                    .edit(|f| f.corridors.push(new_corridor(f, first.clone())));
-                app.selected = Some(CondRef::Corridor(app.doc.file.corridors.len() - 1));
-            }
+            })
+        }
+        Edit::Remove(cref) => app.remove(cref),
+        Edit::Select(cref) => app.selected = Some(cref),
+        Edit::AddPin => {
+            let first = first_future(app);
+            let median = app
+                .results
+                .as_ref()
+                .and_then(|r| r.series.first())
+                .and_then(|s| s.conditional.first())
+                .map_or(0.0, |f| f.q[3]);
+            app.doc
+                .edit(|f| f.pins.push(new_pin(f, first.clone(), median)));
+            app.selected = Some(CondRef::Pin(app.doc.file.pins.len() - 1));
+        }
+        Edit::AddCorridor => {
+            let first = first_future(app);
+            app.doc
+                .edit(|f| f.corridors.push(new_corridor(f, first.clone())));
+            app.selected = Some(CondRef::Corridor(app.doc.file.corridors.len() - 1));
         }
     }
 }

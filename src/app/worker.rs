@@ -59,11 +59,19 @@ pub enum EngineState {
     Failed,
 }
 
-/// One series' results, in its display units. `x` is the horizon: 0 is the last
-/// observation, negative values are history.
+/// What a chart shows: a series (in its display units) or a structural shock (standardised).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
+pub enum Subject {
+    Series,
+    Shock,
+}
+
+/// One series' or shock's results. `x` is the horizon: 0 is the last observation, negative
+/// values are history (none for shocks).
 #[derive(Debug, Clone, PartialEq)]
 pub struct SeriesView {
     pub name: String,
+    pub subject: Subject,
     pub units: Units,
     pub history: Vec<(f64, f64)>,
     pub conditional: Vec<FanPoint>,
@@ -78,15 +86,21 @@ pub struct FanPoint {
     pub q: [f64; 7],
 }
 
-/// Fans of all series, and how many draws they rest on.
+/// Fans of all series and shocks, and how many draws they rest on.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Results {
     pub series: Vec<SeriesView>,
+    /// One per shock, in series order (shocks are named after the series).
+    pub shocks: Vec<SeriesView>,
     /// Posterior draws behind the fans (0 for the preview at the posterior mean).
     pub draws: usize,
     pub total: usize,
     /// True for the preview at the posterior mean (it understates uncertainty).
     pub preview: bool,
+    /// Drawn without the conditions, because they clash and nothing better was there to show.
+    pub without_conditions: bool,
+    /// With reweighting (ALGORITHMS §8.4): the effective number of posterior draws.
+    pub effective_draws: Option<f64>,
     /// Label of each horizon `x` from −history to h (index `x + history`).
     pub labels: Vec<String>,
     pub history: usize,
@@ -218,22 +232,17 @@ fn process(
     let (conditions, problems) = setup.read_conditions();
     // First fans fast: the preview at the central θ, before the checks (which take longer).
     // Invalid conditions are clashes; no preview is shown for them.
-    let preview = if problems.is_empty() {
-        match preview(&setup, model, &conditions, job) {
-            Ok(paths) => {
-                let fixed = matches!(model.source, ParamSource::Fixed(_));
-                let total = if fixed { 0 } else { model.thetas.thetas.len() };
-                send(Message::Results(
-                    g,
-                    Arc::new(results(&setup, &paths, 0, total, !fixed)),
-                ));
-                Ok(())
-            }
-            Err(e) => Err(e),
-        }
-    } else {
-        Ok(())
+    let fixed = matches!(model.source, ParamSource::Fixed(_));
+    let total = if fixed { 0 } else { model.thetas.thetas.len() };
+    let show = |paths: &PathSet, without_conditions: bool| {
+        let shocks = Shocks::of(paths, |_| &model.central);
+        let mut r = results(&setup, paths, &shocks, 0, total, !fixed);
+        r.without_conditions = without_conditions;
+        send(Message::Results(g, Arc::new(r)));
     };
+    let first = problems
+        .is_empty()
+        .then(|| preview(&setup, model, &conditions, job).map(|paths| show(&paths, false)));
     if cancelled() {
         return Ok(());
     }
@@ -251,12 +260,20 @@ fn process(
     send(Message::Checks(g, Box::new(report)));
     if clashes {
         send(Message::State(g, EngineState::Clashing));
+        // Something to look at when the window has no earlier fans (it keeps those if it has):
+        // the forecast without the conditions.
+        if !matches!(first, Some(Ok(())))
+            && let Ok(paths) = preview(&setup, model, &Conditions::default(), job)
+        {
+            show(&paths, true);
+        }
         return Ok(());
     }
-    match preview {
-        Err(crate::forecast::ForecastError::Cancelled) => Ok(()),
-        Err(e) => Err(e.to_string()),
-        Ok(()) => posterior(&setup, model, &conditions, job, send, start),
+    match first {
+        // (Invalid conditions always clash: `None` does not get here.)
+        None | Some(Err(crate::forecast::ForecastError::Cancelled)) => Ok(()),
+        Some(Err(e)) => Err(e.to_string()),
+        Some(Ok(())) => posterior(&setup, model, &conditions, job, send, start),
     }
 }
 
@@ -339,7 +356,7 @@ fn sampling(file: &ScenarioFile, paths_per_theta: usize) -> Sampling {
     Sampling {
         paths_per_theta,
         seed: file.seed,
-        reweight: false,
+        reweight: file.reweight,
         min_acceptance: file.checks.min_acceptance,
     }
 }
@@ -387,6 +404,7 @@ fn posterior(
         ParamSource::Posterior(_) => model.thetas.thetas.len(),
     };
     let mut all = PathSet::default();
+    let mut shocks = Shocks::default();
     let mut done = 0;
     while done < total {
         if job.cancel.load(Ordering::Relaxed) {
@@ -406,12 +424,15 @@ fn posterior(
             Err(crate::forecast::ForecastError::Cancelled) => return Ok(()),
             Err(e) => return Err(e.to_string()),
         };
+        let per = file.paths_per_draw;
+        shocks.extend(Shocks::of(&block, |k| &model.thetas.thetas[done + k / per]));
         all.conditional.extend(block.conditional);
         all.unconditional.extend(block.unconditional);
+        all.log_weights.extend(block.log_weights);
         done = end;
         send(Message::Results(
             g,
-            Arc::new(results(setup, &all, done, total, false)),
+            Arc::new(results(setup, &all, &shocks, done, total, false)),
         ));
     }
     send(Message::State(
@@ -424,9 +445,92 @@ fn posterior(
     Ok(())
 }
 
-/// Fans and history of every series in display units.
-fn results(setup: &Setup, paths: &PathSet, draws: usize, total: usize, preview: bool) -> Results {
-    let cond = fans(setup, &paths.conditional, None, Kind::Conditional);
+/// The structural shocks behind each path, each under the θ that drew it.
+#[derive(Default)]
+struct Shocks {
+    conditional: Vec<Vec<f64>>,
+    unconditional: Vec<Vec<f64>>,
+}
+
+impl Shocks {
+    /// Shocks of every path of `paths`; `theta(k)` is the θ of path `k`.
+    fn of<'a>(paths: &PathSet, theta: impl Fn(usize) -> &'a Theta) -> Shocks {
+        let each = |list: &[Vec<f64>]| -> Vec<Vec<f64>> {
+            list.iter()
+                .enumerate()
+                .map(|(k, y)| theta(k).shocks_from_path(y))
+                .collect()
+        };
+        Shocks {
+            conditional: each(&paths.conditional),
+            unconditional: each(&paths.unconditional),
+        }
+    }
+
+    fn extend(&mut self, more: Shocks) {
+        self.conditional.extend(more.conditional);
+        self.unconditional.extend(more.unconditional);
+    }
+}
+
+/// Fans of shock `j` over horizons 1…h from shocks stacked period by period (`n` per period),
+/// weighted by path if `weights` are given.
+fn shock_fans(
+    all: &[Vec<f64>],
+    weights: Option<&[f64]>,
+    j: usize,
+    n: usize,
+    h: usize,
+) -> Vec<FanPoint> {
+    let mut values = Vec::with_capacity(all.len());
+    (1..=h)
+        .map(|t| {
+            values.clear();
+            values.extend(all.iter().map(|e| e[(t - 1) * n + j]));
+            let (mean, q) = match weights {
+                Some(w) => crate::report::weighted(&values, w),
+                None => (
+                    values.iter().sum::<f64>() / values.len().max(1) as f64,
+                    crate::report::quantiles(&mut values),
+                ),
+            };
+            FanPoint {
+                x: t as f64,
+                mean,
+                q,
+            }
+        })
+        .collect()
+}
+
+/// Fans and history of every series in display units, and fans of every shock.
+fn results(
+    setup: &Setup,
+    paths: &PathSet,
+    shocks: &Shocks,
+    draws: usize,
+    total: usize,
+    preview: bool,
+) -> Results {
+    // Reweighting: each θ's weight shared by its paths (the preview has one θ: no weights);
+    // the unconditional fans keep p(θ | data).
+    let (weights, effective_draws) = if paths.log_weights.len() > 1 {
+        let (w, ess) = crate::forecast::normalise(&paths.log_weights);
+        let per = paths.conditional.len() / w.len();
+        let per_path: Vec<f64> = w
+            .iter()
+            .flat_map(|&wi| std::iter::repeat_n(wi / per as f64, per))
+            .collect();
+        (Some(per_path), Some(ess))
+    } else {
+        (None, None)
+    };
+    let cond = fans(
+        setup,
+        &paths.conditional,
+        weights.as_deref(),
+        Kind::Conditional,
+    );
     let uncond = fans(setup, &paths.unconditional, None, Kind::Unconditional);
     let h = setup.file.horizon;
     let history = HISTORY_YEARS * setup.periods_per_year();
@@ -471,6 +575,7 @@ fn results(setup: &Setup, paths: &PathSet, draws: usize, total: usize, preview: 
             };
             SeriesView {
                 name: setup.names[i].clone(),
+                subject: Subject::Series,
                 units: setup.display[i],
                 history: hist,
                 conditional: pick(&cond),
@@ -478,11 +583,25 @@ fn results(setup: &Setup, paths: &PathSet, draws: usize, total: usize, preview: 
             }
         })
         .collect();
+    let n = setup.n();
+    let shocks = (0..n)
+        .map(|j| SeriesView {
+            name: setup.names[j].clone(),
+            subject: Subject::Shock,
+            units: Units::Level,
+            history: Vec::new(),
+            conditional: shock_fans(&shocks.conditional, weights.as_deref(), j, n, h),
+            unconditional: shock_fans(&shocks.unconditional, None, j, n, h),
+        })
+        .collect();
     Results {
         series,
+        shocks,
         draws,
         total,
         preview,
+        without_conditions: false,
+        effective_draws,
         labels,
         history,
         last,
