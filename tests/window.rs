@@ -560,16 +560,14 @@ fn unsaved_edits_come_back_after_a_crash() {
     assert_eq!(h.state().doc.file, edited);
     assert!(h.state().doc.is_dirty() && h.state().doc.can_undo());
     h.key_press_modifiers(Modifiers::COMMAND, egui::Key::S);
-    h.run_steps(2);
-    assert_eq!(scenario::read(&path).unwrap(), edited);
+    // Saves run on a thread of their own: the window learns of it a frame or so later.
     let start = Instant::now();
-    while recovery.exists() {
-        assert!(
-            start.elapsed() < Duration::from_secs(10),
-            "recovery file kept"
-        );
+    while h.state().doc.is_dirty() || recovery.exists() {
+        h.step();
+        assert!(start.elapsed() < Duration::from_secs(10), "not saved");
         std::thread::sleep(Duration::from_millis(10));
     }
+    assert_eq!(scenario::read(&path).unwrap(), edited);
 }
 
 /// A scenario file that cannot be read opens as a blank scenario, and Save then asks where
@@ -749,4 +747,37 @@ fn a_period_typed_in_the_table_applies_when_the_field_is_left() {
     h.key_press_modifiers(Modifiers::COMMAND, egui::Key::Z);
     h.run_steps(2);
     assert_eq!(h.state().doc.file.corridors[1], before);
+}
+
+/// With unsaved changes, New asks first; Save there saves (on the chores' thread) and then
+/// starts the blank scenario on the same data; Cancel keeps everything.
+#[test]
+fn new_asks_about_unsaved_changes_first() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = demo_copy(&dir);
+    let mut h = harness(&path);
+    settle(&mut h);
+    h.state_mut().doc.edit(|f| f.pins[0].value = 3.75);
+    h.state_mut().ask(tiltyard::app::AfterSave::New);
+    h.run_steps(2);
+    assert!(h.query_by_label_contains("Unsaved changes").is_some());
+    h.get_by_label("Cancel").click();
+    h.run_steps(2);
+    assert!(h.state().prompt.is_none() && h.state().doc.is_dirty());
+    h.state_mut().ask(tiltyard::app::AfterSave::New);
+    h.run_steps(2);
+    h.get_by_label("Save first").click();
+    let start = Instant::now();
+    while !h.state().doc.untitled {
+        h.step();
+        assert!(
+            start.elapsed() < Duration::from_secs(10),
+            "New did not follow the save"
+        );
+        std::thread::sleep(Duration::from_millis(10));
+    }
+    assert_eq!(scenario::read(&path).unwrap().pins[0].value, 3.75);
+    let f = &h.state().doc.file;
+    assert!(f.pins.is_empty() && f.corridors.is_empty() && f.series.len() == 10);
+    assert_eq!(f.name, "New scenario");
 }

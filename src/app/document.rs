@@ -120,28 +120,23 @@ impl Document {
         self.file != self.saved
     }
 
-    /// Save atomically to `path` (write a temporary file beside it, then rename), and make it
-    /// the document's path. Relative dataset paths are rewritten so that they still point at
-    /// the same file from the new folder.
-    /// The undo history is rewritten the same way, so that undoing after a move still finds
-    /// the dataset.
-    pub fn save_as(&mut self, path: &Path) -> std::io::Result<()> {
-        let mut file = self.file.clone();
-        file.dataset = rebase(&self.path, path, &file.dataset);
-        write_atomic(path, &scenario::to_text(&file))?;
-        for f in self.undo.iter_mut().chain(&mut self.redo) {
-            f.dataset = rebase(&self.path, path, &f.dataset);
+    /// Record that `written` (this document's file when the save began, its dataset path
+    /// rewritten from `old_dataset` by [`write_scenario`]) is now at `path`, which becomes the
+    /// document's path. The dataset path is rewritten the same way in the current file (edits
+    /// made while saving stay unsaved) and in the undo history, so that undoing after a move
+    /// still finds the dataset.
+    pub fn saved_as(&mut self, path: &Path, written: ScenarioFile, old_dataset: &str) {
+        for f in std::iter::once(&mut self.file)
+            .chain(self.undo.iter_mut())
+            .chain(self.redo.iter_mut())
+        {
+            if f.dataset == old_dataset {
+                f.dataset = written.dataset.clone();
+            }
         }
-        self.file = file.clone();
-        self.saved = file;
+        self.saved = written;
         self.path = path.to_path_buf();
         self.untitled = false;
-        Ok(())
-    }
-
-    pub fn save(&mut self) -> std::io::Result<()> {
-        let path = self.path.clone();
-        self.save_as(&path)
     }
 
     /// Where unsaved edits of this scenario are kept against a crash: beside the file, hidden.
@@ -182,6 +177,20 @@ pub fn write_atomic(path: &Path, text: &str) -> std::io::Result<()> {
     result
 }
 
+/// Save `file`, a scenario that was at `from`, atomically to `to` (write a temporary file
+/// beside it, then rename). A relative dataset path is rewritten so that it still points at
+/// the same file from the new folder. Returns the file as written.
+pub fn write_scenario(
+    from: &Path,
+    to: &Path,
+    file: &ScenarioFile,
+) -> std::io::Result<ScenarioFile> {
+    let mut file = file.clone();
+    file.dataset = rebase(from, to, &file.dataset);
+    write_atomic(to, &scenario::to_text(&file))?;
+    Ok(file)
+}
+
 /// A dataset path relative to the scenario at `from`, rewritten for a scenario at `to`
 /// (absolute paths are kept).
 fn rebase(from: &Path, to: &Path, dataset: &str) -> String {
@@ -216,6 +225,12 @@ fn same_dir(a: &Path, b: &Path) -> bool {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    fn save_as(doc: &mut Document, path: &Path) {
+        let old = doc.file.dataset.clone();
+        let written = write_scenario(&doc.path, path, &doc.file).unwrap();
+        doc.saved_as(path, written, &old);
+    }
 
     fn demo() -> Document {
         let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("scenarios-demo/baseline.ron");
@@ -267,7 +282,7 @@ mod tests {
         let recovered = scenario::read(&doc.recovery_path()).unwrap();
         assert_eq!(recovered, doc.file);
         let path = dir.path().join("mine.ron");
-        doc.save_as(&path).unwrap();
+        save_as(&mut doc, &path);
         assert!(!doc.is_dirty());
         let leftovers: Vec<_> = std::fs::read_dir(dir.path())
             .unwrap()
@@ -285,9 +300,15 @@ mod tests {
     fn relative_dataset_follows_a_move() {
         let dir = tempfile::tempdir().unwrap();
         let mut doc = demo();
+        let before = doc.file.dataset.clone();
+        doc.edit(|f| f.pins[0].value = 9.0);
         let path = dir.path().join("moved.ron");
-        doc.save_as(&path).unwrap();
+        save_as(&mut doc, &path);
         assert!(Path::new(&doc.file.dataset).is_absolute());
         assert!(scenario::load(&path).is_ok());
+        // Undo after the move keeps the rewritten dataset path.
+        assert!(doc.undo());
+        assert_ne!(doc.file.dataset, before);
+        assert_eq!(doc.file.dataset, doc.saved.dataset);
     }
 }

@@ -57,28 +57,36 @@ pub enum Purpose {
 
 /// A dialog's answer, with what was read from the picked file.
 pub enum Answer {
-    /// A scenario, read (or why not), and whether a newer recovery file is beside it.
-    Open(PathBuf, Result<ScenarioFile, String>, bool),
+    /// A scenario, read (or why not), and the newer recovery file beside it, if any.
+    Open(
+        PathBuf,
+        Box<(Result<ScenarioFile, String>, Option<Recovered>)>,
+    ),
     SaveAs(PathBuf),
     /// A new scenario on a dataset (or why the dataset cannot be used).
-    NewFromData(PathBuf, Result<ScenarioFile, String>),
+    NewFromData(PathBuf, Box<Result<ScenarioFile, String>>),
 }
 
-/// Read a scenario file for the window, and tell whether a newer recovery file is beside it.
-pub fn read_scenario(path: &Path) -> (Result<ScenarioFile, String>, bool) {
+/// Unsaved edits found in a recovery file: the scenario they make (or why it cannot be read).
+pub type Recovered = Result<ScenarioFile, String>;
+
+/// Read a scenario file for the window, and the recovery file beside it if that is newer.
+pub fn read_scenario(path: &Path) -> (Result<ScenarioFile, String>, Option<Recovered>) {
     let file = scenario::read(path).map_err(|e| e.to_string());
     (file, newer_recovery(path))
 }
 
-/// True when the recovery file of `path` exists and is newer than it (or `path` is missing).
-pub fn newer_recovery(path: &Path) -> bool {
+/// The recovery file of `path`, read, if it exists and is newer than `path` (or `path` is
+/// missing).
+pub fn newer_recovery(path: &Path) -> Option<Recovered> {
     let recovery = super::document::recovery_path(path);
     let modified = |p: &Path| std::fs::metadata(p).and_then(|m| m.modified()).ok();
-    match (modified(&recovery), modified(path)) {
+    let newer = match (modified(&recovery), modified(path)) {
         (Some(r), Some(p)) => r > p,
         (Some(_), None) => true,
         _ => false,
-    }
+    };
+    newer.then(|| scenario::read(&recovery).map_err(|e| e.to_string()))
 }
 
 /// A new scenario on the dataset at `path`: every column a series, as it is (no transform),
@@ -162,13 +170,13 @@ impl Dialogs {
         std::thread::spawn(move || {
             let answer = match purpose {
                 Purpose::Open => picker.open(&start).map(|p| {
-                    let (file, recovery) = read_scenario(&p);
-                    Answer::Open(p, file, recovery)
+                    let read = read_scenario(&p);
+                    Answer::Open(p, Box::new(read))
                 }),
                 Purpose::SaveAs => picker.save(&start, &name).map(Answer::SaveAs),
                 Purpose::NewFromData => picker.dataset(&start).map(|p| {
                     let file = scenario_for(&p);
-                    Answer::NewFromData(p, file)
+                    Answer::NewFromData(p, Box::new(file))
                 }),
             };
             let _ = tx.send(answer);
@@ -186,42 +194,67 @@ impl Dialogs {
     }
 }
 
-/// Small file chores (the recovery file) done in order on a thread of their own, so that a
-/// slow disk never stalls the window.
+/// File chores (saves and the recovery file) done in order on a thread of their own, so
+/// that a slow disk never stalls the window.
 pub struct Chores {
     tx: Sender<Chore>,
-    failures: Receiver<String>,
+    replies: Receiver<Reply>,
 }
 
 enum Chore {
     Write(PathBuf, String),
     Remove(PathBuf),
+    Save(Box<Save>),
+}
+
+/// A save: the document's `file` as it stood, moving from the scenario at `from` to `to`;
+/// `then` is what the window does once it is saved.
+pub struct Save {
+    pub from: PathBuf,
+    pub to: PathBuf,
+    pub file: ScenarioFile,
+    pub then: Option<super::AfterSave>,
+}
+
+/// What the chores' thread reports.
+pub enum Reply {
+    Failed(String),
+    /// A save succeeded: the file as written (its dataset path rewritten for `to`).
+    Saved(Box<Save>, Box<ScenarioFile>),
 }
 
 impl Chores {
     /// Start the chores' thread.
     pub fn start() -> Chores {
         let (tx, rx) = channel::<Chore>();
-        let (fail_tx, failures) = channel();
+        let (reply, replies) = channel();
         std::thread::spawn(move || {
             for chore in rx {
-                let failure = match chore {
+                let answer = match chore {
                     Chore::Write(path, text) => super::document::write_atomic(&path, &text)
                         .err()
-                        .map(|e| format!("cannot write {}: {e}", path.display())),
-                    Chore::Remove(path) => match std::fs::remove_file(&path) {
-                        Err(e) if e.kind() != std::io::ErrorKind::NotFound => {
-                            Some(format!("cannot remove {}: {e}", path.display()))
-                        }
-                        _ => None,
-                    },
+                        .map(|e| Reply::Failed(format!("cannot write {}: {e}", path.display()))),
+                    Chore::Remove(path) => remove(&path).err().map(Reply::Failed),
+                    Chore::Save(save) => Some(
+                        match super::document::write_scenario(&save.from, &save.to, &save.file) {
+                            Ok(written) => {
+                                // The recovery file of the old place has served its turn.
+                                let old = super::document::recovery_path(&save.from);
+                                let _ = remove(&old);
+                                Reply::Saved(save, Box::new(written))
+                            }
+                            Err(e) => {
+                                Reply::Failed(format!("cannot save {}: {e}", save.to.display()))
+                            }
+                        },
+                    ),
                 };
-                if let Some(f) = failure {
-                    let _ = fail_tx.send(f);
+                if let Some(a) = answer {
+                    let _ = reply.send(a);
                 }
             }
         });
-        Chores { tx, failures }
+        Chores { tx, replies }
     }
 
     /// Write `text` to `path` atomically.
@@ -234,8 +267,22 @@ impl Chores {
         let _ = self.tx.send(Chore::Remove(path));
     }
 
-    /// A chore that failed, if any.
-    pub fn failure(&self) -> Option<String> {
-        self.failures.try_recv().ok()
+    /// Save a scenario (atomically; its dataset path follows a move).
+    pub fn save(&self, save: Save) {
+        let _ = self.tx.send(Chore::Save(Box::new(save)));
+    }
+
+    /// A report from the chores' thread, if any.
+    pub fn reply(&self) -> Option<Reply> {
+        self.replies.try_recv().ok()
+    }
+}
+
+fn remove(path: &Path) -> Result<(), String> {
+    match std::fs::remove_file(path) {
+        Err(e) if e.kind() != std::io::ErrorKind::NotFound => {
+            Err(format!("cannot remove {}: {e}", path.display()))
+        }
+        _ => Ok(()),
     }
 }

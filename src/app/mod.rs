@@ -1,15 +1,17 @@
 //! The scenario window (egui). The engine lives in the rest of the crate; this module only
 //! uses it: every edit becomes a change of the [`document::Document`], the window sends the
 //! scenario as it now stands to the [`worker`] (cancelling the job in flight), and draws
-//! whatever the worker has streamed back. Nothing here computes, reads files or waits on the
-//! window's thread except saving a small text file.
+//! whatever the worker has streamed back. Once the window is up, nothing on its thread
+//! computes, reads or writes files, or waits: the engine, dialogs (and the reading of what they
+//! pick), saves and the recovery file all run on threads of their own and report by channel.
 //!
 //! - [`document`]: the scenario being edited, undo/redo, atomic saves, the recovery file;
 //! - [`worker`]: the engine thread and its messages;
-//! - [`chart`]: one series' chart and its gestures;
+//! - [`chart`]: one series' or shock's chart and its gestures;
 //! - [`panels`]: the bars and side panels; [`table`]: the conditions table;
 //!   [`settings`]: the model settings;
-//! - [`files`]: file dialogs off the window's thread; [`palette`]: colours.
+//! - [`files`]: dialogs, saves and recovery writes off the window's thread; [`palette`]:
+//!   colours.
 
 pub mod chart;
 pub mod document;
@@ -45,8 +47,8 @@ const AUTOSAVE: Duration = Duration::from_secs(20);
 pub enum Prompt {
     /// Unsaved changes before opening another scenario or closing.
     Unsaved { then: AfterSave },
-    /// A recovery file from a session that did not end cleanly.
-    Recover { path: PathBuf },
+    /// A recovery file from a session that did not end cleanly, as read.
+    Recover { edits: Box<files::Recovered> },
 }
 
 /// What the window does once unsaved changes are saved or discarded.
@@ -95,6 +97,10 @@ pub struct TiltyardApp {
     pub prompt: Option<Prompt>,
     dialogs: Dialogs,
     chores: Chores,
+    /// A save is under way on the chores' thread.
+    pub saving: bool,
+    /// What to do once a Save As (asked for by an unsaved-changes prompt) is done.
+    after_save_as: Option<AfterSave>,
     wake: Arc<dyn Fn() + Send + Sync>,
     last_autosave: Instant,
     /// A recovery file was written for the current document.
@@ -130,8 +136,7 @@ impl TiltyardApp {
             .name("tiltyard-engine".into())
             .spawn(move || worker::run(job_rx, msg_tx, move || w()))
             .expect("the engine thread starts");
-        let recovery = document::recovery_path(path);
-        let prompt = files::newer_recovery(path).then_some(Prompt::Recover { path: recovery });
+        let prompt = files::newer_recovery(path).map(|r| Prompt::Recover { edits: Box::new(r) });
         TiltyardApp {
             doc,
             notice,
@@ -157,6 +162,8 @@ impl TiltyardApp {
             prompt,
             dialogs: Dialogs::new(picker),
             chores: Chores::start(),
+            saving: false,
+            after_save_as: None,
             wake,
             last_autosave: Instant::now(),
             recovery_written: false,
@@ -428,7 +435,7 @@ impl TiltyardApp {
             self.doc.undo();
         }
         if do_save {
-            self.save();
+            self.save(None);
         }
         if delete && let Some(cref) = self.selected {
             self.remove(cref);
@@ -502,20 +509,46 @@ impl TiltyardApp {
         });
     }
 
-    /// Save to the document's path (atomic); clears the recovery file. A new scenario, or one
-    /// whose file could not be read, asks where instead.
-    pub fn save(&mut self) {
+    /// Save to the document's path (atomically, on the chores' thread; the recovery file goes
+    /// once it is saved), then do `then`. A new scenario, or one whose file could not be read,
+    /// asks where instead.
+    pub fn save(&mut self, then: Option<AfterSave>) {
         if self.doc.untitled {
+            self.after_save_as = then;
             self.pick(Purpose::SaveAs);
             return;
         }
-        match self.doc.save() {
-            Ok(()) => {
-                self.forget_recovery();
-                self.notice = None;
-            }
-            Err(e) => {
-                self.notice = Some(format!("cannot save {}: {e}", self.doc.path.display()));
+        let to = self.doc.path.clone();
+        self.save_to(to, then);
+    }
+
+    fn save_to(&mut self, to: PathBuf, then: Option<AfterSave>) {
+        self.chores.save(files::Save {
+            from: self.doc.path.clone(),
+            to,
+            file: self.doc.file.clone(),
+            then,
+        });
+        self.saving = true;
+    }
+
+    /// Reports of saves and chores.
+    fn chores_done(&mut self) {
+        while let Some(reply) = self.chores.reply() {
+            match reply {
+                files::Reply::Failed(text) => {
+                    self.saving = false;
+                    self.notice = Some(text);
+                }
+                files::Reply::Saved(save, written) => {
+                    self.saving = false;
+                    self.doc.saved_as(&save.to, *written, &save.file.dataset);
+                    self.recovery_written = false;
+                    self.notice = None;
+                    if let Some(then) = save.then {
+                        self.proceed(then);
+                    }
+                }
             }
         }
     }
@@ -548,7 +581,7 @@ impl TiltyardApp {
         file.corridors.clear();
         file.drivers = None;
         let path = self.doc.path.with_file_name("new-scenario.ron");
-        self.install(file, path, true, false);
+        self.install(file, path, true);
     }
 
     /// Start a new scenario on a dataset (read here; the dialog reads it on its own thread).
@@ -567,7 +600,7 @@ impl TiltyardApp {
                         .map(|s| s.to_string_lossy().into_owned())
                         .unwrap_or_else(|| "new".into())
                 ));
-                self.install(file, path, true, false);
+                self.install(file, path, true);
             }
             Err(e) => self.notice = Some(format!("cannot start a scenario on this data: {e}")),
         }
@@ -596,16 +629,24 @@ impl TiltyardApp {
         self.take_opened(path, file, recovery);
     }
 
-    fn take_opened(&mut self, path: &Path, file: Result<ScenarioFile, String>, recovery: bool) {
+    fn take_opened(
+        &mut self,
+        path: &Path,
+        file: Result<ScenarioFile, String>,
+        recovery: Option<files::Recovered>,
+    ) {
         match file {
-            Ok(file) => self.install(file, path.to_path_buf(), false, recovery),
+            Ok(file) => {
+                self.install(file, path.to_path_buf(), false);
+                self.prompt = recovery.map(|r| Prompt::Recover { edits: Box::new(r) });
+            }
             Err(e) => self.notice = Some(format!("cannot open {}: {e}", path.display())),
         }
     }
 
     /// Replace the document. The edits of the one it replaces were saved or discarded before;
     /// its recovery file goes now, not before (a cancelled dialog keeps both).
-    fn install(&mut self, file: ScenarioFile, path: PathBuf, untitled: bool, recovery: bool) {
+    fn install(&mut self, file: ScenarioFile, path: PathBuf, untitled: bool) {
         self.forget_recovery();
         self.doc = Document::from_file(file, path);
         self.doc.untitled = untitled;
@@ -616,29 +657,20 @@ impl TiltyardApp {
         self.notice = None;
         self.charts.clear();
         self.hidden.clear();
-        if recovery {
-            self.prompt = Some(Prompt::Recover {
-                path: self.doc.recovery_path(),
-            });
-        }
     }
 
     fn answers(&mut self) {
         if let Some(answer) = self.dialogs.answer() {
             match answer {
-                Some(Answer::Open(p, file, recovery)) => self.take_opened(&p, file, recovery),
-                Some(Answer::NewFromData(p, file)) => self.take_new(&p, file),
-                None => {}
+                Some(Answer::Open(p, read)) => {
+                    let (file, recovery) = *read;
+                    self.take_opened(&p, file, recovery)
+                }
+                Some(Answer::NewFromData(p, file)) => self.take_new(&p, *file),
+                None => self.after_save_as = None,
                 Some(Answer::SaveAs(p)) => {
-                    let old = self.doc.recovery_path();
-                    match self.doc.save_as(&p) {
-                        Ok(()) => {
-                            self.chores.remove(old);
-                            self.recovery_written = false;
-                            self.notice = None;
-                        }
-                        Err(e) => self.notice = Some(format!("cannot save {}: {e}", p.display())),
-                    }
+                    let then = self.after_save_as.take();
+                    self.save_to(p, then);
                 }
             }
         }
@@ -658,9 +690,6 @@ impl TiltyardApp {
         } else if !dirty && self.recovery_written {
             self.forget_recovery();
         }
-        if let Some(failure) = self.chores.failure() {
-            self.notice = Some(failure);
-        }
     }
 
     /// Remove the document's recovery file (after a save, or when its edits are let go).
@@ -674,6 +703,7 @@ impl TiltyardApp {
         let ctx = ui.ctx().clone();
         self.drain();
         self.answers();
+        self.chores_done();
         self.shortcuts(&ctx);
         if ctx.input(|i| i.viewport().close_requested())
             && !self.close_confirmed
@@ -707,8 +737,8 @@ impl TiltyardApp {
     }
 
     /// Take the edits from a recovery file into the document (one undo step).
-    pub fn recover(&mut self, path: &Path) {
-        match crate::scenario::read(path) {
+    pub fn recover(&mut self, edits: files::Recovered) {
+        match edits {
             Ok(file) => self.doc.edit(|f| *f = file),
             Err(e) => self.notice = Some(format!("cannot read the recovery file: {e}")),
         }

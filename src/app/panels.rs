@@ -63,7 +63,13 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp) {
 
 fn top_bar(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     ui.horizontal_wrapped(|ui| {
-        let dirty = if app.doc.is_dirty() { " •" } else { "" };
+        let dirty = if app.saving {
+            " (saving…)"
+        } else if app.doc.is_dirty() {
+            " •"
+        } else {
+            ""
+        };
         ui.heading(format!("{}{dirty}", app.doc.file.name))
             .on_hover_text(&app.doc.file.narrative);
         ui.separator();
@@ -85,7 +91,7 @@ fn top_bar(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
             app.ask(AfterSave::Open);
         }
         if ui.button("Save").clicked() {
-            app.save();
+            app.save(None);
         }
         if ui.button("Save as…").clicked() {
             app.pick(Purpose::SaveAs);
@@ -553,9 +559,10 @@ fn prompts(ui: &mut egui::Ui, app: &mut TiltyardApp) {
             ));
             ui.horizontal(|ui| {
                 let mut proceed = false;
-                if ui.button("Save").clicked() {
-                    app.save();
-                    proceed = !app.doc.is_dirty();
+                if ui.button("Save first").clicked() {
+                    // Goes on once saved (a failed save says why and stays).
+                    app.prompt = None;
+                    app.save(Some(then));
                 }
                 if ui.button("Discard changes").clicked() {
                     // On close the edits go now; otherwise once the next scenario is there.
@@ -573,7 +580,7 @@ fn prompts(ui: &mut egui::Ui, app: &mut TiltyardApp) {
                 }
             });
         }
-        Prompt::Recover { path } => {
+        Prompt::Recover { edits } => {
             ui.heading("Unsaved edits found");
             ui.label(format!(
                 "Edits to {} were kept when the window last closed without saving. Take them back?",
@@ -581,7 +588,7 @@ fn prompts(ui: &mut egui::Ui, app: &mut TiltyardApp) {
             ));
             ui.horizontal(|ui| {
                 if ui.button("Recover the edits").clicked() {
-                    app.recover(&path);
+                    app.recover(*edits.clone());
                 }
                 if ui.button("Discard them").clicked() {
                     app.clear_recovery_prompt();
