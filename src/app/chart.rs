@@ -181,6 +181,25 @@ pub fn tidy(x: f64) -> f64 {
     if y.is_finite() { y } else { x }
 }
 
+/// Value grid steps of 1, 2 or 5 times a power of ten (three levels, the finest at least the
+/// plot's smallest step, each a multiple of the one before so that labels stay evenly spaced),
+/// so that every chart gets a few labelled values.
+fn steps_125(input: egui_plot::GridInput) -> [f64; 3] {
+    // 1 → 2 → 10, 2 → 10, 5 → 10.
+    let next = |s: f64| {
+        let p = 10f64.powf(s.log10().floor());
+        p * if s / p < 1.5 { 2.0 } else { 10.0 }
+    };
+    let base = input.base_step_size.max(1e-12);
+    let p = 10f64.powf(base.log10().floor());
+    let s = [1.0, 2.0, 5.0, 10.0]
+        .into_iter()
+        .map(|m| m * p)
+        .find(|&s| s >= base)
+        .unwrap_or(10.0 * p);
+    [s, next(s), next(next(s))]
+}
+
 /// Horizon of a period label (`None` if it does not parse).
 pub fn horizon(results: &Results, label: &str) -> Option<i64> {
     crate::dataset::Period::parse(label, results.last.freq)
@@ -347,6 +366,7 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
         .allow_double_click_reset(false)
         .show_grid([false, true])
         .y_axis_min_width(36.0)
+        .y_grid_spacer(egui_plot::uniform_grid_spacer(steps_125))
         .x_axis_formatter(move |mark: GridMark, _| {
             label_results
                 .label(mark.value)

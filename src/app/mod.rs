@@ -724,6 +724,10 @@ impl TiltyardApp {
         if self.busy() {
             ctx.request_repaint_after(Duration::from_millis(50));
         }
+        // Wake for the next autosave even if nothing else happens.
+        if self.doc.is_dirty() {
+            ctx.request_repaint_after(AUTOSAVE.saturating_sub(self.last_autosave.elapsed()));
+        }
     }
 
     /// Close after the unsaved-changes prompt was answered.
