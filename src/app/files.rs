@@ -205,11 +205,14 @@ enum Chore {
     Write(PathBuf, String),
     Remove(PathBuf),
     Save(Box<Save>),
+    Flush,
 }
 
 /// A save: the document's `file` as it stood, moving from the scenario at `from` to `to`;
-/// `then` is what the window does once it is saved.
+/// `then` is what the window does once it is saved. `document` tells which document the
+/// window had open (a reply about another one changes nothing).
 pub struct Save {
+    pub document: u64,
     pub from: PathBuf,
     pub to: PathBuf,
     pub file: ScenarioFile,
@@ -218,7 +221,12 @@ pub struct Save {
 
 /// What the chores' thread reports.
 pub enum Reply {
+    /// A recovery-file chore failed.
     Failed(String),
+    /// A save failed (nothing was written over the file).
+    SaveFailed(String),
+    /// Every chore sent before the flush is done.
+    Flushed,
     /// A save succeeded: the file as written (its dataset path rewritten for `to`).
     Saved(Box<Save>, Box<ScenarioFile>),
 }
@@ -244,10 +252,11 @@ impl Chores {
                                 Reply::Saved(save, Box::new(written))
                             }
                             Err(e) => {
-                                Reply::Failed(format!("cannot save {}: {e}", save.to.display()))
+                                Reply::SaveFailed(format!("cannot save {}: {e}", save.to.display()))
                             }
                         },
                     ),
+                    Chore::Flush => Some(Reply::Flushed),
                 };
                 if let Some(a) = answer {
                     let _ = reply.send(a);
@@ -275,6 +284,21 @@ impl Chores {
     /// A report from the chores' thread, if any.
     pub fn reply(&self) -> Option<Reply> {
         self.replies.try_recv().ok()
+    }
+
+    /// Wait (at most `limit`) until every chore sent so far is done, for a window about to
+    /// close; the other replies that come in meanwhile are returned.
+    pub fn finish(&self, limit: std::time::Duration) -> Vec<Reply> {
+        let _ = self.tx.send(Chore::Flush);
+        let end = std::time::Instant::now() + limit;
+        let mut others = Vec::new();
+        while let Some(left) = end.checked_duration_since(std::time::Instant::now()) {
+            match self.replies.recv_timeout(left) {
+                Ok(Reply::Flushed) | Err(_) => break,
+                Ok(other) => others.push(other),
+            }
+        }
+        others
     }
 }
 

@@ -99,6 +99,11 @@ pub struct TiltyardApp {
     chores: Chores,
     /// A save is under way on the chores' thread.
     pub saving: bool,
+    /// Counts the documents opened or started in this window (saves name theirs).
+    document: u64,
+    /// The scenario whose unsaved edits were just discarded (its recovery file is not
+    /// offered again when it is reopened).
+    discarded: Option<PathBuf>,
     /// What to do once a Save As (asked for by an unsaved-changes prompt) is done.
     after_save_as: Option<AfterSave>,
     wake: Arc<dyn Fn() + Send + Sync>,
@@ -163,6 +168,8 @@ impl TiltyardApp {
             dialogs: Dialogs::new(picker),
             chores: Chores::start(),
             saving: false,
+            document: 0,
+            discarded: None,
             after_save_as: None,
             wake,
             last_autosave: Instant::now(),
@@ -236,7 +243,8 @@ impl TiltyardApp {
                 // Fans without the conditions only stand in for having none at all.
                 Message::Results(g, r)
                     if g == self.generation
-                        && !(r.without_conditions && self.results.is_some()) =>
+                        && !(r.without_conditions
+                            && self.results.as_ref().is_some_and(|x| !x.without_conditions)) =>
                 {
                     self.first_update.get_or_insert(self.job_started.elapsed());
                     self.results = Some(r);
@@ -472,11 +480,26 @@ impl TiltyardApp {
                 .map(|i| (Subject::Shock, i)),
             _ => None,
         };
+        // The chart's step when the condition is in the chart's units, else one of its own.
+        let units = match cref {
+            CondRef::Pin(k) => f.pins.get(k).map(|p| (p.units, p.value.abs())),
+            CondRef::Corridor(k) => f.corridors.get(k).map(|c| (c.units, 1.0)),
+        };
+        let same_units = match (chart, units) {
+            (Some((Subject::Shock, _)), _) => true,
+            (Some((Subject::Series, i)), Some((u, _))) => {
+                f.series.get(i).map(|s| s.display) == Some(u)
+            }
+            _ => false,
+        };
         let step = chart
+            .filter(|_| same_units)
             .and_then(|c| self.charts.get(&c))
-            .map_or(0.0, |m| m.step);
+            .map(|m| m.step)
+            .filter(|&s| s > 0.0)
+            .unwrap_or_else(|| chart::snap_step(5.0 * units.map_or(1.0, |u| u.1.max(1.0))));
         let delta = f64::from(steps) * step;
-        let h = results.labels.len() as i64 - results.history as i64 - 1;
+        let h = (results.labels.len() as i64 - results.history as i64 - 1).min(f.horizon as i64);
         // A label moved by `periods` (if it stays within the forecast).
         let shifted = |label: &str| -> Option<String> {
             let t = chart::horizon(&results, label)? + periods;
@@ -524,6 +547,7 @@ impl TiltyardApp {
 
     fn save_to(&mut self, to: PathBuf, then: Option<AfterSave>) {
         self.chores.save(files::Save {
+            document: self.document,
             from: self.doc.path.clone(),
             to,
             file: self.doc.file.clone(),
@@ -535,21 +559,32 @@ impl TiltyardApp {
     /// Reports of saves and chores.
     fn chores_done(&mut self) {
         while let Some(reply) = self.chores.reply() {
-            match reply {
-                files::Reply::Failed(text) => {
-                    self.saving = false;
-                    self.notice = Some(text);
-                }
-                files::Reply::Saved(save, written) => {
-                    self.saving = false;
-                    self.doc.saved_as(&save.to, *written, &save.file.dataset);
-                    self.recovery_written = false;
-                    self.notice = None;
-                    if let Some(then) = save.then {
-                        self.proceed(then);
+            self.take_reply(reply);
+        }
+    }
+
+    fn take_reply(&mut self, reply: files::Reply) {
+        match reply {
+            files::Reply::Failed(text) => self.notice = Some(text),
+            files::Reply::SaveFailed(text) => {
+                self.saving = false;
+                self.notice = Some(text);
+            }
+            files::Reply::Saved(save, written) if save.document == self.document => {
+                self.saving = false;
+                self.doc.saved_as(&save.to, *written, &save.file.dataset);
+                self.recovery_written = false;
+                self.notice = None;
+                match save.then {
+                    // Edits made while saving are asked about again, not dropped.
+                    Some(then) if self.doc.is_dirty() => {
+                        self.prompt = Some(Prompt::Unsaved { then })
                     }
+                    Some(then) => self.proceed(then),
+                    None => {}
                 }
             }
+            files::Reply::Saved(..) | files::Reply::Flushed => {}
         }
     }
 
@@ -637,8 +672,12 @@ impl TiltyardApp {
     ) {
         match file {
             Ok(file) => {
+                // Edits just discarded are not offered back (`install` removes their file).
+                let discarded = self.discarded.as_deref() == Some(path);
                 self.install(file, path.to_path_buf(), false);
-                self.prompt = recovery.map(|r| Prompt::Recover { edits: Box::new(r) });
+                self.prompt = recovery
+                    .filter(|_| !discarded)
+                    .map(|r| Prompt::Recover { edits: Box::new(r) });
             }
             Err(e) => self.notice = Some(format!("cannot open {}: {e}", path.display())),
         }
@@ -650,6 +689,17 @@ impl TiltyardApp {
         self.forget_recovery();
         self.doc = Document::from_file(file, path);
         self.doc.untitled = untitled;
+        self.document += 1;
+        self.discarded = None;
+        self.saving = false;
+        self.after_save_as = None;
+        // The engine starts afresh on the new document, even if its file equals the last one
+        // sent (its dataset may sit elsewhere).
+        self.sent = None;
+        self.state = EngineState::Idle;
+        self.model_line.clear();
+        self.engine_error = None;
+        self.first_update = None;
         self.selected = None;
         self.enlarged = None;
         self.results = None;
@@ -657,6 +707,15 @@ impl TiltyardApp {
         self.notice = None;
         self.charts.clear();
         self.hidden.clear();
+    }
+
+    /// Let the unsaved edits go: on close at once, otherwise once the next scenario is there.
+    pub fn discard(&mut self, then: AfterSave) {
+        if then == AfterSave::Close {
+            self.forget_recovery();
+        } else {
+            self.discarded = Some(self.doc.path.clone());
+        }
     }
 
     fn answers(&mut self) {
@@ -680,7 +739,8 @@ impl TiltyardApp {
     /// document back to what is saved, the recovery file goes.
     fn autosave(&mut self) {
         let dirty = self.doc.is_dirty();
-        if dirty && self.last_autosave.elapsed() >= AUTOSAVE {
+        // Not while saving: the save removes the recovery file, and must have the last word.
+        if dirty && !self.saving && self.last_autosave.elapsed() >= AUTOSAVE {
             self.last_autosave = Instant::now();
             self.chores.write(
                 self.doc.recovery_path(),
@@ -716,6 +776,11 @@ impl TiltyardApp {
         }
         panels::show(ui, self);
         if self.close_confirmed {
+            // Let queued file chores (a recovery file to remove) finish before the process
+            // goes: a short wait, on the way out.
+            for reply in self.chores.finish(Duration::from_secs(2)) {
+                self.take_reply(reply);
+            }
             ctx.send_viewport_cmd(egui::ViewportCommand::Close);
         }
         // Every change, also mid-gesture, goes to the engine (which drops stale jobs).

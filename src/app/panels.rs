@@ -565,10 +565,7 @@ fn prompts(ui: &mut egui::Ui, app: &mut TiltyardApp) {
                     app.save(Some(then));
                 }
                 if ui.button("Discard changes").clicked() {
-                    // On close the edits go now; otherwise once the next scenario is there.
-                    if then == AfterSave::Close {
-                        app.forget_recovery();
-                    }
+                    app.discard(then);
                     proceed = true;
                 }
                 if ui.button("Cancel").clicked() {

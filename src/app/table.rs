@@ -81,7 +81,8 @@ pub fn conditions(ui: &mut Ui, app: &mut TiltyardApp, pal: &Palette) {
     edits_apply(app, edits);
 }
 
-/// A framed row, outlined by its check status and highlighted when selected.
+/// A framed row, outlined by its check status (and saying it, under the fields) and
+/// highlighted when selected.
 fn row_frame(
     ui: &mut Ui,
     app: &TiltyardApp,
@@ -89,7 +90,8 @@ fn row_frame(
     cref: CondRef,
     body: impl FnOnce(&mut Ui),
 ) {
-    let stroke_colour = match app.status_of(cref) {
+    let status = app.status_of(cref);
+    let stroke_colour = match status {
         Some(Severity::Clash) => pal.clash,
         Some(Severity::Strain) => pal.strain,
         None if app.selected == Some(cref) => ui.visuals().selection.bg_fill,
@@ -98,7 +100,15 @@ fn row_frame(
     let width = if app.selected == Some(cref) { 2.0 } else { 1.0 };
     egui::Frame::group(ui.style())
         .stroke(egui::Stroke::new(width, stroke_colour))
-        .show(ui, body);
+        .show(ui, |ui| {
+            body(ui);
+            let word = match status {
+                Some(Severity::Clash) => "clashes: see the checks",
+                Some(Severity::Strain) => "strained: see the checks",
+                None => return,
+            };
+            ui.label(RichText::new(word).small().color(stroke_colour));
+        });
 }
 
 fn gesture(r: &egui::Response, edits: &mut Vec<Edit>) {
