@@ -603,7 +603,10 @@ fn a_scenario_that_cannot_be_read_is_never_overwritten() {
     // The window learns of the save a frame or so after the file is there.
     while h.state().doc.untitled {
         h.step();
-        assert!(start.elapsed() < Duration::from_secs(10), "the save was not taken");
+        assert!(
+            start.elapsed() < Duration::from_secs(10),
+            "the save was not taken"
+        );
         std::thread::sleep(Duration::from_millis(10));
     }
     assert_eq!(h.state().doc.path, elsewhere);

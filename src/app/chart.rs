@@ -115,8 +115,6 @@ pub enum Drag {
 #[derive(Debug, Clone, Default)]
 pub struct ChartMemory {
     pub drag: Option<Drag>,
-    /// The pointer is over a handle.
-    pub over_handle: bool,
     /// The condition a right-click landed on.
     pub context: Option<CondRef>,
     /// The plot's last transform between values and screen positions.
@@ -575,13 +573,17 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
     let hovered = pointer
         .filter(|p| r.rect.contains(*p))
         .and_then(|p| handles.pick(p));
-    memory.over_handle = hovered.is_some();
-    let sideways = matches!(memory.drag, Some(Drag::End { .. }))
-        || (memory.drag.is_none() && matches!(hovered, Some(Pick::End(..))));
-    if sideways {
-        ui.ctx().set_cursor_icon(egui::CursorIcon::ResizeHorizontal);
-    } else if memory.over_handle || memory.drag.is_some() {
-        ui.ctx().set_cursor_icon(egui::CursorIcon::ResizeVertical);
+    // The cursor says what a drag would do.
+    let cursor = match (&memory.drag, &hovered) {
+        (Some(Drag::NewCorridor { .. }), _) => Some(egui::CursorIcon::Crosshair),
+        (Some(Drag::End { .. }), _) | (None, Some(Pick::End(..))) => {
+            Some(egui::CursorIcon::ResizeHorizontal)
+        }
+        (Some(_), _) | (None, Some(_)) => Some(egui::CursorIcon::ResizeVertical),
+        (None, None) => None,
+    };
+    if let Some(c) = cursor {
+        ui.ctx().set_cursor_icon(c);
     }
     let value_at = |p: Pos2| t.value_from_position(p);
 
