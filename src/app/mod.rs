@@ -415,8 +415,17 @@ impl TiltyardApp {
             let delete = !typing && i.key_pressed(Key::Delete);
             (redo, undo, save, delete)
         });
-        let plain =
-            |i: &egui::InputState, k: Key| !typing && i.modifiers.is_none() && i.key_pressed(k);
+        // Plain keys only when no widget has the keyboard (a focused number field takes the
+        // arrows itself).
+        let focused = ctx.memory(|m| m.focused().is_some());
+        // Presses of a key with no modifier this frame (several may come in one frame).
+        let plain = |i: &egui::InputState, k: Key| {
+            if typing || focused || !i.modifiers.is_none() {
+                0
+            } else {
+                i.num_presses(k) as i64
+            }
+        };
         let (up, down, left, right, toggle) = ctx.input(|i| {
             (
                 plain(i, Key::ArrowUp),
@@ -426,12 +435,12 @@ impl TiltyardApp {
                 plain(i, Key::G),
             )
         });
-        if toggle {
+        if toggle % 2 == 1 {
             self.snapping = !self.snapping;
         }
         if let Some(cref) = self.selected {
-            let steps = i32::from(up) - i32::from(down);
-            let periods = i64::from(right) - i64::from(left);
+            let steps = i32::try_from(up - down).unwrap_or(0);
+            let periods = right - left;
             if steps != 0 || periods != 0 {
                 self.nudge(cref, steps, periods);
             }
