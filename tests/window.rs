@@ -289,8 +289,8 @@ fn worker_survives_a_panic() {
     }
 }
 
-/// The model settings are in the window; changing the lags re-estimates in the background
-/// (the model line follows), while an edit of a condition does not re-estimate.
+/// The model settings are in the window; changing the lags or the estimation window
+/// re-estimates in the background (the model line follows).
 #[test]
 fn model_settings_re_estimate_in_the_background() {
     let dir = tempfile::tempdir().unwrap();
@@ -317,6 +317,20 @@ fn model_settings_re_estimate_in_the_background() {
         h.state().model_line.contains("VAR(3)"),
         "{}",
         h.state().model_line
+    );
+    // The estimation window, typed in the panel, applies on Enter: 2000Q1–2025Q4 is 104
+    // quarters, 101 usable with three lags.
+    h.get_by_label("estimation window from").click();
+    h.run_steps(2);
+    h.get_by_label("estimation window from").type_text("2000Q1");
+    h.run_steps(2);
+    assert!(h.state().doc.file == *h.state().sent().unwrap());
+    h.key_press(egui::Key::Enter);
+    settle(&mut h);
+    let line = h.state().model_line.clone();
+    assert!(
+        line.contains("2000Q1–2025Q4") && line.contains("T = 101"),
+        "{line}"
     );
 }
 

@@ -168,7 +168,9 @@ fn window_row(ui: &mut Ui, window: &mut Option<Window>) {
         for (name, end) in [("from", &mut w.from), ("to", &mut w.to)] {
             let hint = if name == "from" { "first" } else { "last" };
             let current = end.clone().unwrap_or_default();
-            if let Some(text) = draft_field(ui, ("estimation window", name), &current, name, hint) {
+            let label = format!("estimation window {name}");
+            if let Some(text) = draft_field(ui, ("estimation window", name), &current, &label, hint)
+            {
                 *end = (!text.is_empty()).then_some(text);
                 commit = true;
             }

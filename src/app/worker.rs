@@ -313,11 +313,15 @@ fn estimate(setup: &Setup, key: String, cancel: &AtomicBool) -> Result<ModelCach
             setup.last_period()
         ),
         (Some(fit), _) => format!(
-            "{} series · VAR({p}){} · T = {} · {} draws",
+            "{} series · VAR({p}){} · {}T = {} · {} draws",
             setup.n(),
             fit.lambda
                 .map(|l| format!(", Minnesota prior, tightness {l:.3}"))
                 .unwrap_or_else(|| ", flat prior".into()),
+            match setup.estimation_window() {
+                Ok(Some((a, b))) => format!("{a}–{b}, "),
+                _ => String::new(),
+            },
             fit.observations,
             file.draws
         ),

@@ -170,6 +170,20 @@ impl Setup {
         }
     }
 
+    /// First and last period of the estimation window (lags included), for estimated models.
+    pub fn estimation_window(&self) -> Result<Option<(Period, Period)>, ScenarioError> {
+        let window = match &self.file.model {
+            ModelSpec::Minnesota(m) => m.window.as_ref(),
+            ModelSpec::Flat(f) => f.window.as_ref(),
+            ModelSpec::Fixed(_) => return Ok(None),
+        };
+        let (first, last) = self.window_rows(window)?;
+        Ok(Some((
+            self.dataset.periods[first],
+            self.dataset.periods[last],
+        )))
+    }
+
     /// Rows of the estimation window, checked against the lags.
     fn regression(&self, p: usize, window: Option<&Window>) -> Result<Regression, ScenarioError> {
         if p == 0 {
