@@ -110,12 +110,18 @@ fn top_bar(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
             app.doc.redo();
         }
         ui.separator();
-        ui.label(RichText::new(&app.model_line).color(pal.muted));
-        ui.separator();
-        let (text, colour) = engine_text(&app.state, pal);
-        ui.label(RichText::new(text).color(colour).strong());
-        ui.separator();
         theme_switch(ui);
+    });
+    // The engine's state in a slot of its own width, so that its changing text never moves
+    // the rest of the window (the charts must not shift under a drag).
+    ui.horizontal(|ui| {
+        let (text, colour) = engine_text(&app.state, pal);
+        ui.add_sized(
+            [260.0, ui.spacing().interact_size.y],
+            egui::Label::new(RichText::new(text).color(colour).strong()).truncate(),
+        );
+        ui.separator();
+        ui.add(egui::Label::new(RichText::new(&app.model_line).color(pal.muted)).truncate());
     });
     if !app.doc.file.narrative.is_empty() {
         ui.label(RichText::new(&app.doc.file.narrative).italics().small());
@@ -312,9 +318,29 @@ fn status(app: &TiltyardApp, subject: Subject, name: &str) -> Option<Severity> {
 }
 
 fn chart_grid(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
+    // One row, whatever it says (a line appearing above the charts would move them under a
+    // drag): the view switch, then why the fans are greyed, or how to draw on them.
     ui.horizontal(|ui| {
         ui.selectable_value(&mut app.view, Subject::Series, "Series paths");
         ui.selectable_value(&mut app.view, Subject::Shock, "Structural shocks");
+        if app.stale() {
+            let what = if app.results.as_ref().is_some_and(|r| r.without_conditions) {
+                "the greyed fans are the model's forecast without any conditions"
+            } else {
+                "the greyed fans are the last that could be drawn"
+            };
+            let why = match app.state {
+                EngineState::Failed => "The engine stopped on an error",
+                _ => "The conditions clash",
+            };
+            ui.add(
+                egui::Label::new(
+                    RichText::new(format!("{why}: {what}. See the checks.")).color(pal.clash),
+                )
+                .truncate(),
+            );
+            return;
+        }
         let hint = match app.view {
             Subject::Series => {
                 "drag across future periods: corridor · Ctrl+click: pin · arrows: nudge the selected"
@@ -331,18 +357,6 @@ fn chart_grid(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
         });
         return;
     };
-    if app.stale() {
-        let what = if results.without_conditions {
-            "the greyed fans are the model's forecast without any conditions"
-        } else {
-            "the greyed fans are the last that could be drawn"
-        };
-        let why = match app.state {
-            EngineState::Failed => "The engine stopped on an error",
-            _ => "The conditions clash",
-        };
-        ui.colored_label(pal.clash, format!("{why}: {what}. See the checks."));
-    }
     let subject = app.view;
     let views = match subject {
         Subject::Series => &results.series,
