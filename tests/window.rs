@@ -332,6 +332,15 @@ fn model_settings_re_estimate_in_the_background() {
         line.contains("2000Q1–2025Q4") && line.contains("T = 101"),
         "{line}"
     );
+    // Output enters the model as it is instead of 100·log: re-estimated, fans drawn.
+    h.get_by_label("transform of output").click();
+    h.run_steps(2);
+    h.get_by_label("as it is").click();
+    settle(&mut h);
+    let sent = h.state().sent().unwrap().clone();
+    assert_eq!(sent.series[0].transform, tiltyard::dataset::Transform::AsIs);
+    assert!(h.state().engine_error.is_none());
+    assert_eq!(h.state().results.as_ref().unwrap().draws, 100);
 }
 
 /// A corridor's upper edge moves at every period; Ctrl on its lower edge moves one period

@@ -1,5 +1,6 @@
 //! The model settings: lags, prior tightness (chosen by marginal likelihood or set), the
-//! estimation window, draws, seed, horizon and the identification ordering. Any change here
+//! estimation window, draws, seed, horizon, how each series enters the model (as it is or
+//! 100·log) and the identification ordering. Any change here
 //! makes the worker re-estimate in the background (the top bar says so); edits of conditions
 //! never do.
 
@@ -8,6 +9,7 @@ use egui::{RichText, Ui};
 use super::TiltyardApp;
 use super::palette::Palette;
 use super::table::draft_field;
+use crate::dataset::Transform;
 use crate::model::{Tightness, Window};
 use crate::scenario::ModelSpec;
 
@@ -118,6 +120,30 @@ fn body(ui: &mut Ui, app: &mut TiltyardApp, pal: &Palette) {
             track(&r, &mut gesture);
             ui.end_row();
         });
+    ui.label(
+        RichText::new("How each series enters the model")
+            .small()
+            .color(pal.muted),
+    );
+    egui::Grid::new("transforms").num_columns(2).show(ui, |ui| {
+        for series in &mut file.series {
+            ui.label(&series.name);
+            let shown = |t: Transform| match t {
+                Transform::AsIs => "as it is",
+                Transform::Log100 => "100·log",
+            };
+            egui::ComboBox::from_id_salt(("transform", series.name.as_str()))
+                .selected_text(shown(series.transform))
+                .show_ui(ui, |ui| {
+                    for t in [Transform::AsIs, Transform::Log100] {
+                        ui.selectable_value(&mut series.transform, t, shown(t));
+                    }
+                })
+                .response
+                .accessible_name(format!("transform of {}", series.name));
+            ui.end_row();
+        }
+    });
     ui.label(
         RichText::new(
             "Identification order (a shock moves the series below it on impact, not those above)",
