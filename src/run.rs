@@ -9,7 +9,7 @@ use crate::checks::{CheckReport, Finding, Severity, check_conditions};
 use crate::forecast::{
     ForecastError, ParamSource, PathSet, Plan, Sampling, Theta, build_thetas,
     engine::ACCEPTANCE_PROPOSALS,
-    normalise,
+    path_weights,
     random::{Purpose, stream},
     sample_paths,
 };
@@ -218,15 +218,9 @@ pub fn run(setup: &mut Setup, options: &RunOptions) -> Result<RunOutcome, RunErr
     };
     let paths = sample_paths(&set, 0..set.thetas.len(), &conditions, how, &cancel)?;
     // Reweighting: each θ's weight shared by its paths; the unconditional fans keep p(θ | data).
-    let (weights, effective_draws) = if file.reweight {
-        let (w, ess) = normalise(&paths.log_weights);
-        let per_path: Vec<f64> = w
-            .iter()
-            .flat_map(|&wi| std::iter::repeat_n(wi / paths_per_theta as f64, paths_per_theta))
-            .collect();
-        (Some(per_path), Some(ess))
-    } else {
-        (None, None)
+    let (weights, effective_draws) = match path_weights(&paths.log_weights, paths_per_theta) {
+        Some((w, ess)) if file.reweight => (Some(w), Some(ess)),
+        _ => (None, None),
     };
     let mut rows = fans(
         setup,

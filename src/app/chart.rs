@@ -198,6 +198,17 @@ fn steps_125(input: egui_plot::GridInput) -> [f64; 3] {
     [s, next(s), next(next(s))]
 }
 
+/// The box drawn over periods `x0…x1` between values `y0` and `y1` (a little narrower than
+/// the periods, so that neighbouring boxes stay apart).
+fn period_box(x0: f64, x1: f64, y0: f64, y1: f64) -> Vec<[f64; 2]> {
+    vec![
+        [x0 - 0.45, y0],
+        [x1 + 0.45, y0],
+        [x1 + 0.45, y1],
+        [x0 - 0.45, y1],
+    ]
+}
+
 /// Horizon of a period label (`None` if it does not parse).
 pub fn horizon(results: &Results, label: &str) -> Option<i64> {
     crate::dataset::Period::parse(label, results.last.freq)
@@ -472,18 +483,10 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
                 let x = (*first + k as i64) as f64;
                 let (yl, yu) = (l.unwrap_or(open_lo), u.unwrap_or(open_hi));
                 pui.polygon(
-                    Polygon::new(
-                        "corridor",
-                        vec![
-                            [x - 0.45, yl],
-                            [x + 0.45, yl],
-                            [x + 0.45, yu],
-                            [x - 0.45, yu],
-                        ],
-                    )
-                    .fill_color(pal.corridor.gamma_multiply(0.12))
-                    .stroke(Stroke::new(if selected { 2.5 } else { 1.2 }, edge))
-                    .allow_hover(false),
+                    Polygon::new("corridor", period_box(x, x, yl, yu))
+                        .fill_color(pal.corridor.gamma_multiply(0.12))
+                        .stroke(Stroke::new(if selected { 2.5 } else { 1.2 }, edge))
+                        .allow_hover(false),
                 );
                 let x0 = t.position_from_point_x(x - 0.5);
                 let x1 = t.position_from_point_x(x + 0.5);
@@ -543,18 +546,10 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
                 free_or_snap(start.y.max(now.y)),
             );
             pui.polygon(
-                Polygon::new(
-                    "new corridor",
-                    vec![
-                        [x0 - 0.45, y0],
-                        [x1 + 0.45, y0],
-                        [x1 + 0.45, y1],
-                        [x0 - 0.45, y1],
-                    ],
-                )
-                .fill_color(pal.corridor.gamma_multiply(0.2))
-                .stroke(Stroke::new(1.5, pal.corridor))
-                .allow_hover(false),
+                Polygon::new("new corridor", period_box(x0, x1, y0, y1))
+                    .fill_color(pal.corridor.gamma_multiply(0.2))
+                    .stroke(Stroke::new(1.5, pal.corridor))
+                    .allow_hover(false),
             );
         }
         (handles, t)

@@ -137,10 +137,15 @@ impl TiltyardApp {
         let (jobs, job_rx) = channel::<Job>();
         let (msg_tx, messages) = channel::<Message>();
         let w = wake.clone();
-        std::thread::Builder::new()
+        // Without its thread the engine cannot run; the window still opens and says so (a job
+        // sent then fails, and the top bar asks to restart).
+        let spawned = std::thread::Builder::new()
             .name("tiltyard-engine".into())
-            .spawn(move || worker::run(job_rx, msg_tx, move || w()))
-            .expect("the engine thread starts");
+            .spawn(move || worker::run(job_rx, msg_tx, move || w()));
+        let notice = match spawned {
+            Ok(_) => notice,
+            Err(e) => Some(format!("the engine thread could not start: {e}")),
+        };
         let prompt = files::newer_recovery(path).map(|r| Prompt::Recover { edits: Box::new(r) });
         TiltyardApp {
             doc,
@@ -332,40 +337,30 @@ impl TiltyardApp {
                 period,
                 units,
                 value,
-            } => {
-                self.doc.edit(|f| {
-                    f.pins.push(PinSpec {
-                        series,
-                        shock,
-                        period,
-                        units,
-                        value,
-                        active: true,
-                    })
-                });
-                self.selected = Some(CondRef::Pin(self.doc.file.pins.len() - 1));
-            }
+            } => self.add_pin(PinSpec {
+                series,
+                shock,
+                period,
+                units,
+                value,
+                active: true,
+            }),
             ChartAction::AddCorridor {
                 from,
                 to,
                 units,
                 lower,
                 upper,
-            } => {
-                self.doc.edit(|f| {
-                    f.corridors.push(CorridorSpec {
-                        series,
-                        shock,
-                        from,
-                        to,
-                        units,
-                        lower: Some(Bound::Same(lower)),
-                        upper: Some(Bound::Same(upper)),
-                        active: true,
-                    })
-                });
-                self.selected = Some(CondRef::Corridor(self.doc.file.corridors.len() - 1));
-            }
+            } => self.add_corridor(CorridorSpec {
+                series,
+                shock,
+                from,
+                to,
+                units,
+                lower: Some(Bound::Same(lower)),
+                upper: Some(Bound::Same(upper)),
+                active: true,
+            }),
             ChartAction::Select(s) => self.selected = s,
             ChartAction::Remove(cref) => self.remove(cref),
             ChartAction::Enlarge => {
@@ -379,6 +374,18 @@ impl TiltyardApp {
                 self.enlarged = if self.enlarged == i { None } else { i };
             }
         }
+    }
+
+    /// Add a pin (one undo step) and select it.
+    pub fn add_pin(&mut self, pin: PinSpec) {
+        self.doc.edit(|f| f.pins.push(pin));
+        self.selected = Some(CondRef::Pin(self.doc.file.pins.len() - 1));
+    }
+
+    /// Add a corridor (one undo step) and select it.
+    pub fn add_corridor(&mut self, corridor: CorridorSpec) {
+        self.doc.edit(|f| f.corridors.push(corridor));
+        self.selected = Some(CondRef::Corridor(self.doc.file.corridors.len() - 1));
     }
 
     /// Remove a condition (one undo step).

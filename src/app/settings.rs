@@ -23,101 +23,82 @@ fn body(ui: &mut Ui, app: &mut TiltyardApp, pal: &Palette) {
     let mut file = app.doc.file.clone();
     // (began, ended) of a field's gesture this frame.
     let mut gesture = (false, false);
-    let track = |r: &egui::Response, g: &mut (bool, bool)| {
+    // A number applied on Enter or when dragged, in a labelled row.
+    let number = |ui: &mut Ui, name: &str, value: egui::DragValue, g: &mut (bool, bool)| {
+        let r = ui
+            .add(value.update_while_editing(false))
+            .accessible_name(name);
         g.0 |= r.drag_started() || r.gained_focus();
         g.1 |= r.drag_stopped() || r.lost_focus();
     };
     egui::Grid::new("model settings")
         .num_columns(2)
         .show(ui, |ui| {
-            match &mut file.model {
-                ModelSpec::Minnesota(m) => {
-                    ui.label("prior");
-                    ui.label("Minnesota");
+            // (prior, lags, tightness if the prior has one, estimation window)
+            let estimated = match &mut file.model {
+                ModelSpec::Minnesota(m) => Some((
+                    "Minnesota",
+                    &mut m.lags,
+                    Some(&mut m.tightness),
+                    &mut m.window,
+                )),
+                ModelSpec::Flat(f) => Some(("flat", &mut f.lags, None, &mut f.window)),
+                ModelSpec::Fixed(f) => {
+                    ui.label("model");
+                    ui.label(format!("fixed coefficients, {} lags", f.lags.len()));
                     ui.end_row();
-                    ui.label("lags");
-                    let r = ui
-                        .add(
-                            egui::DragValue::new(&mut m.lags)
-                                .range(1..=12)
-                                .update_while_editing(false),
-                        )
-                        .accessible_name("lags");
-                    track(&r, &mut gesture);
-                    ui.end_row();
+                    None
+                }
+            };
+            if let Some((prior, lags, tightness, window)) = estimated {
+                ui.label("prior");
+                ui.label(prior);
+                ui.end_row();
+                ui.label("lags");
+                number(
+                    ui,
+                    "lags",
+                    egui::DragValue::new(lags).range(1..=12),
+                    &mut gesture,
+                );
+                ui.end_row();
+                if let Some(tightness) = tightness {
                     ui.label("tightness");
                     ui.horizontal(|ui| {
-                        let mut auto = m.tightness == Tightness::Auto;
+                        let mut auto = *tightness == Tightness::Auto;
                         if ui.checkbox(&mut auto, "by marginal likelihood").changed() {
-                            m.tightness = if auto {
+                            *tightness = if auto {
                                 Tightness::Auto
                             } else {
                                 Tightness::Fixed(0.2)
                             };
                         }
-                        if let Tightness::Fixed(l) = &mut m.tightness {
-                            let r = ui
-                                .add(
-                                    egui::DragValue::new(l)
-                                        .range(0.001..=5.0)
-                                        .speed(0.005)
-                                        .update_while_editing(false),
-                                )
-                                .accessible_name("tightness");
-                            track(&r, &mut gesture);
+                        if let Tightness::Fixed(l) = tightness {
+                            let value = egui::DragValue::new(l).range(0.001..=5.0).speed(0.005);
+                            number(ui, "tightness", value, &mut gesture);
                         }
                     });
                     ui.end_row();
-                    window_row(ui, &mut m.window);
                 }
-                ModelSpec::Flat(f) => {
-                    ui.label("prior");
-                    ui.label("flat");
-                    ui.end_row();
-                    ui.label("lags");
-                    let r = ui
-                        .add(
-                            egui::DragValue::new(&mut f.lags)
-                                .range(1..=12)
-                                .update_while_editing(false),
-                        )
-                        .accessible_name("lags");
-                    track(&r, &mut gesture);
-                    ui.end_row();
-                    window_row(ui, &mut f.window);
-                }
-                ModelSpec::Fixed(f) => {
-                    ui.label("model");
-                    ui.label(format!("fixed coefficients, {} lags", f.lags.len()));
-                    ui.end_row();
-                }
+                window_row(ui, window);
             }
             ui.label("horizon");
-            let r = ui
-                .add(
-                    egui::DragValue::new(&mut file.horizon)
-                        .range(1..=120)
-                        .update_while_editing(false),
-                )
-                .accessible_name("horizon");
-            track(&r, &mut gesture);
+            let value = egui::DragValue::new(&mut file.horizon).range(1..=120);
+            number(ui, "horizon", value, &mut gesture);
             ui.end_row();
             ui.label("draws");
-            let r = ui
-                .add(
-                    egui::DragValue::new(&mut file.draws)
-                        .range(10..=20_000)
-                        .speed(10)
-                        .update_while_editing(false),
-                )
-                .accessible_name("draws");
-            track(&r, &mut gesture);
+            let value = egui::DragValue::new(&mut file.draws)
+                .range(10..=20_000)
+                .speed(10);
+            number(ui, "draws", value, &mut gesture);
             ui.end_row();
             ui.label("seed");
-            let r = ui
-                .add(egui::DragValue::new(&mut file.seed).update_while_editing(false))
-                .accessible_name("seed");
-            track(&r, &mut gesture);
+            number(
+                ui,
+                "seed",
+                egui::DragValue::new(&mut file.seed),
+                &mut gesture,
+            );
             ui.end_row();
         });
     ui.label(

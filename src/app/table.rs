@@ -242,6 +242,44 @@ fn target_box(
     }
 }
 
+/// The start of a condition's row: its on/off switch, its kind (click: select it) and what it
+/// is about (a series or a shock).
+struct Head<'a> {
+    cref: CondRef,
+    names: &'a [String],
+}
+
+impl Head<'_> {
+    /// Returns whether a field changed.
+    fn show(
+        &self,
+        ui: &mut Ui,
+        active: &mut bool,
+        series: &mut Option<String>,
+        shock: &mut Option<String>,
+        edits: &mut Vec<Edit>,
+    ) -> bool {
+        let (kind, k) = match self.cref {
+            CondRef::Pin(k) => ("pin", k),
+            CondRef::Corridor(k) => ("corridor", k),
+        };
+        let use_it = format!("use this {kind}");
+        let mut changed = ui
+            .checkbox(active, "")
+            .on_hover_text(&use_it)
+            .accessible_name(&use_it)
+            .changed();
+        if ui
+            .selectable_label(false, RichText::new(kind).strong())
+            .clicked()
+        {
+            edits.push(Edit::Select(self.cref));
+        }
+        changed |= target_box(ui, (kind, k), series, shock, self.names);
+        changed
+    }
+}
+
 fn pin_row(
     ui: &mut Ui,
     k: usize,
@@ -253,18 +291,11 @@ fn pin_row(
     let mut p = pin.clone();
     let mut changed = false;
     ui.horizontal_wrapped(|ui| {
-        changed |= ui
-            .checkbox(&mut p.active, "")
-            .on_hover_text("use this pin")
-            .accessible_name("use this pin")
-            .changed();
-        if ui
-            .selectable_label(false, RichText::new("pin").strong())
-            .clicked()
-        {
-            edits.push(Edit::Select(CondRef::Pin(k)));
-        }
-        changed |= target_box(ui, ("pin target", k), &mut p.series, &mut p.shock, names);
+        let head = Head {
+            cref: CondRef::Pin(k),
+            names,
+        };
+        changed |= head.show(ui, &mut p.active, &mut p.series, &mut p.shock, edits);
         if let Some(text) = draft_field(ui, ("pin period", k), &p.period, "period", "") {
             p.period = text;
             changed = true;
@@ -301,24 +332,11 @@ fn corridor_row(
     let mut s = c.clone();
     let mut changed = false;
     ui.horizontal_wrapped(|ui| {
-        changed |= ui
-            .checkbox(&mut s.active, "")
-            .on_hover_text("use this corridor")
-            .accessible_name("use this corridor")
-            .changed();
-        if ui
-            .selectable_label(false, RichText::new("corridor").strong())
-            .clicked()
-        {
-            edits.push(Edit::Select(CondRef::Corridor(k)));
-        }
-        changed |= target_box(
-            ui,
-            ("corridor target", k),
-            &mut s.series,
-            &mut s.shock,
+        let head = Head {
+            cref: CondRef::Corridor(k),
             names,
-        );
+        };
+        changed |= head.show(ui, &mut s.active, &mut s.series, &mut s.shock, edits);
         for (name, period) in [("from", &mut s.from), ("to", &mut s.to)] {
             if let Some(text) = draft_field(ui, (name, k), period, name, "") {
                 *period = text;
@@ -460,15 +478,13 @@ fn apply_one(app: &mut TiltyardApp, e: Edit) {
                 .and_then(|r| r.series.first())
                 .and_then(|s| s.conditional.first())
                 .map_or(0.0, |f| f.q[3]);
-            app.doc
-                .edit(|f| f.pins.push(new_pin(f, first.clone(), median)));
-            app.selected = Some(CondRef::Pin(app.doc.file.pins.len() - 1));
+            let pin = new_pin(&app.doc.file, first, median);
+            app.add_pin(pin);
         }
         Edit::AddCorridor => {
             let first = first_future(app);
-            app.doc
-                .edit(|f| f.corridors.push(new_corridor(f, first.clone())));
-            app.selected = Some(CondRef::Corridor(app.doc.file.corridors.len() - 1));
+            let corridor = new_corridor(&app.doc.file, first);
+            app.add_corridor(corridor);
         }
     }
 }

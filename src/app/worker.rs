@@ -518,16 +518,12 @@ fn results(
 ) -> Results {
     // Reweighting: each θ's weight shared by its paths (the preview has one θ: no weights);
     // the unconditional fans keep p(θ | data).
-    let (weights, effective_draws) = if paths.log_weights.len() > 1 {
-        let (w, ess) = crate::forecast::normalise(&paths.log_weights);
-        let per = paths.conditional.len() / w.len();
-        let per_path: Vec<f64> = w
-            .iter()
-            .flat_map(|&wi| std::iter::repeat_n(wi / per as f64, per))
-            .collect();
-        (Some(per_path), Some(ess))
-    } else {
-        (None, None)
+    let reweighted = (paths.log_weights.len() > 1)
+        .then(|| crate::forecast::path_weights(&paths.log_weights, setup.file.paths_per_draw))
+        .flatten();
+    let (weights, effective_draws) = match reweighted {
+        Some((w, ess)) => (Some(w), Some(ess)),
+        None => (None, None),
     };
     let cond = fans(
         setup,

@@ -211,6 +211,21 @@ pub fn normalise(log_weights: &[f64]) -> (Vec<f64>, f64) {
     (w.iter().map(|x| x / sum).collect(), sum * sum / sq)
 }
 
+/// With reweighting: each path's weight (its θ's normalised weight shared by the θ's
+/// `paths_per_theta` paths) and the effective number of θ draws; `None` without weights.
+pub fn path_weights(log_weights: &[f64], paths_per_theta: usize) -> Option<(Vec<f64>, f64)> {
+    if log_weights.is_empty() {
+        return None;
+    }
+    let (w, ess) = normalise(log_weights);
+    let per = paths_per_theta.max(1);
+    let per_path = w
+        .iter()
+        .flat_map(|&wi| std::iter::repeat_n(wi / per as f64, per))
+        .collect();
+    Some((per_path, ess))
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -22,7 +22,9 @@ pub mod rows;
 pub mod theta;
 
 pub use conditions::{Bounded, Conditions, Corridor, Pin, Target};
-pub use engine::{ParamSource, PathSet, Sampling, ThetaSet, build_thetas, normalise, sample_paths};
+pub use engine::{
+    ParamSource, PathSet, Sampling, ThetaSet, build_thetas, normalise, path_weights, sample_paths,
+};
 pub use plan::Plan;
 pub use theta::Theta;
 
