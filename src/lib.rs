@@ -4,7 +4,6 @@
 
 #[cfg(feature = "gui")]
 pub mod app;
-pub mod banded;
 pub mod checks;
 pub mod dataset;
 pub mod forecast;

@@ -7,7 +7,8 @@ use std::time::{Duration, Instant};
 
 use crate::checks::{CheckReport, Finding, Severity, check_conditions};
 use crate::forecast::{
-    ForecastError, ParamSource, PathSet, Plan, Sampling, Theta, build_thetas,
+    DrawSpec, ForecastError, ParamSource, PathSet, Plan, RootSummary, Sampling, Theta,
+    build_thetas,
     engine::ACCEPTANCE_PROPOSALS,
     path_weights,
     random::{Purpose, stream},
@@ -51,13 +52,23 @@ pub struct RunOutcome {
     pub fans: Vec<FanRow>,
     pub fit: Option<FitSummary>,
     pub posterior_draws: usize,
-    pub explosive: usize,
-    pub median_root: f64,
+    /// Largest companion roots: the stationarity filter's count, or a measured subsample.
+    pub roots: RootSummary,
     pub elapsed: Duration,
     /// The checks run before sampling.
     pub checks: CheckReport,
     /// With reweighting: the effective sample size of the weighted posterior draws.
     pub effective_draws: Option<f64>,
+}
+
+/// The posterior draws a scenario asks for (`count` of them).
+fn draw_spec(setup: &Setup, count: usize) -> DrawSpec {
+    DrawSpec {
+        count,
+        seed: setup.file.seed,
+        below: setup.file.largest_root.bound(),
+        min_kept_share: setup.file.checks.min_kept_share,
+    }
 }
 
 /// The parameters the checks use: the posterior mean, or the fixed coefficients.
@@ -121,8 +132,7 @@ pub fn check(setup: &Setup) -> Result<CheckReport, RunError> {
             &setup.ordering,
             &setup.tail()?,
             setup.file.horizon,
-            DRAWS_RECHECKED,
-            setup.file.seed,
+            draw_spec(setup, DRAWS_RECHECKED),
             &cancel,
         )?;
         let settings = &setup.file.checks;
@@ -206,8 +216,7 @@ pub fn run(setup: &mut Setup, options: &RunOptions) -> Result<RunOutcome, RunErr
         &setup.ordering,
         &tail,
         file.horizon,
-        thetas_wanted,
-        file.seed,
+        draw_spec(setup, thetas_wanted),
         &cancel,
     )?;
     let how = Sampling {
@@ -216,7 +225,8 @@ pub fn run(setup: &mut Setup, options: &RunOptions) -> Result<RunOutcome, RunErr
         reweight: file.reweight,
         min_acceptance: file.checks.min_acceptance,
     };
-    let paths = sample_paths(&set, 0..set.thetas.len(), &conditions, how, &cancel)?;
+    let paths = sample_paths(&set, 0..set.thetas.len(), &conditions, how, &cancel)?
+        .within(file.checks.max_failed_share)?;
     // Reweighting: each θ's weight shared by its paths; the unconditional fans keep p(θ | data).
     let (weights, effective_draws) = match path_weights(&paths.log_weights, paths_per_theta) {
         Some((w, ess)) if file.reweight => (Some(w), Some(ess)),
@@ -237,8 +247,7 @@ pub fn run(setup: &mut Setup, options: &RunOptions) -> Result<RunOutcome, RunErr
         } else {
             set.thetas.len()
         },
-        explosive: set.explosive,
-        median_root: set.median_root,
+        roots: set.roots,
         elapsed: start.elapsed(),
         paths,
         checks,
@@ -332,16 +341,58 @@ pub fn summary(setup: &Setup, out: &RunOutcome) -> String {
             if low { " (LOW: the fans rest on few draws)" } else { "" }
         ));
     }
-    if out.posterior_draws > 0 {
-        let share = 100.0 * out.explosive as f64 / out.posterior_draws as f64;
+    if let Some(first) = out.paths.failures.first() {
+        let unit = if out.paths.fixed {
+            "paths"
+        } else {
+            "posterior draws"
+        };
         s.push(format!(
-            "           explosive posterior draws (largest root modulus > 1): {} of {} ({share:.1}%), kept; median largest root {:.4}",
-            out.explosive, out.posterior_draws, out.median_root
+            "           set aside: {} of {} {unit} ({:.1}%) could not be conditioned; the first ({} {}): {}",
+            out.paths.failures.len(),
+            out.paths.attempted,
+            100.0 * out.paths.failed_share(),
+            if out.paths.fixed { "path" } else { "draw" },
+            first.index,
+            first.error
         ));
+    }
+    if out.posterior_draws > 0 {
+        s.push(roots_line(&out.roots));
     }
     s.push(check_text(&out.checks));
     s.push(format!("time       {:.2} s", out.elapsed.as_secs_f64()));
     s.join("\n")
+}
+
+/// The largest companion roots in one line: what the stationarity filter kept, or the share
+/// of explosive draws in the measured subsample.
+fn roots_line(roots: &RootSummary) -> String {
+    let median = roots.median();
+    match roots.below {
+        Some(bound) => format!(
+            "           largest root below {bound}: kept {} of {} posterior draws tried ({:.1}%); median largest root of those tried {median:.4}",
+            roots.kept,
+            roots.tried,
+            100.0 * roots.kept as f64 / roots.tried.max(1) as f64
+        ),
+        None => {
+            let (share, se) = roots.explosive_share();
+            let of = match se {
+                Some(se) => format!(
+                    "{:.1}% ± {:.1}% (measured on {} of {} draws)",
+                    100.0 * share,
+                    100.0 * se,
+                    roots.measured.len(),
+                    roots.kept
+                ),
+                None => format!("{:.1}% of {} draws", 100.0 * share, roots.kept),
+            };
+            format!(
+                "           explosive posterior draws (largest root modulus > 1): {of}, kept; median largest root {median:.4}"
+            )
+        }
+    }
 }
 
 fn model_line(setup: &Setup, out: &RunOutcome) -> String {

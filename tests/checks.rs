@@ -451,16 +451,17 @@ fn plausibility_matches_numpy_moments() {
         };
         let theta = Theta::new(params, &setup.ordering, &setup.tail().unwrap(), 8).unwrap();
         let mean = vector(&case["mean"]);
-        let eps = DVector::from_vec(theta.shocks_from_path(mean.as_slice()));
+        let mut paths = vec![mean.as_slice().to_vec()];
         let big_n = mean.len();
-        let mut minv = DMatrix::zeros(big_n, big_n);
         let mu = DVector::from_column_slice(&theta.mean);
         for k in 0..big_n {
             let mut e = DVector::zeros(big_n);
             e[k] = 1.0;
-            let y = &mu + e;
-            minv.set_column(k, &DVector::from_vec(theta.shocks_from_path(y.as_slice())));
+            paths.push((&mu + e).as_slice().to_vec());
         }
+        let shocks = theta.shocks_from_paths(&paths).unwrap();
+        let eps = DVector::from_vec(shocks[0].clone());
+        let minv = DMatrix::from_fn(big_n, big_n, |i, k| shocks[k + 1][i]);
         let cov = &minv * matrix(&case["cov"]) * minv.transpose();
         let shape: f64 = SymmetricEigen::new((&cov + cov.transpose()) * 0.5)
             .eigenvalues

@@ -162,7 +162,7 @@ fn contradictory_pins_are_named() {
     );
     let mut rng = <rand_chacha::ChaCha8Rng as rand::SeedableRng>::seed_from_u64(1);
     let (y, _) = plan.sample(&theta, &mut rng).unwrap();
-    assert!(plan.pin_error(&y) < 1e-9);
+    assert!(plan.pin_error(&y) < 1e-9, "{}", plan.pin_error(&y));
 }
 
 /// A cancelled run stops with `Cancelled`.
@@ -178,8 +178,12 @@ fn cancelled_sampling_stops() {
         &setup.ordering,
         &setup.tail().unwrap(),
         6,
-        8,
-        1,
+        tiltyard::forecast::DrawSpec {
+            count: 8,
+            seed: 1,
+            below: None,
+            min_kept_share: 0.05,
+        },
         &cancel,
     )
     .unwrap_err();

@@ -193,12 +193,7 @@ fn compare(name: &str, engine: &[DVector<f64>], dense: &[DVector<f64>]) {
 }
 
 fn engine_paths(setup: &Setup, theta: Theta) -> Vec<DVector<f64>> {
-    let set = ThetaSet {
-        thetas: vec![theta],
-        fixed: true,
-        explosive: 0,
-        median_root: f64::NAN,
-    };
+    let set = ThetaSet::single(theta);
     let how = Sampling {
         paths_per_theta: PATHS,
         seed: 5,
@@ -361,8 +356,9 @@ fn dependent_corridors_with_drivers_match_the_dense_cross_check() {
 }
 
 /// Each posterior draw's corridor sampler is checked before its paths are drawn: a draw that
-/// would accept too rarely stops the run at once, naming the draw and the corridor (here the
-/// limit is raised so that an ordinary corridor trips it).
+/// would accept too rarely is set aside at once, named with its corridor, and the run fails
+/// when more draws are set aside than the scenario allows (here the limit is raised so that
+/// an ordinary corridor trips it in every draw; even a share of 1 fails when no draw is left).
 #[test]
 fn hopeless_draws_fail_fast_and_are_named() {
     let extra = r#"corridors: [(series: "tbilrate", from: "2009Q4", to: "2010Q2", lower: 0.0, upper: 1.0)],
@@ -377,8 +373,12 @@ fn hopeless_draws_fail_fast_and_are_named() {
         &setup.ordering,
         &setup.tail().unwrap(),
         6,
-        3,
-        1,
+        tiltyard::forecast::DrawSpec {
+            count: 3,
+            seed: 1,
+            below: None,
+            min_kept_share: 0.05,
+        },
         &cancel,
     )
     .unwrap();
@@ -388,14 +388,31 @@ fn hopeless_draws_fail_fast_and_are_named() {
         reweight: false,
         min_acceptance: 0.99999,
     };
-    let err = sample_paths(&set, 0..3, &setup.conditions().unwrap(), how, &cancel).unwrap_err();
+    let paths = sample_paths(&set, 0..3, &setup.conditions().unwrap(), how, &cancel).unwrap();
+    assert_eq!((paths.failures.len(), paths.attempted), (3, 3));
+    assert!(paths.conditional.is_empty());
+    let first = &paths.failures[0];
     let tiltyard::forecast::ForecastError::TooImprobable {
         corridors, draw, ..
-    } = &err
+    } = &first.error
     else {
-        panic!("{err}")
+        panic!("{}", first.error)
     };
-    assert_eq!(*draw, Some(0));
+    assert_eq!((first.index, *draw), (0, Some(0)));
     assert_eq!(corridors.len(), 1);
-    assert!(err.to_string().contains("posterior draw 0"), "{err}");
+    for allowed in [0.05, 1.0] {
+        let err = paths.clone().within(allowed).unwrap_err();
+        let text = err.to_string();
+        assert!(
+            matches!(
+                err,
+                tiltyard::forecast::ForecastError::TooManyFailed { failed: 3, .. }
+            ),
+            "{text}"
+        );
+        assert!(
+            text.contains("posterior draw 0") && text.contains("tbilrate"),
+            "{text}"
+        );
+    }
 }

@@ -237,12 +237,7 @@ fn sampled_paths_match_rejection_sampling() {
         let name = case["name"].as_str().unwrap();
         let dir = tempfile::tempdir().unwrap();
         let setup = case_setup(&fx, case, &dir);
-        let set = ThetaSet {
-            thetas: vec![theta_of(&setup)],
-            fixed: true,
-            explosive: 0,
-            median_root: f64::NAN,
-        };
+        let set = ThetaSet::single(theta_of(&setup));
         let how = Sampling {
             paths_per_theta: PATHS,
             seed: 9,

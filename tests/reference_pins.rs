@@ -108,12 +108,7 @@ fn sampled_paths_match_numpy_within_monte_carlo_error() {
     for case in fx["cases"].as_array().unwrap() {
         let dir = tempfile::tempdir().unwrap();
         let setup = case_setup(&fx, case, &dir);
-        let set = ThetaSet {
-            thetas: vec![theta_of(&setup)],
-            fixed: true,
-            explosive: 0,
-            median_root: f64::NAN,
-        };
+        let set = ThetaSet::single(theta_of(&setup));
         let cond = setup.conditions().unwrap();
         let how = Sampling {
             paths_per_theta: paths,

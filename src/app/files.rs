@@ -8,7 +8,7 @@ use std::path::{Path, PathBuf};
 use std::sync::mpsc::{Receiver, Sender, channel};
 
 use crate::dataset::{Dataset, Frequency};
-use crate::scenario::{self, ModelSpec, ScenarioFile, SeriesSpec};
+use crate::scenario::{self, LargestRoot, ModelSpec, ScenarioFile, SeriesSpec};
 
 /// Asks the user for paths.
 pub trait PathPicker: Send + Sync {
@@ -131,6 +131,7 @@ pub fn scenario_for(path: &Path) -> Result<ScenarioFile, String> {
         corridors: Vec::new(),
         checks: Default::default(),
         reweight: false,
+        largest_root: LargestRoot::Keep,
     })
 }
 

@@ -925,6 +925,7 @@ fn blank(path: &Path) -> ScenarioFile {
         corridors: Vec::new(),
         checks: Default::default(),
         reweight: false,
+        largest_root: crate::scenario::LargestRoot::Keep,
     }
 }
 

@@ -156,9 +156,16 @@ fn engine_text(state: &EngineState, pal: &Palette) -> (String, Color32) {
         EngineState::Idle => ("waiting for the engine…".into(), pal.muted),
         EngineState::Estimating => ("estimating the model…".into(), pal.fan),
         EngineState::Checking => ("checking the conditions…".into(), pal.fan),
+        EngineState::Drawing => ("drawing the parameters…".into(), pal.fan),
         EngineState::Sampling { done, total } => (format!("sampling {done}/{total}"), pal.fan),
-        EngineState::Done { draws, seconds } => (
-            if *draws > 0 {
+        EngineState::Done {
+            draws,
+            seconds,
+            set_aside,
+        } => (
+            if *set_aside > 0 {
+                format!("ready: {draws} draws in {seconds:.2} s ({set_aside} set aside)")
+            } else if *draws > 0 {
                 format!("ready: {draws} draws in {seconds:.2} s")
             } else {
                 format!("ready in {seconds:.2} s")

@@ -18,7 +18,8 @@ use std::time::Instant;
 use crate::checks::{CheckReport, check_conditions};
 use crate::dataset::Period;
 use crate::forecast::{
-    Conditions, ParamSource, PathSet, Sampling, Theta, ThetaSet, build_thetas, sample_paths,
+    Conditions, DrawSpec, ParamSource, PathSet, Sampling, Theta, ThetaSet, build_thetas,
+    sample_paths,
 };
 use crate::report::{FanRow, Kind, fans};
 use crate::scenario::{ScenarioError, ScenarioFile, Setup, Units, units::display_value};
@@ -46,6 +47,8 @@ pub enum EngineState {
     Idle,
     Estimating,
     Checking,
+    /// Drawing the posterior parameters (once per model).
+    Drawing,
     Sampling {
         done: usize,
         total: usize,
@@ -53,6 +56,8 @@ pub enum EngineState {
     Done {
         draws: usize,
         seconds: f64,
+        /// Posterior draws set aside because they could not be conditioned.
+        set_aside: usize,
     },
     /// The conditions clash: nothing was sampled.
     Clashing,
@@ -135,7 +140,8 @@ struct ModelCache {
     source: ParamSource,
     central: Theta,
     central_label: String,
-    thetas: ThetaSet,
+    /// Posterior draws, made after the first fans and the checks, then kept for edits.
+    thetas: Option<ThetaSet>,
     model_line: String,
 }
 
@@ -195,7 +201,11 @@ fn model_key(file: &ScenarioFile) -> String {
     f.drivers = None;
     f.name.clear();
     f.narrative.clear();
-    f.checks = Default::default();
+    // The stationarity filter's floor decides which draws are kept; the other thresholds do not.
+    f.checks = crate::scenario::CheckSettings {
+        min_kept_share: file.checks.min_kept_share,
+        ..Default::default()
+    };
     f.reweight = false;
     for s in &mut f.series {
         s.display = Units::Level;
@@ -220,7 +230,7 @@ fn process(
     let key = model_key(&job.file);
     if cache.as_ref().is_none_or(|c| c.key != key) {
         send(Message::State(g, EngineState::Estimating));
-        *cache = Some(estimate(&setup, key, &job.cancel)?);
+        *cache = Some(estimate(&setup, key)?);
     }
     let Some(model) = cache.as_ref() else {
         return Err("no model".into());
@@ -233,16 +243,17 @@ fn process(
     // First fans fast: the preview at the central θ, before the checks (which take longer).
     // Invalid conditions are clashes; no preview is shown for them.
     let fixed = matches!(model.source, ParamSource::Fixed(_));
-    let total = if fixed { 0 } else { model.thetas.thetas.len() };
+    let total = if fixed { 0 } else { setup.file.draws };
     let show = |paths: &PathSet, without_conditions: bool| {
-        let shocks = Shocks::of(paths, |_| &model.central);
+        let shocks = Shocks::of(paths, |_| &model.central)?;
         let mut r = results(&setup, paths, &shocks, 0, total, !fixed);
         r.without_conditions = without_conditions;
         send(Message::Results(g, Arc::new(r)));
+        Ok(())
     };
     let first = problems
         .is_empty()
-        .then(|| preview(&setup, model, &conditions, job).map(|paths| show(&paths, false)));
+        .then(|| preview(&setup, model, &conditions, job).and_then(|paths| show(&paths, false)));
     if cancelled() {
         return Ok(());
     }
@@ -265,7 +276,7 @@ fn process(
         if !matches!(first, Some(Ok(())))
             && let Ok(paths) = preview(&setup, model, &Conditions::default(), job)
         {
-            show(&paths, true);
+            show(&paths, true).map_err(text)?;
         }
         return Ok(());
     }
@@ -273,11 +284,50 @@ fn process(
         // (Invalid conditions always clash: `None` does not get here.)
         None | Some(Err(crate::forecast::ForecastError::Cancelled)) => Ok(()),
         Some(Err(e)) => Err(e.to_string()),
-        Some(Ok(())) => posterior(&setup, model, &conditions, job, send, start),
+        Some(Ok(())) if fixed => {
+            send(Message::State(
+                g,
+                EngineState::Done {
+                    draws: 0,
+                    seconds: start.elapsed().as_secs_f64(),
+                    set_aside: 0,
+                },
+            ));
+            Ok(())
+        }
+        Some(Ok(())) => {
+            let Some(model) = cache.as_mut() else {
+                return Err("no model".into());
+            };
+            if model.thetas.is_none() {
+                send(Message::State(g, EngineState::Drawing));
+                let spec = DrawSpec {
+                    count: setup.file.draws,
+                    seed: setup.file.seed,
+                    below: setup.file.largest_root.bound(),
+                    min_kept_share: setup.file.checks.min_kept_share,
+                };
+                let tail = setup.tail().map_err(text)?;
+                let ordering = &setup.ordering;
+                match build_thetas(
+                    &model.source,
+                    ordering,
+                    &tail,
+                    setup.file.horizon,
+                    spec,
+                    &job.cancel,
+                ) {
+                    Ok(set) => model.thetas = Some(set),
+                    Err(crate::forecast::ForecastError::Cancelled) => return Ok(()),
+                    Err(e) => return Err(e.to_string()),
+                }
+            }
+            posterior(&setup, model, &conditions, job, send, start)
+        }
     }
 }
 
-fn estimate(setup: &Setup, key: String, cancel: &AtomicBool) -> Result<ModelCache, String> {
+fn estimate(setup: &Setup, key: String) -> Result<ModelCache, String> {
     let (source, fit) = setup.estimate().map_err(text)?;
     let file = &setup.file;
     let (params, central_label) = match &source {
@@ -290,20 +340,6 @@ fn estimate(setup: &Setup, key: String, cancel: &AtomicBool) -> Result<ModelCach
     };
     let tail = setup.tail().map_err(text)?;
     let central = Theta::new(params, &setup.ordering, &tail, file.horizon).map_err(text)?;
-    let count = match source {
-        ParamSource::Fixed(_) => 1,
-        ParamSource::Posterior(_) => file.draws,
-    };
-    let thetas = build_thetas(
-        &source,
-        &setup.ordering,
-        &tail,
-        file.horizon,
-        count,
-        file.seed,
-        cancel,
-    )
-    .map_err(text)?;
     let p = setup.lags();
     let model_line = match (&fit, &source) {
         (_, ParamSource::Fixed(_)) => format!(
@@ -332,7 +368,7 @@ fn estimate(setup: &Setup, key: String, cancel: &AtomicBool) -> Result<ModelCach
         source,
         central,
         central_label: central_label.into(),
-        thetas,
+        thetas: None,
         model_line,
     })
 }
@@ -373,12 +409,7 @@ fn preview(
     job: &Job,
 ) -> Result<PathSet, crate::forecast::ForecastError> {
     let file = &setup.file;
-    let central = ThetaSet {
-        thetas: vec![model.central.clone()],
-        fixed: true,
-        explosive: 0,
-        median_root: f64::NAN,
-    };
+    let central = ThetaSet::single(model.central.clone());
     let paths = match model.source {
         ParamSource::Fixed(_) => file.draws * file.paths_per_draw,
         ParamSource::Posterior(_) => PREVIEW_PATHS,
@@ -392,7 +423,9 @@ fn preview(
     )
 }
 
-/// Tier 1: posterior draws in blocks, fans after each (nothing more for fixed coefficients).
+/// Tier 1: posterior draws in blocks. Fans are refreshed when the draws done have doubled
+/// since the last refresh (and at the end), so refreshing costs at most twice one summary of
+/// all the paths, however many blocks there are.
 fn posterior(
     setup: &Setup,
     model: &ModelCache,
@@ -403,13 +436,14 @@ fn posterior(
 ) -> Result<(), String> {
     let g = job.generation;
     let file = &setup.file;
-    let total = match model.source {
-        ParamSource::Fixed(_) => 0,
-        ParamSource::Posterior(_) => model.thetas.thetas.len(),
+    let Some(set) = &model.thetas else {
+        return Err("no posterior draws".into());
     };
+    let total = set.thetas.len();
     let mut all = PathSet::default();
     let mut shocks = Shocks::default();
     let mut done = 0;
+    let mut shown = 0;
     while done < total {
         if job.cancel.load(Ordering::Relaxed) {
             return Ok(());
@@ -417,7 +451,7 @@ fn posterior(
         send(Message::State(g, EngineState::Sampling { done, total }));
         let end = (done + BLOCK).min(total);
         let block = sample_paths(
-            &model.thetas,
+            set,
             done..end,
             conditions,
             sampling(file, file.paths_per_draw),
@@ -428,22 +462,24 @@ fn posterior(
             Err(crate::forecast::ForecastError::Cancelled) => return Ok(()),
             Err(e) => return Err(e.to_string()),
         };
-        let per = file.paths_per_draw;
-        shocks.extend(Shocks::of(&block, |k| &model.thetas.thetas[done + k / per]));
-        all.conditional.extend(block.conditional);
-        all.unconditional.extend(block.unconditional);
-        all.log_weights.extend(block.log_weights);
+        shocks.extend(Shocks::of(&block, |i| &set.thetas[i]).map_err(text)?);
+        all.extend(block);
         done = end;
-        send(Message::Results(
-            g,
-            Arc::new(results(setup, &all, &shocks, done, total, false)),
-        ));
+        if done == total || done >= 2 * shown {
+            shown = done;
+            send(Message::Results(
+                g,
+                Arc::new(results(setup, &all, &shocks, done, total, false)),
+            ));
+        }
     }
+    let all = all.within(file.checks.max_failed_share).map_err(text)?;
     send(Message::State(
         g,
         EngineState::Done {
-            draws: total,
+            draws: total - all.failures.len(),
             seconds: start.elapsed().as_secs_f64(),
+            set_aside: all.failures.len(),
         },
     ));
     Ok(())
@@ -457,18 +493,31 @@ struct Shocks {
 }
 
 impl Shocks {
-    /// Shocks of every path of `paths`; `theta(k)` is the θ of path `k`.
-    fn of<'a>(paths: &PathSet, theta: impl Fn(usize) -> &'a Theta) -> Shocks {
-        let each = |list: &[Vec<f64>]| -> Vec<Vec<f64>> {
-            list.iter()
-                .enumerate()
-                .map(|(k, y)| theta(k).shocks_from_path(y))
-                .collect()
+    /// Shocks of every path of `paths`, each under the θ that drew it (`theta(i)` for the
+    /// source index `i`; paths of one θ are consecutive).
+    fn of<'a>(
+        paths: &PathSet,
+        theta: impl Fn(usize) -> &'a Theta,
+    ) -> Result<Shocks, crate::forecast::ForecastError> {
+        let each = |list: &[Vec<f64>]| -> Result<Vec<Vec<f64>>, crate::forecast::ForecastError> {
+            let mut out = Vec::with_capacity(list.len());
+            let mut k = 0;
+            while k < list.len() {
+                let source = paths.sources.get(k).copied().unwrap_or(0);
+                let run = paths.sources[k..]
+                    .iter()
+                    .take_while(|&&s| s == source)
+                    .count();
+                let run = run.max(1);
+                out.extend(theta(source).shocks_from_paths(&list[k..k + run])?);
+                k += run;
+            }
+            Ok(out)
         };
-        Shocks {
-            conditional: each(&paths.conditional),
-            unconditional: each(&paths.unconditional),
-        }
+        Ok(Shocks {
+            conditional: each(&paths.conditional)?,
+            unconditional: each(&paths.unconditional)?,
+        })
     }
 
     fn extend(&mut self, more: Shocks) {

@@ -12,7 +12,7 @@
 pub mod blame;
 pub mod strain;
 
-use nalgebra::{DMatrix, DVector, SymmetricEigen};
+use nalgebra::{DMatrix, SymmetricEigen};
 use rand_distr::{Distribution, StandardNormal};
 use serde::Serialize;
 
@@ -327,18 +327,10 @@ fn plausibility(
 /// A note when the conditions are nearly redundant: the condition number of `Γ` scaled to a
 /// unit diagonal.
 fn redundancy_note(plan: &Plan) -> Option<String> {
-    let g = plan.gram();
-    if g.nrows() < 2 {
-        return None;
-    }
-    let d = DVector::from_iterator(g.nrows(), g.diagonal().iter().map(|x| 1.0 / x.sqrt()));
-    let scaled = DMatrix::from_fn(g.nrows(), g.ncols(), |i, j| d[i] * g[(i, j)] * d[j]);
-    let eig = SymmetricEigen::new(scaled).eigenvalues;
-    let (lo, hi) = (eig.min(), eig.max());
-    (lo <= 0.0 || hi / lo > NEARLY_REDUNDANT).then(|| {
+    let cond = plan.condition_number();
+    (cond > NEARLY_REDUNDANT).then(|| {
         format!(
-            "the conditions are nearly redundant (condition number {:.1e}): some combination of them is almost fixed by the others, and results may be sensitive to rounding",
-            hi / lo.max(f64::MIN_POSITIVE)
+            "the conditions are nearly redundant (condition number {cond:.1e}): some combination of them is almost fixed by the others, and results may be sensitive to rounding"
         )
     })
 }
@@ -400,7 +392,11 @@ fn describe(e: &ForecastError) -> (&'static str, Vec<String>, &'static str) {
             corridors.clone(),
             "widen the corridors, or move them or the pins towards the unconditional forecast",
         ),
-        ForecastError::Singular(_) | ForecastError::Cancelled => (
+        ForecastError::Singular(_)
+        | ForecastError::NotFinite { .. }
+        | ForecastError::NotStationary { .. }
+        | ForecastError::TooManyFailed { .. }
+        | ForecastError::Cancelled => (
             "numerical",
             Vec::new(),
             "check the model and the conditions",

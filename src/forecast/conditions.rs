@@ -86,6 +86,16 @@ impl Conditions {
         Some(mask)
     }
 
+    /// True when a pin or corridor is on a structural shock: its row then depends on θ.
+    pub fn on_shocks(&self) -> bool {
+        let shock = |t: &Target| matches!(t, Target::Shock { .. });
+        self.pins.iter().any(|p| shock(&p.target))
+            || self
+                .corridors
+                .iter()
+                .any(|c| c.rows.iter().any(|r| shock(&r.target)))
+    }
+
     /// Names of the drivers, for messages.
     pub fn driver_names(&self) -> String {
         match &self.drivers {

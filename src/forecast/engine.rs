@@ -1,9 +1,14 @@
 //! The sampling loop over posterior draws (ALGORITHMS §8): build the θ-level caches once,
 //! then, for a set of conditions, draw paths for every θ in parallel. Each θ `i` uses the
 //! stream `(seed, Parameters, i)` and path `j` of it the stream `(seed, Paths, i·P + j)`.
-//! Results are gathered in index order, so they are bit-identical on any number of threads;
-//! every draw's result is collected before errors are looked at, so the error reported is
-//! that of the lowest failing draw, the same on every run.
+//! Work is split into fixed pieces — one θ, or a chunk of [`PATH_CHUNK`] paths of it — and
+//! results are gathered in index order, so they are bit-identical on any number of threads,
+//! and fixed coefficients (one θ, many paths) use every core too.
+//!
+//! A posterior draw that cannot be conditioned (its conditions nearly dependent or out of
+//! the drivers' reach under that θ, its corridors too improbable, its paths overflowing) is
+//! set aside and counted, not allowed to stop the run: [`PathSet::failures`] says which and
+//! why, and [`PathSet::within`] fails the run only past the share the scenario allows.
 
 use std::sync::atomic::{AtomicBool, Ordering};
 
@@ -14,6 +19,7 @@ use super::{
     conditions::Conditions,
     plan::Plan,
     random::{Purpose, stream},
+    rows::Rows,
     theta::Theta,
 };
 use crate::model::{Params, Posterior};
@@ -27,6 +33,54 @@ pub enum ParamSource {
     Fixed(Params),
 }
 
+/// How many posterior draws to make, and which to keep.
+#[derive(Debug, Clone, Copy)]
+pub struct DrawSpec {
+    pub count: usize,
+    pub seed: u64,
+    /// Keep only draws whose largest companion root has modulus below this (common practice;
+    /// `None`: keep every draw, the default, since level series have unit roots on purpose).
+    pub below: Option<f64>,
+    /// With `below`: refuse when fewer than this share of the draws tried are kept.
+    pub min_kept_share: f64,
+}
+
+/// The largest companion roots behind a run's report.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct RootSummary {
+    /// The stationarity filter's bound, if any.
+    pub below: Option<f64>,
+    /// Posterior draws made, and kept (all of them without a filter).
+    pub tried: usize,
+    pub kept: usize,
+    /// Roots measured: every draw tried with a filter; without one, the first
+    /// [`ROOT_SAMPLE`] draws (an exact subsample, so the share is an estimate).
+    pub measured: Vec<f64>,
+}
+
+impl RootSummary {
+    /// Share of the measured roots above 1 (explosive), and its binomial standard error when
+    /// the roots are a subsample of the draws kept.
+    pub fn explosive_share(&self) -> (f64, Option<f64>) {
+        let k = self.measured.len().max(1) as f64;
+        let share = self
+            .measured
+            .iter()
+            .filter(|&&r| r > EXPLOSIVE_MODULUS)
+            .count() as f64
+            / k;
+        let sampled = self.below.is_none() && self.measured.len() < self.kept;
+        (share, sampled.then(|| (share * (1.0 - share) / k).sqrt()))
+    }
+
+    /// Median of the measured roots.
+    pub fn median(&self) -> f64 {
+        let mut r = self.measured.clone();
+        r.sort_by(f64::total_cmp);
+        r.get(r.len() / 2).copied().unwrap_or(f64::NAN)
+    }
+}
+
 /// The θ-level caches of a run.
 #[derive(Debug, Clone)]
 pub struct ThetaSet {
@@ -34,54 +88,147 @@ pub struct ThetaSet {
     /// True for fixed coefficients (one θ, no parameter uncertainty); messages then name no
     /// posterior draw.
     pub fixed: bool,
-    /// Draws whose companion matrix has an eigenvalue of modulus above 1 (kept, reported).
-    pub explosive: usize,
-    /// Median over draws of the largest companion eigenvalue modulus.
-    pub median_root: f64,
+    pub roots: RootSummary,
+}
+
+impl ThetaSet {
+    /// One θ and its paths, with messages that name no posterior draw.
+    pub fn single(theta: Theta) -> ThetaSet {
+        ThetaSet {
+            thetas: vec![theta],
+            fixed: true,
+            roots: RootSummary::default(),
+        }
+    }
 }
 
 /// Threshold above which the largest companion root counts as explosive.
 const EXPLOSIVE_MODULUS: f64 = 1.0 + 1e-8;
+/// Without a stationarity filter, roots are measured on this many draws: an exact
+/// eigenvalue decomposition of the `np × np` companion matrix costs more than the rest of a
+/// draw at 40 series, and the share it reports needs no more (its standard error is shown).
+pub const ROOT_SAMPLE: usize = 200;
+/// Draws tried per block while filtering.
+const FILTER_BLOCK: usize = 64;
 
-/// Build the caches: `count` posterior draws, or the one fixed θ.
+/// Build the caches: `spec.count` posterior draws (kept by the stationarity filter, if any),
+/// or the one fixed θ.
 pub fn build_thetas(
     source: &ParamSource,
     ordering: &[usize],
     tail: &[Vec<f64>],
     h: usize,
-    count: usize,
-    seed: u64,
+    spec: DrawSpec,
     cancel: &AtomicBool,
 ) -> Result<ThetaSet, ForecastError> {
-    let params: Vec<Params> = match source {
-        ParamSource::Fixed(p) => vec![p.clone()],
-        ParamSource::Posterior(post) => (0..count)
-            .into_par_iter()
-            .map(|i| post.draw(&mut stream(seed, Purpose::Parameters, i as u64)))
-            .collect(),
+    let make = |i: usize, p: Params| -> Result<Theta, ForecastError> {
+        if cancel.load(Ordering::Relaxed) {
+            return Err(ForecastError::Cancelled);
+        }
+        Theta::new(p, ordering, tail, h).map_err(|e| e.in_draw(i))
     };
-    let mut roots: Vec<f64> = params.par_iter().map(|p| p.spectral_radius()).collect();
-    let explosive = roots.iter().filter(|&&r| r > EXPLOSIVE_MODULUS).count();
-    roots.sort_by(f64::total_cmp);
-    let median_root = roots.get(roots.len() / 2).copied().unwrap_or(f64::NAN);
-    let thetas = params
-        .into_par_iter()
-        .enumerate()
-        .map(|(i, p)| {
-            if cancel.load(Ordering::Relaxed) {
-                return Err(ForecastError::Cancelled);
+    let post = match source {
+        ParamSource::Fixed(p) => {
+            let root = p.spectral_radius();
+            if let Some(limit) = spec.below.filter(|&l| root >= l) {
+                return Err(ForecastError::NotStationary {
+                    kept: 0,
+                    tried: 1,
+                    limit,
+                    fixed_root: Some(root),
+                });
             }
-            Theta::new(p, ordering, tail, h).map_err(|e| e.in_draw(i))
-        })
-        .collect::<Vec<_>>()
-        .into_iter()
-        .collect::<Result<Vec<_>, _>>()?;
+            return Ok(ThetaSet {
+                thetas: vec![make(0, p.clone())?],
+                fixed: true,
+                roots: RootSummary {
+                    below: spec.below,
+                    tried: 1,
+                    kept: 1,
+                    measured: vec![root],
+                },
+            });
+        }
+        ParamSource::Posterior(post) => post,
+    };
+    let draw = |i: usize| post.draw(&mut stream(spec.seed, Purpose::Parameters, i as u64));
+    let Some(limit) = spec.below else {
+        let thetas = (0..spec.count)
+            .into_par_iter()
+            .map(|i| make(i, draw(i)))
+            .collect::<Vec<_>>()
+            .into_iter()
+            .collect::<Result<Vec<_>, _>>()?;
+        let measured = (0..spec.count.min(ROOT_SAMPLE))
+            .into_par_iter()
+            .map(|i| draw(i).spectral_radius())
+            .collect();
+        return Ok(ThetaSet {
+            thetas,
+            fixed: false,
+            roots: RootSummary {
+                below: None,
+                tried: spec.count,
+                kept: spec.count,
+                measured,
+            },
+        });
+    };
+    // Keep the first `count` draws below the bound, trying at most count / min_kept_share.
+    let most =
+        ((spec.count as f64 / spec.min_kept_share.max(1e-6)).ceil() as usize).max(spec.count);
+    let mut thetas = Vec::with_capacity(spec.count);
+    let mut measured = Vec::new();
+    let mut tried = 0;
+    while thetas.len() < spec.count && tried < most {
+        let end = (tried + FILTER_BLOCK).min(most);
+        let block = (tried..end)
+            .into_par_iter()
+            .map(|i| {
+                let p = draw(i);
+                let root = p.spectral_radius();
+                let theta = (root < limit).then(|| make(i, p)).transpose()?;
+                Ok((root, theta))
+            })
+            .collect::<Vec<Result<_, ForecastError>>>();
+        for result in block {
+            let (root, theta) = result?;
+            tried += 1;
+            measured.push(root);
+            if let Some(theta) = theta {
+                thetas.push(theta);
+                if thetas.len() == spec.count {
+                    break;
+                }
+            }
+        }
+    }
+    if thetas.len() < spec.count {
+        return Err(ForecastError::NotStationary {
+            kept: thetas.len(),
+            tried,
+            limit,
+            fixed_root: None,
+        });
+    }
     Ok(ThetaSet {
         thetas,
-        fixed: matches!(source, ParamSource::Fixed(_)),
-        explosive,
-        median_root,
+        fixed: false,
+        roots: RootSummary {
+            below: Some(limit),
+            tried,
+            kept: spec.count,
+            measured,
+        },
     })
+}
+
+/// A posterior draw (or, for fixed coefficients, a path) set aside, and why.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Failure {
+    /// The posterior draw (fixed coefficients: the path).
+    pub index: usize,
+    pub error: ForecastError,
 }
 
 /// Pooled paths of a run, in (θ, path) order.
@@ -89,14 +236,68 @@ pub fn build_thetas(
 pub struct PathSet {
     pub conditional: Vec<Vec<f64>>,
     pub unconditional: Vec<Vec<f64>>,
+    /// The θ (index into the set) each path was drawn under.
+    pub sources: Vec<usize>,
     /// Largest relative pin error over all conditional paths.
     pub max_pin_error: f64,
     /// Largest relative corridor violation over all conditional paths (0: all held).
     pub max_corridor_violation: f64,
-    /// With reweighting: `ln ω_i` per θ (unnormalised), else empty.
+    /// With reweighting: `ln ω_i` per θ that gave paths (unnormalised), else empty.
     pub log_weights: Vec<f64>,
     /// Notes from the conditions (redundant pins, merged corridors), without repeats.
     pub notes: Vec<String>,
+    /// Draws (or paths) set aside, in index order.
+    pub failures: Vec<Failure>,
+    /// Draws (or paths) attempted.
+    pub attempted: usize,
+    /// True for the paths of fixed coefficients (failures then count paths).
+    pub fixed: bool,
+}
+
+impl PathSet {
+    fn absorb(&mut self, b: PathSet) {
+        self.max_pin_error = self.max_pin_error.max(b.max_pin_error);
+        self.max_corridor_violation = self.max_corridor_violation.max(b.max_corridor_violation);
+        self.conditional.extend(b.conditional);
+        self.unconditional.extend(b.unconditional);
+        self.sources.extend(b.sources);
+        self.log_weights.extend(b.log_weights);
+        self.failures.extend(b.failures);
+        self.attempted += b.attempted;
+        for note in b.notes {
+            if !self.notes.contains(&note) {
+                self.notes.push(note);
+            }
+        }
+    }
+
+    /// Add a later block of the same run.
+    pub fn extend(&mut self, more: PathSet) {
+        self.fixed = more.fixed;
+        self.absorb(more);
+    }
+
+    /// Share of the attempts set aside.
+    pub fn failed_share(&self) -> f64 {
+        self.failures.len() as f64 / self.attempted.max(1) as f64
+    }
+
+    /// The paths, unless more than `max_share` of the attempts failed (or all of them).
+    pub fn within(self, max_share: f64) -> Result<PathSet, ForecastError> {
+        let share = self.failed_share();
+        if (self.conditional.is_empty() || share > max_share)
+            && let Some(first) = self.failures.first()
+        {
+            return Err(ForecastError::TooManyFailed {
+                failed: self.failures.len(),
+                attempted: self.attempted,
+                allowed: max_share,
+                fixed: self.fixed,
+                first: Box::new(first.clone()),
+            });
+        }
+        Ok(self)
+    }
 }
 
 /// How many paths, and whether to reweight θ by the scenario (ALGORITHMS §8.4).
@@ -109,11 +310,16 @@ pub struct Sampling {
     pub min_acceptance: f64,
 }
 
-/// Proposals behind each θ's acceptance estimate before its paths are drawn.
-pub const ACCEPTANCE_PROPOSALS: usize = 256;
+/// Proposals behind each θ's acceptance estimate before its paths are drawn: a screen for
+/// hopeless draws, whose acceptance lies orders of magnitude below the usual 0.03–0.9, so a
+/// rough estimate serves (the check at the central parameters uses thousands).
+pub const ACCEPTANCE_PROPOSALS: usize = 32;
 
 /// Proposals behind each θ's corridor-probability estimate when reweighting.
 pub const WEIGHT_PROPOSALS: usize = 500;
+
+/// Paths of one θ drawn together as one piece of work.
+pub const PATH_CHUNK: usize = 64;
 
 /// Draw `paths_per_theta` conditional paths for every θ in `range` of the set.
 pub fn sample_paths(
@@ -123,64 +329,142 @@ pub fn sample_paths(
     how: Sampling,
     cancel: &AtomicBool,
 ) -> Result<PathSet, ForecastError> {
-    let per = how.paths_per_theta;
+    // Conditions on observables make the same rows under every θ: make them once.
+    let shared = match (cond.on_shocks(), set.thetas.get(range.start)) {
+        (false, Some(theta)) => Some(Rows::new(theta, cond, None)?),
+        _ => None,
+    };
     let blocks = range
         .into_par_iter()
-        .map(|i| {
-            if cancel.load(Ordering::Relaxed) {
-                return Err(ForecastError::Cancelled);
-            }
-            let theta = &set.thetas[i];
-            let draw = (!set.fixed).then_some(i);
-            let name = |e: ForecastError| if set.fixed { e } else { e.in_draw(i) };
-            let plan = Plan::new(theta, cond, draw).map_err(name)?;
-            // Fail fast, naming the draw, rather than spend the path budget on a hopeless θ.
-            let mut rng = stream(how.seed, Purpose::Acceptance, i as u64);
-            if let Some(acceptance) = plan.acceptance(&mut rng, ACCEPTANCE_PROPOSALS)?
-                && acceptance < how.min_acceptance
-            {
-                return Err(ForecastError::TooImprobable {
-                    corridors: plan.corridor_names(),
-                    acceptance,
-                    draw,
-                });
-            }
-            let mut out = PathSet {
-                notes: plan.notes().to_vec(),
-                ..PathSet::default()
-            };
-            if how.reweight {
-                out.log_weights.push(log_weight(&plan, how.seed, i)?);
-            }
-            for j in 0..per {
+        .map(|i| one_theta(set, i, shared.as_ref(), cond, how, cancel))
+        .collect::<Vec<_>>();
+    let mut all = PathSet {
+        fixed: set.fixed,
+        ..PathSet::default()
+    };
+    for b in blocks {
+        all.absorb(b?);
+    }
+    Ok(all)
+}
+
+/// The paths of θ `i`: its plan, then its paths in chunks (in parallel for fixed
+/// coefficients). With parameter uncertainty, any failure sets the whole draw aside; with
+/// fixed coefficients a failing plan stops the run and a failing path is set aside.
+fn one_theta(
+    set: &ThetaSet,
+    i: usize,
+    shared: Option<&Rows>,
+    cond: &Conditions,
+    how: Sampling,
+    cancel: &AtomicBool,
+) -> Result<PathSet, ForecastError> {
+    if cancel.load(Ordering::Relaxed) {
+        return Err(ForecastError::Cancelled);
+    }
+    let theta = &set.thetas[i];
+    let draw = (!set.fixed).then_some(i);
+    let name = |e: ForecastError| if set.fixed { e } else { e.in_draw(i) };
+    let per = how.paths_per_theta;
+    let set_aside = |error: ForecastError| PathSet {
+        failures: vec![Failure { index: i, error }],
+        attempted: 1,
+        fixed: set.fixed,
+        ..PathSet::default()
+    };
+    let planned = plan_for(theta, shared, cond, how, i, draw).map_err(name);
+    let (plan, log_weight) = match planned {
+        Ok(p) => p,
+        Err(ForecastError::Cancelled) => return Err(ForecastError::Cancelled),
+        Err(e) if set.fixed => return Err(e),
+        Err(e) => return Ok(set_aside(e)),
+    };
+    let chunks: Vec<PathSet> = (0..per.div_ceil(PATH_CHUNK))
+        .into_par_iter()
+        .map(|c| {
+            let mut out = PathSet::default();
+            for j in c * PATH_CHUNK..((c + 1) * PATH_CHUNK).min(per) {
+                if cancel.load(Ordering::Relaxed) {
+                    return Err(ForecastError::Cancelled);
+                }
                 let index = (i * per + j) as u64;
-                let (y, ystar) =
-                    plan.sample(theta, &mut stream(how.seed, Purpose::Paths, index))?;
-                out.max_pin_error = out.max_pin_error.max(plan.pin_error(&y));
-                out.max_corridor_violation =
-                    out.max_corridor_violation.max(plan.corridor_violation(&y));
-                out.conditional.push(y);
-                out.unconditional.push(ystar);
+                let mut rng = stream(how.seed, Purpose::Paths, index);
+                out.attempted += 1;
+                let drawn = plan.sample(theta, &mut rng).and_then(|(y, ystar)| {
+                    let finite = y.iter().chain(&ystar).all(|v| v.is_finite());
+                    if finite {
+                        Ok((y, ystar))
+                    } else {
+                        Err(ForecastError::NotFinite { draw })
+                    }
+                });
+                match drawn {
+                    Ok((y, ystar)) => {
+                        out.max_pin_error = out.max_pin_error.max(plan.pin_error(&y));
+                        out.max_corridor_violation =
+                            out.max_corridor_violation.max(plan.corridor_violation(&y));
+                        out.conditional.push(y);
+                        out.unconditional.push(ystar);
+                        out.sources.push(i);
+                    }
+                    Err(e) => out.failures.push(Failure {
+                        index: if set.fixed { j } else { i },
+                        error: name(e),
+                    }),
+                }
             }
             Ok(out)
         })
-        .collect::<Vec<_>>()
-        .into_iter()
-        .collect::<Result<Vec<_>, _>>()?;
-    let mut all = PathSet::default();
-    for b in blocks {
-        all.max_pin_error = all.max_pin_error.max(b.max_pin_error);
-        all.max_corridor_violation = all.max_corridor_violation.max(b.max_corridor_violation);
-        all.conditional.extend(b.conditional);
-        all.unconditional.extend(b.unconditional);
-        all.log_weights.extend(b.log_weights);
-        for note in b.notes {
-            if !all.notes.contains(&note) {
-                all.notes.push(note);
-            }
-        }
+        .collect::<Result<_, _>>()?;
+    let mut out = PathSet {
+        notes: plan.notes().to_vec(),
+        fixed: set.fixed,
+        ..PathSet::default()
+    };
+    for c in chunks {
+        out.absorb(c);
     }
-    Ok(all)
+    if set.fixed {
+        return Ok(out);
+    }
+    // A posterior draw counts once, and is set aside whole when any of its paths fails.
+    if let Some(first) = out.failures.first() {
+        return Ok(set_aside(first.error.clone()));
+    }
+    out.attempted = 1;
+    out.log_weights.extend(log_weight);
+    Ok(out)
+}
+
+/// The plan of θ `i`, screened for hopeless corridors, and its log weight when reweighting.
+fn plan_for(
+    theta: &Theta,
+    shared: Option<&Rows>,
+    cond: &Conditions,
+    how: Sampling,
+    i: usize,
+    draw: Option<usize>,
+) -> Result<(Plan, Option<f64>), ForecastError> {
+    let plan = match shared {
+        Some(rows) => Plan::with_rows(theta, rows.clone(), cond, draw),
+        None => Plan::new(theta, cond, draw),
+    }?;
+    // Fail fast, naming the draw, rather than spend the path budget on a hopeless θ.
+    let mut rng = stream(how.seed, Purpose::Acceptance, i as u64);
+    if let Some(acceptance) = plan.acceptance(&mut rng, ACCEPTANCE_PROPOSALS)?
+        && acceptance < how.min_acceptance
+    {
+        return Err(ForecastError::TooImprobable {
+            corridors: plan.corridor_names(),
+            acceptance,
+            draw,
+        });
+    }
+    let weight = how
+        .reweight
+        .then(|| log_weight(&plan, how.seed, i))
+        .transpose()?;
+    Ok((plan, weight))
 }
 
 /// `ln ω_i = ln p(r | θ_i) + ln ℓ̂_i`: the density of the pins and the estimated probability

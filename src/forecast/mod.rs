@@ -23,7 +23,8 @@ pub mod theta;
 
 pub use conditions::{Bounded, Conditions, Corridor, Pin, Target};
 pub use engine::{
-    ParamSource, PathSet, Sampling, ThetaSet, build_thetas, normalise, path_weights, sample_paths,
+    DrawSpec, Failure, ParamSource, PathSet, RootSummary, Sampling, ThetaSet, build_thetas,
+    normalise, path_weights, sample_paths,
 };
 pub use plan::Plan;
 pub use theta::Theta;
@@ -77,8 +78,66 @@ pub enum ForecastError {
         acceptance: f64,
         draw: Option<usize>,
     },
+    #[error(
+        "the paths overflow{}: the parameters are explosive over this horizon. Shorten the horizon, or keep only stationary draws (largest_root: below(1.0))",
+        at_draw(*draw)
+    )]
+    NotFinite { draw: Option<usize> },
+    #[error("{}", not_stationary(*kept, *tried, *limit, *fixed_root))]
+    NotStationary {
+        kept: usize,
+        tried: usize,
+        limit: f64,
+        /// For fixed coefficients: their largest root.
+        fixed_root: Option<f64>,
+    },
+    #[error(
+        "{failed} of {attempted} {} ({:.1}%) could not be conditioned, more than the {:.1}% the scenario allows (checks.max_failed_share); the first, {}: {}. {}",
+        if *fixed { "paths" } else { "posterior draws" },
+        100.0 * *failed as f64 / (*attempted).max(1) as f64,
+        100.0 * allowed,
+        if *fixed { format!("path {}", first.index) } else { format!("draw {}", first.index) },
+        first.error,
+        remedy(&first.error)
+    )]
+    TooManyFailed {
+        failed: usize,
+        attempted: usize,
+        allowed: f64,
+        fixed: bool,
+        first: Box<engine::Failure>,
+    },
     #[error("cancelled")]
     Cancelled,
+}
+
+fn not_stationary(kept: usize, tried: usize, limit: f64, fixed_root: Option<f64>) -> String {
+    match fixed_root {
+        Some(root) => format!(
+            "the fixed coefficients' largest root has modulus {root:.4}, not below the bound {limit} set by largest_root; keep them (largest_root: keep) or supply stationary coefficients"
+        ),
+        None => format!(
+            "only {kept} of {tried} posterior draws ({:.1}%) have their largest root below {limit}, fewer than the scenario needs (checks.min_kept_share); raise the bound, keep every draw (largest_root: keep), or revisit the model (fewer lags, a tighter prior)",
+            100.0 * kept as f64 / tried.max(1) as f64
+        ),
+    }
+}
+
+/// What to change when draws keep failing for this reason.
+fn remedy(e: &ForecastError) -> &'static str {
+    match e {
+        ForecastError::NotFinite { .. } => {
+            "Shorten the horizon, or keep only stationary draws (largest_root: below(1.0))"
+        }
+        ForecastError::TooImprobable { .. } => {
+            "Widen the corridors or move them towards the forecast"
+        }
+        ForecastError::Unreachable { .. } => "Add drivers or loosen the conditions",
+        ForecastError::NearlyDependent { .. } => {
+            "Remove the condition that (nearly) repeats the others"
+        }
+        _ => "Loosen the conditions, or raise checks.max_failed_share to accept the loss",
+    }
 }
 
 impl ForecastError {
@@ -104,6 +163,7 @@ impl ForecastError {
                 acceptance,
                 draw: Some(i),
             },
+            ForecastError::NotFinite { draw: None } => ForecastError::NotFinite { draw: Some(i) },
             other => other,
         }
     }

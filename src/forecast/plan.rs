@@ -1,22 +1,32 @@
 //! Conditioning one θ on the pins and corridors, and drawing conditional paths.
 //!
-//! Stacked rows `𝒢 = [R; S]` (pins, then independent corridor rows; [`super::rows`]), pin values
-//! `r`, `r̃ = r − Rμ`, `Γ = 𝒢 K⁻¹ 𝒢'`, `F = 𝒢 M`.
+//! Stacked rows `𝒢 = [R; S]` (k = m + q: pins, then independent corridor rows;
+//! [`super::rows`]), pin values `r`, `r̃ = r − Rμ`, and the conditions in shock space
+//! `F = 𝒢 M` (k × N), computed as `(M'𝒢')'` by the backward recursion ([`Theta`]).
 //!
-//! - **All shocks move: kriging** (Rue and Held 2005). `V = K⁻¹𝒢'` by band solves,
-//!   `W = V Γ⁻¹`. The corridor quantities `z = S y` given the pins are
-//!   `N(Sμ + Γ_SR Γ_RR⁻¹ r̃, Γ_SS − Γ_SR Γ_RR⁻¹ Γ_RS)`, drawn truncated to the corridors
-//!   ([`super::corridor`]); a draw `y* ~ N(μ, K⁻¹)` from the precision sampler becomes
-//!   `y = y* + W ((r; z) − 𝒢 y*)`, which meets `R y = r` and `S y = z` exactly (ALGORITHMS §6.2).
-//! - **Drivers** `J` (Antolín-Díaz, Petrella and Rubio-Ramírez 2021). Shocks outside `J` keep
-//!   `N(0, 1)`; given them, `ε_J ~ N(0, I)` conditioned on the pins and corridors. With a
-//!   standard normal `ε*`, the corridor quantities given `ε*_J̄` are Gaussian with mean
-//!   `Sμ + F_SJ F_RJ⁺ r̃ + (F_SJ̄ − F_SJ F_RJ⁺ F_RJ̄) ε*_J̄` and covariance
-//!   `F_SJ (I − F_RJ⁺F_RJ) F_SJ'`; with `z` drawn from it truncated to the corridors,
-//!   `ε = ε* + E_J F_J⁺ ((r̃; z − Sμ) − F ε*)` and `y = μ + M ε` (ALGORITHMS §5.3–5.4).
-//!   With `J` = all shocks it reduces to kriging (`M⁻¹W = F⁺`).
+//! Drivers `J` are the shock cells that may move (every cell when no drivers are named;
+//! Antolín-Díaz, Petrella and Rubio-Ramírez 2021). One factorisation serves everything: the
+//! thin QR `F_J' = Q R` (R k×k upper triangular, pins first), never the Gram matrix
+//! `F_J F_J'`, so nothing squares the conditioning:
+//!
+//! - `F_J⁺ = Q R⁻ᵀ`; the gain `W = M E_J F_J⁺` (N × k) moves only driver shocks;
+//! - with `R = [[R_RR, R_RS], [0, R_SS]]`, the corridor quantities `z = S y` given the pins
+//!   and the non-driver shocks `ε*_J̄` are Gaussian with mean
+//!   `Sμ + R_RS'R_RR⁻ᵀ r̃ + (F_SJ̄ − R_RS'R_RR⁻ᵀ F_RJ̄) ε*_J̄` and covariance `R_SS'R_SS`
+//!   (since `F_SJ F_RJ⁺ = R_RS'R_RR⁻ᵀ` and `F_SJ(I − F_RJ⁺F_RJ)F_SJ' = R_SS'R_SS`); `z` is
+//!   drawn from it truncated to the corridors ([`super::corridor`]);
+//! - a path: `ε* ~ N(0, I)`, `y* = μ + M ε*` (the VAR simulated forward), then
+//!   `y = y* + W((r; z) − 𝒢y*)`, which meets `R y = r` and `S y = z` exactly because
+//!   `𝒢W = F_J F_J⁺ = I`; one more step with the same `W` removes the rounding left by long,
+//!   explosive horizons. With every shock free this is conditioning by kriging (Rue and Held
+//!   2005), `W = K⁻¹𝒢'Γ⁻¹` (ALGORITHMS §4.4, §5.3–5.4, §6.2).
+//!
+//! The model's own law (every shock free: pin surprise, the corridors' probability, weights)
+//! uses the same factorisation of `F'`, with `Γ = 𝒢K⁻¹𝒢' = R'R`.
 
-use nalgebra::{DMatrix, DVector};
+use std::sync::OnceLock;
+
+use nalgebra::{DMatrix, DVector, SVD};
 use rand::Rng;
 use rand_distr::{Distribution, StandardNormal};
 
@@ -41,61 +51,183 @@ pub struct ShockLaw {
     pub rows: DMatrix<f64>,
 }
 
+/// The thin QR of `F_J'` for one set of moving cells.
+#[derive(Debug, Clone)]
+struct Factor {
+    /// `Q` (|J| × k, orthonormal columns).
+    q: DMatrix<f64>,
+    /// `R` (k × k, upper triangular).
+    r: DMatrix<f64>,
+}
+
+impl Factor {
+    /// Factor `F_J'` (the columns `cells` of `F`), padded with zero rows to at least k rows so
+    /// that too few cells show up as a rank deficiency.
+    fn new(ft: &DMatrix<f64>, cells: Option<&[usize]>) -> Factor {
+        let k = ft.ncols();
+        let fjt = match cells {
+            None if ft.nrows() >= k => ft.clone(),
+            None => ft.clone().resize_vertically(k, 0.0),
+            Some(cells) => {
+                let rows = cells.len().max(k);
+                DMatrix::from_fn(rows, k, |i, c| cells.get(i).map_or(0.0, |&j| ft[(j, c)]))
+            }
+        };
+        cholesky_qr2(&fjt).unwrap_or_else(|| {
+            let qr = fjt.qr();
+            Factor {
+                q: qr.q(),
+                r: qr.r(),
+            }
+        })
+    }
+
+    fn size(&self) -> usize {
+        self.r.nrows()
+    }
+
+    /// `R_RR⁻¹ x` for the leading `m × m` block (x: m × c).
+    fn rr_solve(&self, m: usize, x: &DMatrix<f64>) -> DMatrix<f64> {
+        let rr = self.r.view((0, 0), (m, m));
+        rr.solve_upper_triangular(x)
+            .unwrap_or_else(|| DMatrix::from_element(m, x.ncols(), f64::NAN))
+    }
+
+    /// `R_RR⁻ᵀ x` (x: m × c).
+    fn rr_solve_transpose(&self, m: usize, x: &DMatrix<f64>) -> DMatrix<f64> {
+        let rrt = self.r.view((0, 0), (m, m)).transpose();
+        rrt.solve_lower_triangular(x)
+            .unwrap_or_else(|| DMatrix::from_element(m, x.ncols(), f64::NAN))
+    }
+
+    /// `C = R_RS' R_RR⁻ᵀ` (q × m): the corridor rows' regression on the pins.
+    fn corridor_on_pins(&self, m: usize) -> DMatrix<f64> {
+        let q = self.size() - m;
+        if m == 0 {
+            return DMatrix::zeros(q, 0);
+        }
+        let rrs = self.r.view((0, m), (m, q)).into_owned();
+        // (R_RR⁻¹ R_RS)' = R_RS' R_RR⁻ᵀ.
+        self.rr_solve(m, &rrs).transpose()
+    }
+
+    /// `R_SS` (q × q).
+    fn corridor_block(&self, m: usize) -> DMatrix<f64> {
+        let q = self.size() - m;
+        self.r.view((m, m), (q, q)).into_owned()
+    }
+
+    /// `F_J⁺ = Q R⁻ᵀ` (|J| × k).
+    fn pseudo_inverse(&self) -> Option<DMatrix<f64>> {
+        let rinv_qt = self.r.solve_upper_triangular(&self.q.transpose())?;
+        Some(rinv_qt.transpose())
+    }
+
+    /// `R D` with `D = diag(Γ)^{−½}`: the factor of `Γ` scaled to a unit diagonal.
+    fn scaled(&self) -> DMatrix<f64> {
+        let mut rd = self.r.clone();
+        for mut col in rd.column_iter_mut() {
+            let norm = col.norm();
+            col.scale_mut(1.0 / norm.max(f64::MIN_POSITIVE));
+        }
+        rd
+    }
+
+    /// Condition number of `Γ = R'R` scaled to a unit diagonal, and the conditions in the
+    /// direction it nearly loses (the right singular vector of `R D`, `D = diag(Γ)^{−½}`).
+    fn scaled_condition(&self) -> (f64, Vec<usize>) {
+        let k = self.size();
+        if k < 2 {
+            return (1.0, Vec::new());
+        }
+        let svd = SVD::new(self.scaled(), false, true);
+        let (lo_at, lo) = svd.singular_values.argmin();
+        let hi = svd.singular_values.max();
+        let cond = if lo > 0.0 {
+            (hi / lo).powi(2)
+        } else {
+            f64::INFINITY
+        };
+        let involved = svd.v_t.map_or_else(Vec::new, |vt| {
+            let v = vt.row(lo_at);
+            let top = v.amax();
+            (0..k).filter(|&i| v[i].abs() > 1e-3 * top).collect()
+        });
+        (cond, involved)
+    }
+}
+
+/// Thin QR by CholeskyQR2 (Yamamoto, Nakatsukasa, Yanagisawa and Fukaya 2015) on the matrix
+/// with unit-norm columns `A = F_J'D`: twice `R_i = chol(A'A)'`, `A ← A R_i⁻¹`; then
+/// `F_J' = Q R` with `R = R_2 R_1 D⁻¹`. Two matrix products per pass instead of Householder
+/// reflections. Forming `A'A` squares the condition of the *scaled* conditions only (the
+/// growth of explosive horizons sits in the column norms, removed by `D`); the second pass
+/// restores orthogonality to rounding whenever `cond(A) ≲ 10⁸`, and every accepted plan has
+/// `cond(A) ≤ 10⁶` (`NEARLY_DEPENDENT`). `None` when a Cholesky fails (rank deficient or
+/// nearly so): the caller then uses Householder QR, whose `R` names the deficiency.
+fn cholesky_qr2(fjt: &DMatrix<f64>) -> Option<Factor> {
+    let k = fjt.ncols();
+    let scale: Vec<f64> = (0..k).map(|c| fjt.column(c).norm()).collect();
+    if scale.iter().any(|&s| !(s > 0.0 && s.is_finite())) {
+        return None;
+    }
+    let mut a = fjt.clone();
+    for (c, s) in scale.iter().enumerate() {
+        a.column_mut(c).scale_mut(1.0 / s);
+    }
+    let mut r = DMatrix::identity(k, k);
+    for _ in 0..2 {
+        let gram = a.tr_mul(&a);
+        let upper = gram.cholesky()?.l().transpose();
+        let inv = triangular_inverse(&upper)?;
+        a = &a * inv;
+        r = upper * r;
+    }
+    for (c, s) in scale.iter().enumerate() {
+        r.column_mut(c).scale_mut(*s);
+    }
+    Some(Factor { q: a, r })
+}
+
+/// `U⁻¹` for an upper-triangular `U` (None if a diagonal entry is zero).
+fn triangular_inverse(u: &DMatrix<f64>) -> Option<DMatrix<f64>> {
+    u.solve_upper_triangular(&DMatrix::identity(u.nrows(), u.ncols()))
+}
+
+/// `‖U‖_F ‖U⁻¹‖_F`, an upper bound on the 2-norm condition number of `U` (at most `k` times
+/// too large): a screen that spares the singular value decomposition when `U` is clearly
+/// well conditioned.
+pub(super) fn condition_bound(u: &DMatrix<f64>) -> f64 {
+    triangular_inverse(u)
+        .map(|inv| u.norm() * inv.norm())
+        .filter(|b| b.is_finite())
+        .unwrap_or(f64::INFINITY)
+}
+
 /// Condition-dependent objects for one θ.
 #[derive(Debug, Clone)]
 pub struct Plan {
     rows: Rows,
-    /// `𝒢 = [R; S]`.
+    /// `𝒢 = [R; S]` (k × N).
     stacked: DMatrix<f64>,
+    /// `F' = M'𝒢'` (N × k).
+    shock_rows: DMatrix<f64>,
     /// `r̃ = r − R μ` (kept pins).
     rtilde: DVector<f64>,
     /// `S μ` (kept corridor rows).
     smean: DVector<f64>,
-    /// `Γ = 𝒢 K⁻¹ 𝒢'`.
-    gamma: DMatrix<f64>,
-    route: Route,
-    /// The corridor quantities' law under this route (none without corridors).
+    /// Driver cells `J` (`None`: every cell) and the other cells `J̄`.
+    cells: Option<Vec<usize>>,
+    rest: Vec<usize>,
+    /// QR of `F_J'`.
+    factor: Factor,
+    /// QR of `F'` (every shock free), the same as `factor` without drivers.
+    model: OnceLock<Factor>,
+    /// `W = M E_J F_J⁺` (N × k).
+    gain: DMatrix<f64>,
+    /// The corridor quantities' law under this plan's drivers (none without corridors).
     law: Option<CorridorLaw>,
     draw: Option<usize>,
-}
-
-#[derive(Debug, Clone)]
-enum Route {
-    /// `W = K⁻¹𝒢'Γ⁻¹` (N × (m+q)).
-    Kriging { w: DMatrix<f64> },
-    /// `F` ((m+q)×N), driver cells `J`, the other cells, and `F_J⁺` (|J|×(m+q)).
-    Drivers {
-        f: DMatrix<f64>,
-        cells: Vec<usize>,
-        rest: Vec<usize>,
-        gain: DMatrix<f64>,
-    },
-}
-
-fn columns(f: &DMatrix<f64>, cols: &[usize]) -> DMatrix<f64> {
-    DMatrix::from_fn(f.nrows(), cols.len(), |i, k| f[(i, cols[k])])
-}
-
-fn pinv(a: &DMatrix<f64>) -> Result<DMatrix<f64>, ForecastError> {
-    if a.nrows() == 0 {
-        return Ok(DMatrix::zeros(a.ncols(), 0));
-    }
-    a.clone()
-        .pseudo_inverse(0.0)
-        .map_err(|e| ForecastError::Singular(format!("F_J ({e})")))
-}
-
-/// `F = 𝒢 M`, row by row as `(M' ρ)'`.
-fn shock_rows(theta: &Theta, g: &DMatrix<f64>) -> DMatrix<f64> {
-    let mut f = DMatrix::zeros(g.nrows(), g.ncols());
-    for i in 0..g.nrows() {
-        let row: Vec<f64> = g.row(i).iter().copied().collect();
-        f.set_row(
-            i,
-            &DVector::from_vec(theta.shock_map_transpose(&row)).transpose(),
-        );
-    }
-    f
 }
 
 impl Plan {
@@ -105,63 +237,90 @@ impl Plan {
         cond: &Conditions,
         draw: Option<usize>,
     ) -> Result<Plan, ForecastError> {
-        let rows = Rows::new(theta, cond, draw)?;
+        Plan::with_rows(theta, Rows::new(theta, cond, draw)?, cond, draw)
+    }
+
+    /// Build the plan on rows already made (conditions on observables give the same rows
+    /// under every θ, so a run makes them once; see [`Conditions::on_shocks`]).
+    pub fn with_rows(
+        theta: &Theta,
+        rows: Rows,
+        cond: &Conditions,
+        draw: Option<usize>,
+    ) -> Result<Plan, ForecastError> {
         let g = rows.stacked();
         let (m, q) = (rows.pins.nrows(), rows.corridors.nrows());
         let mean = DVector::from_column_slice(&theta.mean);
         let rtilde = &rows.values - &rows.pins * &mean;
         let smean = &rows.corridors * &mean;
-        let (route, gamma, law) = match cond.driver_cells(theta.n(), theta.h) {
-            None => {
-                let (w, gamma) = kriging_gain(theta, &g, &rows.labels(), draw)?;
-                let law = (q > 0)
-                    .then(|| model_law(&gamma, m, &rtilde, &smean, &rows))
-                    .transpose()?;
-                (Route::Kriging { w }, gamma, law)
-            }
-            Some(mask) => {
-                let f = shock_rows(theta, &g);
-                let all = rows.labels();
-                reach::check(&f, &mask).map_err(|involved| ForecastError::Unreachable {
-                    conditions: involved.iter().map(|&i| all[i].clone()).collect(),
-                    drivers: cond.driver_names(),
-                    draw,
-                })?;
-                let cells: Vec<usize> = (0..theta.len()).filter(|&c| mask[c]).collect();
-                let rest: Vec<usize> = (0..theta.len()).filter(|&c| !mask[c]).collect();
-                let fj = columns(&f, &cells);
-                let gain = pinv(&fj)?;
-                let gamma = &f * f.transpose();
-                well_conditioned(&gamma, &all, draw)?;
-                let law = if q > 0 {
-                    let (frj, fsj) = (fj.rows(0, m).into_owned(), fj.rows(m, q).into_owned());
-                    let fr_rest = columns(&f, &rest).rows(0, m).into_owned();
-                    let fs_rest = columns(&f, &rest).rows(m, q).into_owned();
-                    let pr = pinv(&frj)?;
-                    let fsj_pr = &fsj * &pr;
-                    let cov = &fsj * fsj.transpose() - &fsj_pr * (&frj * fsj.transpose());
-                    let m0 = &smean + &fsj_pr * &rtilde;
-                    let shift = fs_rest - &fsj_pr * fr_rest;
-                    Some(CorridorLaw::new(cov, m0, Some(shift), law_rows(&rows))?)
-                } else {
-                    None
-                };
-                let route = Route::Drivers {
-                    f,
-                    cells,
-                    rest,
-                    gain,
-                };
-                (route, gamma, law)
+        let mut shock_rows = g.transpose();
+        theta.adjoint_in_place(&mut shock_rows);
+        let labels = rows.labels();
+        let (cells, rest) = match cond.driver_cells(theta.n(), theta.h) {
+            None => (None, Vec::new()),
+            Some(mask) => (
+                Some((0..theta.len()).filter(|&c| mask[c]).collect::<Vec<_>>()),
+                (0..theta.len()).filter(|&c| !mask[c]).collect(),
+            ),
+        };
+        let factor = Factor::new(&shock_rows, cells.as_deref());
+        if cells.is_some() {
+            let width = cells.as_ref().map_or(0, Vec::len).max(m + q);
+            reach::check(&factor.r, width).map_err(|involved| ForecastError::Unreachable {
+                conditions: involved.iter().map(|&i| labels[i].clone()).collect(),
+                drivers: cond.driver_names(),
+                draw,
+            })?;
+        }
+        well_conditioned(&factor, &labels, draw)?;
+        let pinv = factor
+            .pseudo_inverse()
+            .ok_or_else(|| ForecastError::NearlyDependent {
+                conditions: labels.clone(),
+                draw,
+            })?;
+        let mut gain = match &cells {
+            None => pinv,
+            Some(cells) => {
+                let mut w = DMatrix::zeros(theta.len(), m + q);
+                for (k, &c) in cells.iter().enumerate() {
+                    w.set_row(c, &pinv.row(k));
+                }
+                w
             }
         };
+        theta.shocks_to_paths(&mut gain);
+        let law = (q > 0)
+            .then(|| {
+                let on_pins = factor.corridor_on_pins(m);
+                let r_ss = factor.corridor_block(m);
+                let cov = r_ss.transpose() * r_ss;
+                let m0 = &smean + &on_pins * &rtilde;
+                // With drivers the mean moves with the non-driver shocks:
+                // (F_SJ̄ − C F_RJ̄) ε*_J̄.
+                let shift = (!rest.is_empty()).then(|| {
+                    let f_rest =
+                        DMatrix::from_fn(m + q, rest.len(), |i, c| shock_rows[(rest[c], i)]);
+                    f_rest.rows(m, q) - &on_pins * f_rest.rows(0, m)
+                });
+                CorridorLaw::new(cov, m0, shift, law_rows(&rows))
+            })
+            .transpose()?;
+        let model = OnceLock::new();
+        if cells.is_none() {
+            let _ = model.set(factor.clone());
+        }
         Ok(Plan {
             stacked: g,
+            shock_rows,
             rows,
             rtilde,
             smean,
-            gamma,
-            route,
+            cells,
+            rest,
+            factor,
+            model,
+            gain,
             law,
             draw,
         })
@@ -175,9 +334,16 @@ impl Plan {
         self.rows.corridors.nrows()
     }
 
-    /// `Γ = 𝒢 K⁻¹ 𝒢'` of the kept rows (pins, then corridor rows).
-    pub fn gram(&self) -> &DMatrix<f64> {
-        &self.gamma
+    /// The factor of the model's law (every shock free).
+    fn model_factor(&self) -> &Factor {
+        self.model
+            .get_or_init(|| Factor::new(&self.shock_rows, None))
+    }
+
+    /// Condition number of `Γ = 𝒢 K⁻¹ 𝒢'` scaled to a unit diagonal (1 for fewer than two
+    /// conditions): how close the kept conditions come to repeating each other.
+    pub fn condition_number(&self) -> f64 {
+        self.model_factor().scaled_condition().0
     }
 
     /// Estimated acceptance rate of this plan's corridor sampler (at non-driver shocks zero),
@@ -216,52 +382,23 @@ impl Plan {
         rng: &mut R,
     ) -> Result<(Vec<f64>, Vec<f64>), ForecastError> {
         let m = self.pin_count();
-        match &self.route {
-            Route::Kriging { w } => {
-                let ystar = theta.sample_unconditional(rng);
-                let y = DVector::from_column_slice(&ystar);
-                let mut target = self.rows.values.clone();
-                if let Some(law) = &self.law {
-                    let z = law.draw(&[], rng, self.draw)?;
-                    target = target.resize_vertically(m + z.len(), 0.0);
-                    target.rows_mut(m, z.len()).copy_from(&z);
-                }
-                // One correction, then one refinement of the rounding it leaves (`𝒢W = I` in
-                // exact arithmetic, so the second step only removes rounding; it matters on long,
-                // explosive horizons).
-                let mut y = y;
-                for _ in 0..2 {
-                    let gap = &target - &self.stacked * &y;
-                    y += w * gap;
-                }
-                Ok((y.as_slice().to_vec(), ystar))
-            }
-            Route::Drivers {
-                f,
-                cells,
-                rest,
-                gain,
-            } => {
-                let estar: Vec<f64> = (0..theta.len())
-                    .map(|_| StandardNormal.sample(rng))
-                    .collect();
-                let ystar = theta.path_from_shocks(&estar);
-                let mut target = self.rtilde.clone();
-                if let Some(law) = &self.law {
-                    let nondrivers: Vec<f64> = rest.iter().map(|&c| estar[c]).collect();
-                    let z = law.draw(&nondrivers, rng, self.draw)? - &self.smean;
-                    target = target.resize_vertically(m + z.len(), 0.0);
-                    target.rows_mut(m, z.len()).copy_from(&z);
-                }
-                let gap = target - f * DVector::from_column_slice(&estar);
-                let step = gain * gap;
-                let mut eps = estar;
-                for (k, &c) in cells.iter().enumerate() {
-                    eps[c] += step[k];
-                }
-                Ok((theta.path_from_shocks(&eps), ystar))
-            }
+        let eps: Vec<f64> = (0..theta.len())
+            .map(|_| StandardNormal.sample(rng))
+            .collect();
+        let ystar = DVector::from_vec(theta.path_from_shocks(&eps));
+        let mut target = self.rows.values.clone();
+        if let Some(law) = &self.law {
+            let nondrivers: Vec<f64> = self.rest.iter().map(|&c| eps[c]).collect();
+            let z = law.draw(&nondrivers, rng, self.draw)?;
+            target = target.resize_vertically(m + z.len(), 0.0);
+            target.rows_mut(m, z.len()).copy_from(&z);
         }
+        let mut y = ystar.clone();
+        for _ in 0..2 {
+            let gap = &target - &self.stacked * &y;
+            y += &self.gain * gap;
+        }
+        Ok((y.as_slice().to_vec(), ystar.as_slice().to_vec()))
     }
 
     /// Largest relative pin error of a path (over every pin, also those found redundant).
@@ -275,23 +412,22 @@ impl Plan {
     }
 
     /// Pin z-scores `r̃_i / sqrt(G_ii)` and the Mahalanobis distance `d² = r̃'G⁻¹r̃`,
-    /// `G = R K⁻¹ R'`, with the labels of the (kept) pins.
+    /// `G = R K⁻¹ R' = R_RR'R_RR`, with the labels of the (kept) pins.
     pub fn pin_surprise(&self) -> (Vec<(String, f64)>, f64) {
         let m = self.pin_count();
-        let g = self.gamma.view((0, 0), (m, m)).into_owned();
+        let f = self.model_factor();
         let z = (0..m)
             .map(|i| {
+                let g_ii = f.r.view((0, i), (i + 1, 1)).norm_squared();
                 (
                     self.rows.pin_labels[i].clone(),
-                    self.rtilde[i] / g[(i, i)].sqrt(),
+                    self.rtilde[i] / g_ii.sqrt(),
                 )
             })
             .collect();
-        let d2 = g
-            .cholesky()
-            .map(|c| self.rtilde.dot(&c.solve(&self.rtilde)))
-            .unwrap_or(f64::INFINITY);
-        (z, d2)
+        let w = f.rr_solve_transpose(m, &DMatrix::from_column_slice(m, 1, self.rtilde.as_slice()));
+        let d2 = w.norm_squared();
+        (z, if d2.is_finite() { d2 } else { f64::INFINITY })
     }
 
     /// `ln p(r | θ) = −½ (m ln 2π + ln|G| + r̃'G⁻¹r̃)`: the density of the pinned values under
@@ -302,35 +438,30 @@ impl Plan {
         if m == 0 {
             return 0.0;
         }
-        let g = self.gamma.view((0, 0), (m, m)).into_owned();
-        match g.cholesky() {
-            Some(c) => {
-                let logdet: f64 = 2.0 * c.l().diagonal().iter().map(|d| d.ln()).sum::<f64>();
-                let d2 = self.rtilde.dot(&c.solve(&self.rtilde));
-                let jacobian: f64 = self.rows.pin_norms.iter().map(|c| c.ln()).sum();
-                -0.5 * (m as f64 * (2.0 * std::f64::consts::PI).ln() + logdet + d2) - jacobian
-            }
-            None => f64::NEG_INFINITY,
-        }
+        let f = self.model_factor();
+        let logdet: f64 = 2.0 * (0..m).map(|i| f.r[(i, i)].abs().ln()).sum::<f64>();
+        let (_, d2) = self.pin_surprise();
+        let jacobian: f64 = self.rows.pin_norms.iter().map(|c| c.ln()).sum();
+        let lp = -0.5 * (m as f64 * (2.0 * std::f64::consts::PI).ln() + logdet + d2) - jacobian;
+        if lp.is_nan() { f64::NEG_INFINITY } else { lp }
     }
 
     /// The model's law of the corridor quantities given the pins, every shock free — the
-    /// basis of the corridor probability `P(a ≤ S y ≤ b | pins)` (none without corridors).
+    /// basis of the corridor probability `P(a ≤ S y ≤ b | pins)` (none without corridors):
+    /// mean `Sμ + Γ_SR Γ_RR⁻¹ r̃`, covariance `Γ_SS − Γ_SR Γ_RR⁻¹ Γ_RS` (ALGORITHMS §6.1),
+    /// from the factor of `F'`.
     pub fn model_law(&self) -> Result<Option<CorridorLaw>, ForecastError> {
         if self.corridor_count() == 0 {
             return Ok(None);
         }
-        if let Route::Kriging { .. } = self.route {
+        if self.cells.is_none() {
             return Ok(self.law.clone());
         }
-        model_law(
-            &self.gamma,
-            self.pin_count(),
-            &self.rtilde,
-            &self.smean,
-            &self.rows,
-        )
-        .map(Some)
+        let m = self.pin_count();
+        let f = self.model_factor();
+        let r_ss = f.corridor_block(m);
+        let mean = &self.smean + f.corridor_on_pins(m) * &self.rtilde;
+        CorridorLaw::new(r_ss.transpose() * r_ss, mean, None, law_rows(&self.rows)).map(Some)
     }
 
     /// Probability of the corridors under this plan's own law given the non-driver shocks
@@ -349,31 +480,35 @@ impl Plan {
 
     /// Number of non-driver shock cells (0 when every shock drives).
     pub fn nondriver_count(&self) -> usize {
-        match &self.route {
-            Route::Kriging { .. } => 0,
-            Route::Drivers { rest, .. } => rest.len(),
-        }
+        self.rest.len()
     }
 
     /// The pins-only scenario distribution of the shocks, `ε = μ_ε + (I − U F_R) ε*` with
-    /// `ε* ~ N(0, I)`: every shock free, `U = F_R⁺`; with drivers, `U = E_J F_RJ⁺`; and
-    /// `μ_ε = U r̃` (ALGORITHMS §5.2–5.3).
+    /// `ε* ~ N(0, I)`: `U = E_J F_RJ⁺` (every shock free: `U = F_R⁺`) and `μ_ε = U r̃`
+    /// (ALGORITHMS §5.2–5.3). `F_RJ⁺ = Q_1 R_RR⁻ᵀ` from the plan's factor.
     pub fn pin_shock_law(&self, theta: &Theta) -> Result<ShockLaw, ForecastError> {
         let big_n = theta.len();
         let m = self.pin_count();
-        let (fr, cells) = match &self.route {
-            Route::Kriging { .. } => (shock_rows(theta, &self.rows.pins), (0..big_n).collect()),
-            Route::Drivers { f, cells, .. } => (f.rows(0, m).into_owned(), cells.clone()),
-        };
-        let gain = pinv(&columns(&fr, &cells))?;
+        let f = &self.factor;
+        let q1 = f.q.columns(0, m).into_owned();
+        let pinv = f.rr_solve(m, &q1.transpose()).transpose();
+        if pinv.iter().any(|x| !x.is_finite()) {
+            return Err(ForecastError::Singular("the pins' shock map F_R".into()));
+        }
         let mut u = DMatrix::zeros(big_n, m);
-        for (k, &c) in cells.iter().enumerate() {
-            u.set_row(c, &gain.row(k));
+        for k in 0..big_n.min(pinv.nrows()) {
+            let c = self
+                .cells
+                .as_ref()
+                .map_or(Some(k), |cells| cells.get(k).copied());
+            if let Some(c) = c {
+                u.set_row(c, &pinv.row(k));
+            }
         }
         Ok(ShockLaw {
             mean: &u * &self.rtilde,
             gain: u,
-            rows: fr,
+            rows: self.shock_rows.columns(0, m).transpose(),
         })
     }
 
@@ -386,53 +521,14 @@ impl Plan {
             return None;
         }
         let big_n = theta.len();
-        let mean = DVector::from_column_slice(&theta.mean);
-        let shocks = |e: &DMatrix<f64>| {
-            let mut out = DMatrix::zeros(big_n, e.ncols());
-            for c in 0..e.ncols() {
-                let col: Vec<f64> = e.column(c).iter().copied().collect();
-                let path = DVector::from_vec(theta.path_from_shocks(&col)) - &mean;
-                out.set_column(c, &path);
-            }
-            out
-        };
         let law = self.pin_shock_law(theta).ok()?;
-        let shock_mean = law.mean;
-        let ma = shocks(&(DMatrix::identity(big_n, big_n) - law.gain * law.rows));
-        let path_mean =
-            &mean + shocks(&DMatrix::from_column_slice(big_n, 1, shock_mean.as_slice()));
-        Some((
-            DVector::from_column_slice(path_mean.as_slice()),
-            &ma * ma.transpose(),
-        ))
+        let mut ma = DMatrix::identity(big_n, big_n) - &law.gain * &law.rows;
+        theta.shocks_to_paths(&mut ma);
+        let mut shift = DMatrix::from_column_slice(big_n, 1, law.mean.as_slice());
+        theta.shocks_to_paths(&mut shift);
+        let mean = DVector::from_column_slice(&theta.mean) + shift.column(0);
+        Some((mean, &ma * ma.transpose()))
     }
-}
-
-/// `W = K⁻¹ 𝒢' Γ⁻¹` and `Γ = 𝒢 K⁻¹ 𝒢'` (band solves, then a Cholesky of `Γ`).
-fn kriging_gain(
-    theta: &Theta,
-    g: &DMatrix<f64>,
-    labels: &[String],
-    draw: Option<usize>,
-) -> Result<(DMatrix<f64>, DMatrix<f64>), ForecastError> {
-    let (k, big_n) = g.shape();
-    let mut v = DMatrix::zeros(big_n, k);
-    for i in 0..k {
-        let mut col: Vec<f64> = g.row(i).iter().copied().collect();
-        theta.precision.solve_in_place(&mut col);
-        v.set_column(i, &DVector::from_vec(col));
-    }
-    let gamma = g * &v;
-    well_conditioned(&gamma, labels, draw)?;
-    let chol = gamma
-        .clone()
-        .cholesky()
-        .ok_or_else(|| ForecastError::NearlyDependent {
-            conditions: labels.to_vec(),
-            draw,
-        })?;
-    // W' = Γ⁻¹ V'.
-    Ok((chol.solve(&v.transpose()).transpose(), gamma))
 }
 
 /// Conditions whose Gram matrix `Γ`, scaled to a unit diagonal, has a condition number above
@@ -440,33 +536,22 @@ fn kriging_gain(
 /// `1e−16 × cond` (ALGORITHMS §4.5, §9.1 item 7).
 const NEARLY_DEPENDENT: f64 = 1e12;
 
-/// Refuse nearly dependent conditions, naming those in the direction `Γ` nearly loses.
+/// Refuse nearly dependent conditions, naming those in the direction `Γ` nearly loses. The
+/// scaled `Γ = D R'R D` has condition `cond(R D)²`, screened first by [`condition_bound`].
 fn well_conditioned(
-    gamma: &DMatrix<f64>,
+    factor: &Factor,
     labels: &[String],
     draw: Option<usize>,
 ) -> Result<(), ForecastError> {
-    let k = gamma.nrows();
-    if k < 2 {
+    if condition_bound(&factor.scaled()).powi(2) <= NEARLY_DEPENDENT {
         return Ok(());
     }
-    let d: Vec<f64> = (0..k)
-        .map(|i| 1.0 / gamma[(i, i)].max(f64::MIN_POSITIVE).sqrt())
-        .collect();
-    let scaled = DMatrix::from_fn(k, k, |i, j| d[i] * gamma[(i, j)] * d[j]);
-    let eig = nalgebra::SymmetricEigen::new(scaled);
-    let (lo_at, lo) = eig.eigenvalues.argmin();
-    let hi = eig.eigenvalues.max();
-    if lo > 0.0 && hi / lo <= NEARLY_DEPENDENT {
+    let (cond, involved) = factor.scaled_condition();
+    if cond <= NEARLY_DEPENDENT {
         return Ok(());
     }
-    let v = eig.eigenvectors.column(lo_at);
-    let top = v.amax();
     Err(ForecastError::NearlyDependent {
-        conditions: (0..k)
-            .filter(|&i| v[i].abs() > 1e-3 * top)
-            .map(|i| labels[i].clone())
-            .collect(),
+        conditions: involved.iter().map(|&i| labels[i].clone()).collect(),
         draw,
     })
 }
@@ -480,29 +565,4 @@ fn law_rows(rows: &Rows) -> LawRows {
         labels: rows.corridor_labels.clone(),
         names: rows.corridor_names.clone(),
     }
-}
-
-/// The corridor law with every shock free, from `Γ`: mean `Sμ + Γ_SR Γ_RR⁻¹ r̃`, covariance
-/// `Γ_SS − Γ_SR Γ_RR⁻¹ Γ_RS` (ALGORITHMS §6.1).
-fn model_law(
-    gamma: &DMatrix<f64>,
-    m: usize,
-    rtilde: &DVector<f64>,
-    smean: &DVector<f64>,
-    rows: &Rows,
-) -> Result<CorridorLaw, ForecastError> {
-    let q = gamma.nrows() - m;
-    let gss = gamma.view((m, m), (q, q)).into_owned();
-    let gsr = gamma.view((m, 0), (q, m)).into_owned();
-    let (mean, cov) = if m == 0 {
-        (smean.clone(), gss)
-    } else {
-        let grr = gamma.view((0, 0), (m, m)).into_owned();
-        let chol = grr.cholesky().ok_or(ForecastError::Singular(
-            "the pin Gram matrix G = R K⁻¹ R'".into(),
-        ))?;
-        let solved = chol.solve(&gsr.transpose()); // Γ_RR⁻¹ Γ_RS
-        (smean + solved.transpose() * rtilde, gss - &gsr * solved)
-    };
-    CorridorLaw::new(cov, mean, None, law_rows(rows))
 }

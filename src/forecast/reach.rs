@@ -6,8 +6,11 @@
 //! Rubio-Ramírez 2021; ALGORITHMS §5.3–5.4). A left null vector `v` (`v'F_J = 0`) names a
 //! combination of conditions the drivers cannot move: it moves only with shocks that keep
 //! their usual distribution (the rows are independent and `M` is invertible, so `v'F ≠ 0`).
-//! Rank is read off the singular values of `F_J` against a `σ_max · max(rows, cols) · 1e−12`
-//! threshold (numerical-rank practice, Golub and Van Loan).
+//!
+//! The check works on the triangular factor of the thin QR `F_J' = Q R`: `F_J = R'Q'` has the
+//! singular values of `R`, and its left null vectors are the right null vectors of `R`. Rank is
+//! read off them against a `σ_max · max(rows, cols) · 1e−12` threshold (numerical-rank
+//! practice, Golub and Van Loan).
 
 use nalgebra::{DMatrix, SVD};
 
@@ -16,29 +19,29 @@ const RANK_RTOL: f64 = 1e-12;
 /// A null-vector entry above this share of the largest marks its condition as involved.
 const INVOLVED: f64 = 1e-3;
 
-/// Check `rank(F_J) = rows`; on failure return the rows involved (indices).
-pub fn check(f: &DMatrix<f64>, drivers: &[bool]) -> Result<(), Vec<usize>> {
-    let rows = f.nrows();
+/// Check that `F_J` (factor `r`, k × k, from `width = max(|J|, k)` columns) has full row rank;
+/// on failure return the rows involved (indices).
+pub fn check(r: &DMatrix<f64>, width: usize) -> Result<(), Vec<usize>> {
+    let rows = r.ncols();
     if rows == 0 {
         return Ok(());
     }
-    let cols: Vec<usize> = (0..f.ncols()).filter(|&c| drivers[c]).collect();
-    let width = cols.len().max(rows);
-    let mut fj = DMatrix::zeros(rows, width);
-    for (k, &c) in cols.iter().enumerate() {
-        fj.set_column(k, &f.column(c));
+    let tol = RANK_RTOL * width as f64;
+    // σ_min/σ_max ≥ 1/bound: clearly of full rank without a singular value decomposition.
+    if super::plan::condition_bound(r) * tol < 1.0 {
+        return Ok(());
     }
-    let svd = SVD::new(fj, true, false);
-    let Some(u) = svd.u else {
+    let svd = SVD::new(r.clone(), false, true);
+    let Some(vt) = svd.v_t else {
         return Err((0..rows).collect());
     };
     let smax = svd.singular_values.amax();
-    let tol = RANK_RTOL * smax.max(f64::MIN_POSITIVE) * width as f64;
+    let tol = tol * smax.max(f64::MIN_POSITIVE);
     for (k, s) in svd.singular_values.iter().enumerate() {
         if *s > tol && smax > 0.0 {
             continue;
         }
-        let v = u.column(k);
+        let v = vt.row(k);
         return Err((0..rows)
             .filter(|&i| v[i].abs() > INVOLVED * v.amax())
             .collect());

@@ -3,7 +3,8 @@
 //!
 //! Every row is scaled to unit Euclidean norm (values and bounds alike). Rows are examined
 //! in order — pins, then corridor rows — against the span of the rows kept so far
-//! (classical Gram–Schmidt, applied twice):
+//! (classical Gram–Schmidt, applied twice; a dependent row's coefficients on the kept rows by
+//! back substitution in the Gram–Schmidt triangle):
 //!
 //! - a pin in the span of earlier pins is *redundant* when its value agrees with the value
 //!   they imply (it is dropped, with a note) and *contradictory* otherwise;
@@ -92,7 +93,7 @@ fn raw(
     (lower, upper): (f64, f64),
     label: String,
     name: &str,
-) -> Raw {
+) -> Result<Raw, ForecastError> {
     let mut row = DVector::zeros(theta.len());
     let offset = match target {
         Target::Path { terms } => {
@@ -102,7 +103,7 @@ fn raw(
             0.0
         }
         Target::Shock { horizon, shock } => {
-            let terms = theta.shock_row(*horizon, *shock);
+            let terms = theta.shock_row(*horizon, *shock)?;
             for &(c, a) in &terms {
                 row[c] += a;
             }
@@ -111,49 +112,59 @@ fn raw(
     };
     let norm = row.norm();
     let scale = if norm > 0.0 { 1.0 / norm } else { 1.0 };
-    Raw {
+    Ok(Raw {
         row: row * scale,
         norm,
         name: name.to_string(),
         lower: (lower + offset) * scale,
         upper: (upper + offset) * scale,
         label,
-    }
+    })
 }
 
-/// Orthonormal basis of the kept rows, and the kept rows themselves.
+/// Orthonormal basis `q_1 …` of the kept rows and the triangle `T` with
+/// `kept_j = Σ_{i≤j} T_ij q_i` (classical Gram–Schmidt, applied twice).
 struct Span {
     basis: Vec<DVector<f64>>,
-    kept: Vec<DVector<f64>>,
+    /// Column `j` of `T` (entries `0 ..= j`).
+    triangle: Vec<Vec<f64>>,
 }
 
 impl Span {
-    /// Distance of `row` from the span (classical Gram–Schmidt, twice) and the residual.
-    fn residual(&self, row: &DVector<f64>) -> DVector<f64> {
+    /// The residual of `row` from the span and its coordinates on the basis.
+    fn project(&self, row: &DVector<f64>) -> (DVector<f64>, Vec<f64>) {
         let mut r = row.clone();
+        let mut coords = vec![0.0; self.basis.len()];
         for _ in 0..2 {
-            for q in &self.basis {
-                r -= q * q.dot(&r);
+            for (c, q) in coords.iter_mut().zip(&self.basis) {
+                let d = q.dot(&r);
+                r -= q * d;
+                *c += d;
             }
         }
-        r
+        (r, coords)
     }
 
-    /// Add `row` if it is independent; otherwise return its coefficients on the kept rows.
+    /// Add `row` if it is independent; otherwise return its coefficients on the kept rows
+    /// (`T c = Q'row`, by back substitution).
     fn add(&mut self, row: &DVector<f64>) -> Option<DVector<f64>> {
-        let r = self.residual(row);
+        let (r, mut coords) = self.project(row);
         let norm = r.norm();
         if norm > DEPENDENT {
+            coords.push(norm);
             self.basis.push(r / norm);
-            self.kept.push(row.clone());
+            self.triangle.push(coords);
             return None;
         }
-        let k = self.kept.len();
-        let a = DMatrix::from_fn(row.len(), k, |i, j| self.kept[j][i]);
-        let coef = a
-            .svd(true, true)
-            .solve(row, 0.0)
-            .unwrap_or_else(|_| DVector::zeros(k));
+        let k = self.basis.len();
+        let mut coef = DVector::zeros(k);
+        for j in (0..k).rev() {
+            let mut v = coords[j];
+            for l in j + 1..k {
+                v -= self.triangle[l][j] * coef[l];
+            }
+            coef[j] = v / self.triangle[j][j];
+        }
         Some(coef)
     }
 }
@@ -186,7 +197,7 @@ impl Rows {
                     &p.label,
                 )
             })
-            .collect();
+            .collect::<Result<_, _>>()?;
         let mut corridor_raw = Vec::new();
         let mut notes = Vec::new();
         for c in &cond.corridors {
@@ -214,7 +225,7 @@ impl Rows {
                     (b.lower, b.upper),
                     c.row_label(k),
                     &c.label,
-                ));
+                )?);
             }
         }
         let every_pin = stack(&pins, big_n, |r| (r.lower, r.lower));
@@ -222,7 +233,7 @@ impl Rows {
 
         let mut span = Span {
             basis: Vec::new(),
-            kept: Vec::new(),
+            triangle: Vec::new(),
         };
         let mut kept_pins: Vec<Raw> = Vec::new();
         for p in pins {

@@ -6,31 +6,38 @@
 //! block-triangular (blocks `−B_j` at lag `j ≤ p`) and `c_t = b0 + Σ_{j≥t} B_j y_{T+t−j}`.
 //! - mean `μ = H⁻¹ c` by the forward recursion `μ_t = b0 + Σ_j B_j μ_{t−j}` (data for `t ≤ 0`);
 //! - structural shocks `u_t = L ε_t`, `L = P'·chol(P Σ P')·P` for the recursive ordering `π`
-//!   (shocks indexed like the series they are labelled by), so `y = μ + M ε`, `M = H⁻¹(I ⊗ L)`;
-//! - precision `K = H'(I_h ⊗ Σ⁻¹)H`, symmetric banded with half-bandwidth `(p+1) n − 1`,
-//!   factored `K = P P'` by the project's band Cholesky; unconditional draws by the
-//!   precision sampler `y = μ + P⁻ᵀ z` (Rue 2001; Chan and Jeliazkov 2009).
+//!   (shocks indexed like the series they are labelled by), so `y = μ + M ε` with
+//!   `M = H⁻¹(I ⊗ L)`: simulating the VAR forward from its shocks;
+//! - the precision `K = H'(I ⊗ Σ⁻¹)H = G'G` has the exact triangular factor
+//!   `G = M⁻¹ = (I ⊗ L⁻¹)H`, which needs no factorisation: `K⁻¹v = M M'v`, with `M'v` the
+//!   backward recursion `x_t = v_t + Σ_j B_j' x_{t+j}` followed by `L'` (ALGORITHMS §3.6–3.7).
+//!   `K` itself is never formed, so nothing squares the conditioning of `H`.
+//!
+//! Every product with `M` or `M'` runs block by block on an `N × k` matrix of `k` vectors at
+//! once (one matrix product per lag and period), so many right-hand sides cost little more
+//! than one.
+//!
+//! Kept per draw: `b0`, `B_1 … B_p`, `L` and `μ` (about 70 kB at 40 series, 4 lags and 20
+//! periods): what an edit of the conditions needs.
 
 use nalgebra::{DMatrix, DVector};
 use rand::Rng;
 use rand_distr::{Distribution, StandardNormal};
 
 use super::ForecastError;
-use crate::banded::{BandCholesky, SymBand};
 use crate::model::Params;
 
-/// θ-level cache: parameters, identification and the factored precision.
+/// θ-level cache: coefficients, identification and the unconditional mean.
 #[derive(Debug, Clone)]
 pub struct Theta {
-    pub params: Params,
+    /// Intercept `b0` (n).
+    pub intercept: DVector<f64>,
+    /// `lags[j−1] = B_j` (n×n).
+    pub lags: Vec<DMatrix<f64>>,
     /// Impact matrix `L` (`L L' = Σ`), column `j` = shock labelled by series `j`.
     pub impact: DMatrix<f64>,
-    /// `L⁻¹`.
-    pub impact_inv: DMatrix<f64>,
     /// Unconditional mean `μ` (N).
     pub mean: Vec<f64>,
-    /// Band Cholesky factor of the precision `K`.
-    pub precision: BandCholesky,
     pub h: usize,
 }
 
@@ -44,26 +51,22 @@ impl Theta {
         h: usize,
     ) -> Result<Theta, ForecastError> {
         let impact = recursive_impact(&params.sigma, ordering)?;
-        let impact_inv = impact
-            .clone()
-            .try_inverse()
-            .ok_or(ForecastError::Singular("the impact matrix L".into()))?;
         let mean = mean_path(&params, tail, h);
-        let band = precision_band(&params, h)?;
-        let precision = BandCholesky::factor(&band)
-            .map_err(|e| ForecastError::Singular(format!("the forecast precision K ({e})")))?;
         Ok(Theta {
-            params,
+            intercept: params.intercept,
+            lags: params.lags,
             impact,
-            impact_inv,
             mean,
-            precision,
             h,
         })
     }
 
     pub fn n(&self) -> usize {
-        self.params.n()
+        self.intercept.len()
+    }
+
+    pub fn p(&self) -> usize {
+        self.lags.len()
     }
 
     pub fn len(&self) -> usize {
@@ -74,111 +77,140 @@ impl Theta {
         self.h == 0
     }
 
-    /// `d = H⁻¹ u` in place: `d_t = u_t + Σ_{j=1}^{min(p,t−1)} B_j d_{t−j}`.
-    pub fn h_inverse_in_place(&self, d: &mut [f64]) {
+    /// `Σ = L L'`.
+    pub fn sigma(&self) -> DMatrix<f64> {
+        &self.impact * self.impact.transpose()
+    }
+
+    /// `L⁻¹` (L is triangular up to the ordering's permutation, so this is exact to rounding).
+    pub fn impact_inverse(&self) -> Result<DMatrix<f64>, ForecastError> {
+        self.impact
+            .clone()
+            .try_inverse()
+            .ok_or(ForecastError::Singular("the impact matrix L".into()))
+    }
+
+    /// `X ← H⁻¹ X` for `N × k` blocks: `x_t += Σ_{j=1}^{min(p,t−1)} B_j x_{t−j}`, `t = 1 … h`.
+    pub fn forward_in_place(&self, x: &mut DMatrix<f64>) {
         let n = self.n();
-        for t in 0..self.h {
-            for (j, b) in self.params.lags.iter().enumerate() {
+        for t in 1..self.h {
+            for (j, b) in self.lags.iter().enumerate() {
                 let Some(s) = t.checked_sub(j + 1) else { break };
-                let (past, now) = d.split_at_mut(t * n);
-                let dp = &past[s * n..(s + 1) * n];
-                for i in 0..n {
-                    now[i] += (0..n).map(|c| b[(i, c)] * dp[c]).sum::<f64>();
-                }
+                let (mut now, past) = x.rows_range_pair_mut(t * n..(t + 1) * n, s * n..(s + 1) * n);
+                now.gemm(1.0, b, &past, 1.0);
             }
         }
     }
 
-    /// `x = H⁻ᵀ v` in place: `x_t = v_t + Σ_{j=1}^{min(p,h−t)} B_j' x_{t+j}`, `t = h … 1`.
-    pub fn h_inverse_transpose_in_place(&self, x: &mut [f64]) {
+    /// `X ← H⁻ᵀ X` for `N × k` blocks: `x_t += Σ_{j=1}^{min(p,h−t)} B_j' x_{t+j}`, `t = h … 1`.
+    pub fn backward_in_place(&self, x: &mut DMatrix<f64>) {
         let n = self.n();
-        for t in (0..self.h).rev() {
-            for (j, b) in self.params.lags.iter().enumerate() {
+        for t in (0..self.h.saturating_sub(1)).rev() {
+            for (j, b) in self.lags.iter().enumerate() {
                 let s = t + j + 1;
                 if s >= self.h {
                     break;
                 }
-                let (now, future) = x.split_at_mut((t + 1) * n);
-                let xf = &future[(s - t - 1) * n..(s - t) * n];
-                let xt = &mut now[t * n..];
-                for c in 0..n {
-                    xt[c] += (0..n).map(|i| b[(i, c)] * xf[i]).sum::<f64>();
-                }
+                let (mut now, future) =
+                    x.rows_range_pair_mut(t * n..(t + 1) * n, s * n..(s + 1) * n);
+                now.gemm_tr(1.0, b, &future, 1.0);
             }
         }
+    }
+
+    /// `X ← (I ⊗ A) X` block by block, for `A = L` or `L'`.
+    fn each_period(&self, x: &mut DMatrix<f64>, transpose: bool) {
+        let n = self.n();
+        let mut tmp = DMatrix::zeros(n, x.ncols());
+        for t in 0..self.h {
+            let block = x.rows(t * n, n);
+            if transpose {
+                tmp.gemm_tr(1.0, &self.impact, &block, 0.0);
+            } else {
+                tmp.gemm(1.0, &self.impact, &block, 0.0);
+            }
+            x.rows_mut(t * n, n).copy_from(&tmp);
+        }
+    }
+
+    /// `E ← M E` (paths' departures from the mean made by the shocks in each column).
+    pub fn shocks_to_paths(&self, e: &mut DMatrix<f64>) {
+        self.each_period(e, false);
+        self.forward_in_place(e);
+    }
+
+    /// `V ← M' V = (I ⊗ L') H⁻ᵀ V`.
+    pub fn adjoint_in_place(&self, v: &mut DMatrix<f64>) {
+        self.backward_in_place(v);
+        self.each_period(v, true);
+    }
+
+    /// `V ← K⁻¹ V = M M' V`: the unconditional forecast covariance times `V`.
+    pub fn covariance_in_place(&self, v: &mut DMatrix<f64>) {
+        self.adjoint_in_place(v);
+        self.shocks_to_paths(v);
     }
 
     /// Path from shocks: `y = μ + M ε`.
     pub fn path_from_shocks(&self, eps: &[f64]) -> Vec<f64> {
-        let n = self.n();
-        let mut d = vec![0.0; self.len()];
-        for t in 0..self.h {
-            let e = DVector::from_column_slice(&eps[t * n..(t + 1) * n]);
-            let u = &self.impact * e;
-            d[t * n..(t + 1) * n].copy_from_slice(u.as_slice());
-        }
-        self.h_inverse_in_place(&mut d);
-        for (di, m) in d.iter_mut().zip(&self.mean) {
-            *di += m;
-        }
-        d
+        let mut d = DMatrix::from_column_slice(eps.len(), 1, eps);
+        self.shocks_to_paths(&mut d);
+        d.iter().zip(&self.mean).map(|(di, m)| di + m).collect()
     }
 
-    /// `M' v = (I ⊗ L') H⁻ᵀ v`.
+    /// `M' v`.
     pub fn shock_map_transpose(&self, v: &[f64]) -> Vec<f64> {
-        let n = self.n();
-        let mut x = v.to_vec();
-        self.h_inverse_transpose_in_place(&mut x);
-        let lt = self.impact.transpose();
-        let mut out = vec![0.0; x.len()];
-        for t in 0..self.h {
-            let seg = DVector::from_column_slice(&x[t * n..(t + 1) * n]);
-            out[t * n..(t + 1) * n].copy_from_slice((&lt * seg).as_slice());
-        }
-        out
+        let mut x = DMatrix::from_column_slice(v.len(), 1, v);
+        self.adjoint_in_place(&mut x);
+        x.as_slice().to_vec()
     }
 
-    /// Structural shocks of a path: `ε_t = L⁻¹ (d_t − Σ_j B_j d_{t−j})`, `d = y − μ`.
-    pub fn shocks_from_path(&self, y: &[f64]) -> Vec<f64> {
-        let n = self.n();
-        let d: Vec<f64> = y.iter().zip(&self.mean).map(|(a, b)| a - b).collect();
-        let mut eps = vec![0.0; d.len()];
+    /// Structural shocks of paths: `ε_t = L⁻¹ (d_t − Σ_j B_j d_{t−j})`, `d = y − μ`.
+    pub fn shocks_from_paths(&self, ys: &[Vec<f64>]) -> Result<Vec<Vec<f64>>, ForecastError> {
+        let (n, big_n) = (self.n(), self.len());
+        let linv = self.impact_inverse()?;
+        let d = DMatrix::from_fn(big_n, ys.len(), |r, c| ys[c][r] - self.mean[r]);
+        let mut eps = d.clone();
         for t in 0..self.h {
-            let mut u = DVector::from_column_slice(&d[t * n..(t + 1) * n]);
-            for (j, b) in self.params.lags.iter().enumerate() {
+            let mut u = d.rows(t * n, n).into_owned();
+            for (j, b) in self.lags.iter().enumerate() {
                 let Some(s) = t.checked_sub(j + 1) else { break };
-                u -= b * DVector::from_column_slice(&d[s * n..(s + 1) * n]);
+                u.gemm(-1.0, b, &d.rows(s * n, n), 1.0);
             }
-            eps[t * n..(t + 1) * n].copy_from_slice((&self.impact_inv * u).as_slice());
+            eps.rows_mut(t * n, n).copy_from(&(&linv * u));
         }
-        eps
+        Ok(eps
+            .column_iter()
+            .map(|c| c.iter().copied().collect())
+            .collect())
     }
 
     /// The path row of a shock cell: `ρ' = e'(I ⊗ L⁻¹) H`, so that `ε_{j,t} = ρ'(y − μ)`.
     /// Returned sparse over future cells (blocks `t−p … t`).
-    pub fn shock_row(&self, horizon: usize, shock: usize) -> Vec<(usize, f64)> {
+    pub fn shock_row(
+        &self,
+        horizon: usize,
+        shock: usize,
+    ) -> Result<Vec<(usize, f64)>, ForecastError> {
         let n = self.n();
         let t = horizon - 1;
-        let linv = self.impact_inv.row(shock);
+        let linv = self.impact_inverse()?;
+        let linv = linv.row(shock);
         let mut terms: Vec<(usize, f64)> = (0..n).map(|c| (t * n + c, linv[c])).collect();
-        for (j, b) in self.params.lags.iter().enumerate() {
+        for (j, b) in self.lags.iter().enumerate() {
             let Some(s) = t.checked_sub(j + 1) else { break };
             let coef = linv * b;
             terms.extend((0..n).map(|c| (s * n + c, -coef[c])));
         }
-        terms
+        Ok(terms)
     }
 
-    /// One unconditional path by the precision sampler.
+    /// One unconditional path, `y = μ + M ε` with `ε ~ N(0, I)`: the VAR simulated forward.
     pub fn sample_unconditional<R: Rng + ?Sized>(&self, rng: &mut R) -> Vec<f64> {
-        let mut z: Vec<f64> = (0..self.len())
+        let eps: Vec<f64> = (0..self.len())
             .map(|_| StandardNormal.sample(rng))
             .collect();
-        self.precision.solve_upper_in_place(&mut z);
-        for (zi, m) in z.iter_mut().zip(&self.mean) {
-            *zi += m;
-        }
-        z
+        self.path_from_shocks(&eps)
     }
 }
 
@@ -218,40 +250,6 @@ fn mean_path(params: &Params, tail: &[Vec<f64>], h: usize) -> Vec<f64> {
         .collect()
 }
 
-/// Assemble `K = H'(I_h ⊗ Σ⁻¹)H` in band storage: block `(t, s)` (`t ≥ s`) collects
-/// `A_{r−t}' Σ⁻¹ A_{r−s}` over block rows `r`, with `A_0 = I`, `A_j = −B_j`.
-fn precision_band(params: &Params, h: usize) -> Result<SymBand, ForecastError> {
-    let (n, p) = (params.n(), params.p());
-    let sigma_inv = params
-        .sigma
-        .clone()
-        .cholesky()
-        .ok_or(ForecastError::Singular("the residual covariance Σ".into()))?
-        .inverse();
-    let mut a = vec![DMatrix::identity(n, n)];
-    a.extend(params.lags.iter().map(|b| -b));
-    let q: Vec<DMatrix<f64>> = a.iter().map(|ai| &sigma_inv * ai).collect();
-    let big_n = n * h;
-    let bw = ((p + 1) * n - 1).min(big_n.saturating_sub(1));
-    let mut band = SymBand::zeros(big_n, bw);
-    for r in 0..h {
-        for (j1, q1) in q.iter().enumerate().take(p.min(r) + 1) {
-            for (j2, a2) in a.iter().enumerate().take(j1 + 1) {
-                // block (t, s) with t = r − j2 ≥ s = r − j1: A_{j2}' Σ⁻¹ A_{j1}.
-                let (t, s) = (r - j2, r - j1);
-                let block = a2.transpose() * q1;
-                for i in 0..n {
-                    let cols = if t == s { i + 1 } else { n };
-                    for c in 0..cols {
-                        band.add(t * n + i, s * n + c, block[(i, c)]);
-                    }
-                }
-            }
-        }
-    }
-    Ok(band)
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -275,16 +273,10 @@ mod tests {
         }
     }
 
-    /// Dense `M` from unit shocks, and dense `H`.
+    /// Dense `M` from unit shocks.
     fn dense_m(theta: &Theta) -> DMatrix<f64> {
-        let big_n = theta.len();
-        let mean = DVector::from_column_slice(&theta.mean);
-        let mut m = DMatrix::zeros(big_n, big_n);
-        for c in 0..big_n {
-            let mut e = vec![0.0; big_n];
-            e[c] = 1.0;
-            m.set_column(c, &(DVector::from_vec(theta.path_from_shocks(&e)) - &mean));
-        }
+        let mut m = DMatrix::identity(theta.len(), theta.len());
+        theta.shocks_to_paths(&mut m);
         m
     }
 
@@ -302,9 +294,10 @@ mod tests {
         hm
     }
 
-    /// Identities of ALGORITHMS §3: band `K = H'(I ⊗ Σ⁻¹)H` equals the dense product;
-    /// `M = H⁻¹(I ⊗ L)` so `M M' = K⁻¹`; `L L' = Σ`; the recursions agree with dense `M'`,
-    /// and shocks recovered from a path are the shocks that made it.
+    /// Identities of ALGORITHMS §3, against dense matrices built here from their definitions:
+    /// `M = H⁻¹(I ⊗ L)`, `G = (I ⊗ L⁻¹)H` with `G'G = K = H'(I ⊗ Σ⁻¹)H` and `M = G⁻¹`, so
+    /// `M M' = K⁻¹`; `L L' = Σ`; the block recursions agree with dense `M'` and `K⁻¹`, and
+    /// shocks recovered from a path are the shocks that made it.
     #[test]
     fn stacked_system_identities() {
         for (n, p, h, seed) in [
@@ -320,39 +313,56 @@ mod tests {
                 .collect();
             let ordering: Vec<usize> = (0..n).rev().collect();
             let theta = Theta::new(params.clone(), &ordering, &tail, h).unwrap();
-            let tol = 1e-10 * (n * h) as f64;
-            assert!((&theta.impact * theta.impact.transpose() - &params.sigma).amax() < tol);
+            let big_n = n * h;
+            let tol = 1e-10 * big_n as f64;
+            assert!((theta.sigma() - &params.sigma).amax() < tol);
             let hm = dense_h(&params, h);
             let sigma_inv = params.sigma.clone().try_inverse().unwrap();
-            let mut block = DMatrix::zeros(n * h, n * h);
+            let linv = theta.impact_inverse().unwrap();
+            let mut block = DMatrix::zeros(big_n, big_n);
+            let mut block_linv = DMatrix::zeros(big_n, big_n);
+            let mut block_l = DMatrix::zeros(big_n, big_n);
             for t in 0..h {
                 block.view_mut((t * n, t * n), (n, n)).copy_from(&sigma_inv);
+                block_linv.view_mut((t * n, t * n), (n, n)).copy_from(&linv);
+                block_l
+                    .view_mut((t * n, t * n), (n, n))
+                    .copy_from(&theta.impact);
             }
             let k = hm.transpose() * block * &hm;
-            let kb = theta.precision.to_dense_lower();
-            let k_from_factor = &kb * kb.transpose();
-            assert!(
-                (&k_from_factor - &k).amax() < tol * k.amax(),
-                "K (n={n}, p={p}, h={h})"
-            );
+            let g = &block_linv * &hm;
+            assert!((g.transpose() * &g - &k).amax() < tol * k.amax(), "G'G = K");
             let m = dense_m(&theta);
+            let m_def = hm.clone().try_inverse().unwrap() * &block_l;
+            assert!((&m - &m_def).amax() < tol * m_def.amax(), "M = H⁻¹(I ⊗ L)");
+            assert!(
+                (&g * &m - DMatrix::identity(big_n, big_n)).amax() < tol,
+                "G M = I"
+            );
             let kinv = k.clone().try_inverse().unwrap();
             assert!(
                 (&m * m.transpose() - &kinv).amax() < tol * kinv.amax(),
                 "M M' = K⁻¹"
             );
-            let v: Vec<f64> = (0..n * h).map(|i| (i as f64 * 0.37).sin()).collect();
-            let mt = m.transpose() * DVector::from_column_slice(&v);
-            let got = DVector::from_vec(theta.shock_map_transpose(&v));
+            let v = DMatrix::from_fn(big_n, 3, |i, c| ((i + 7 * c) as f64 * 0.37).sin());
+            let mut kv = v.clone();
+            theta.covariance_in_place(&mut kv);
+            assert!(
+                (&kv - &kinv * &v).amax() < tol * (1.0 + kinv.amax()),
+                "K⁻¹ V"
+            );
+            let col: Vec<f64> = v.column(0).iter().copied().collect();
+            let mt = m.transpose() * DVector::from_column_slice(&col);
+            let got = DVector::from_vec(theta.shock_map_transpose(&col));
             assert!((got - mt).amax() < tol * (1.0 + m.amax()), "M' v");
-            let eps: Vec<f64> = (0..n * h).map(|i| (i as f64 * 0.91).cos()).collect();
-            let back = theta.shocks_from_path(&theta.path_from_shocks(&eps));
-            assert!(back.iter().zip(&eps).all(|(a, b)| (a - b).abs() < tol));
-            // Shock rows: ε_{j,t} = ρ'(y − μ) for every cell.
+            let eps: Vec<f64> = (0..big_n).map(|i| (i as f64 * 0.91).cos()).collect();
             let y = theta.path_from_shocks(&eps);
+            let back = theta.shocks_from_paths(std::slice::from_ref(&y)).unwrap();
+            assert!(back[0].iter().zip(&eps).all(|(a, b)| (a - b).abs() < tol));
+            // Shock rows: ε_{j,t} = ρ'(y − μ) for every cell.
             for t in 1..=h {
                 for j in 0..n {
-                    let row = theta.shock_row(t, j);
+                    let row = theta.shock_row(t, j).unwrap();
                     let val: f64 = row.iter().map(|(c, a)| a * (y[*c] - theta.mean[*c])).sum();
                     assert!((val - eps[(t - 1) * n + j]).abs() < tol);
                 }

@@ -9,8 +9,8 @@ pub mod units;
 use std::path::{Path, PathBuf};
 
 pub use schema::{
-    Bound, Centre, CheckSettings, CorridorSpec, FixedSpec, ModelSpec, PinSpec, ScenarioFile,
-    SeriesSpec, Units,
+    Bound, Centre, CheckSettings, CorridorSpec, FixedSpec, LargestRoot, ModelSpec, PinSpec,
+    ScenarioFile, SeriesSpec, Units,
 };
 pub use setup::Setup;
 

@@ -69,6 +69,33 @@ pub struct ScenarioFile {
     /// weights); off by default.
     #[serde(default, skip_serializing_if = "std::ops::Not::not")]
     pub reweight: bool,
+    /// Which posterior draws to keep by their largest companion root.
+    #[serde(default, skip_serializing_if = "LargestRoot::is_keep")]
+    pub largest_root: LargestRoot,
+}
+
+/// The stationarity filter on posterior draws.
+#[derive(Debug, Clone, Copy, PartialEq, Default, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum LargestRoot {
+    /// Keep every draw (level series have unit roots on purpose).
+    #[default]
+    Keep,
+    /// Keep only draws whose largest root has modulus below this bound (common practice: 1).
+    Below(f64),
+}
+
+impl LargestRoot {
+    pub fn is_keep(&self) -> bool {
+        *self == LargestRoot::Keep
+    }
+
+    pub fn bound(self) -> Option<f64> {
+        match self {
+            LargestRoot::Keep => None,
+            LargestRoot::Below(b) => Some(b),
+        }
+    }
 }
 
 fn default_draws() -> usize {
@@ -243,6 +270,12 @@ pub struct CheckSettings {
     pub min_acceptance: f64,
     /// Most sub-scenarios a blame search may evaluate.
     pub blame_budget: usize,
+    /// A run fails when more than this share of its posterior draws (or, for fixed
+    /// coefficients, paths) cannot be conditioned; below it they are set aside and reported.
+    pub max_failed_share: f64,
+    /// With `largest_root: below(…)`: refuse when fewer than this share of the draws tried
+    /// are kept.
+    pub min_kept_share: f64,
 }
 
 impl Default for CheckSettings {
@@ -253,6 +286,8 @@ impl Default for CheckSettings {
             pin_z: 3.0,
             min_acceptance: 1e-5,
             blame_budget: 64,
+            max_failed_share: 0.05,
+            min_kept_share: 0.05,
         }
     }
 }
