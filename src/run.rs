@@ -8,9 +8,7 @@ use std::time::{Duration, Instant};
 use crate::checks::{CheckReport, Finding, Severity, check_conditions};
 use crate::forecast::{
     DrawSpec, ForecastError, ParamSource, PathSet, Plan, RootSummary, Sampling, Theta,
-    build_thetas,
-    engine::ACCEPTANCE_PROPOSALS,
-    path_weights,
+    build_thetas, path_weights,
     random::{Purpose, stream},
     sample_paths,
 };
@@ -42,6 +40,9 @@ pub enum RunError {
 
 /// Posterior draws re-checked for the drivers' rank condition (ALGORITHMS §9.1 item 6).
 pub const DRAWS_RECHECKED: usize = 40;
+/// Proposals behind each re-checked draw's acceptance estimate (more than the sampling
+/// loop's screen: here the estimate is reported).
+const RECHECK_PROPOSALS: usize = 256;
 /// Warn when the effective sample size of reweighted draws falls below this share.
 pub const LOW_ESS_SHARE: f64 = 0.1;
 
@@ -142,7 +143,7 @@ pub fn check(setup: &Setup) -> Result<CheckReport, RunError> {
                 Err(e) => return Some(e),
             };
             let mut rng = stream(setup.file.seed, Purpose::Acceptance, i as u64);
-            match plan.acceptance(&mut rng, ACCEPTANCE_PROPOSALS) {
+            match plan.acceptance(&mut rng, RECHECK_PROPOSALS) {
                 Ok(Some(a)) if a < settings.min_acceptance => Some(ForecastError::TooImprobable {
                     corridors: plan.corridor_names(),
                     acceptance: a,

@@ -55,6 +55,7 @@ impl CorridorLaw {
         mean: DVector<f64>,
         shift: Option<DMatrix<f64>>,
         rows: LawRows,
+        like: Option<&CorridorLaw>,
     ) -> Result<CorridorLaw, ForecastError> {
         let mut names: Vec<String> = Vec::new();
         for n in rows.names {
@@ -65,7 +66,12 @@ impl CorridorLaw {
         let sym = (&cov + cov.transpose()) * 0.5;
         let lo: Vec<f64> = (0..mean.len()).map(|i| rows.lower[i] - mean[i]).collect();
         let hi: Vec<f64> = (0..mean.len()).map(|i| rows.upper[i] - mean[i]).collect();
-        let base = TruncatedNormal::new(&sym, &lo, &hi)
+        // Laid out like a nearby law (the same corridors under another θ) when one is given and
+        // fits; the order only affects efficiency.
+        let base = like
+            .filter(|l| l.mean.len() == mean.len())
+            .and_then(|l| l.base.like(&sym, &lo, &hi).ok())
+            .map_or_else(|| TruncatedNormal::new(&sym, &lo, &hi), Ok)
             .map_err(|e| explain(e, &rows.labels, &names, None))?;
         Ok(CorridorLaw {
             lower: rows.lower,

@@ -17,6 +17,7 @@ use rayon::prelude::*;
 use super::{
     ForecastError,
     conditions::Conditions,
+    corridor::CorridorLaw,
     plan::Plan,
     random::{Purpose, stream},
     rows::Rows,
@@ -313,7 +314,7 @@ pub struct Sampling {
 /// Proposals behind each θ's acceptance estimate before its paths are drawn: a screen for
 /// hopeless draws, whose acceptance lies orders of magnitude below the usual 0.03–0.9, so a
 /// rough estimate serves (the check at the central parameters uses thousands).
-pub const ACCEPTANCE_PROPOSALS: usize = 32;
+pub const ACCEPTANCE_PROPOSALS: usize = 16;
 
 /// Proposals behind each θ's corridor-probability estimate when reweighting.
 pub const WEIGHT_PROPOSALS: usize = 500;
@@ -334,9 +335,23 @@ pub fn sample_paths(
         (false, Some(theta)) => Some(Rows::new(theta, cond, None)?),
         _ => None,
     };
+    // Every θ's corridor law is laid out like the first θ's (the order of its variables only
+    // affects speed): no reordering search, and a warm start for its saddle point. The first
+    // θ of the whole set, so that blocks of a streamed run draw what one run would.
+    let reference = set.thetas.first().and_then(|theta| {
+        let plan = match &shared {
+            Some(rows) => Plan::with_rows(theta, rows.clone(), cond, None, None),
+            None => Plan::new(theta, cond, None),
+        };
+        plan.ok().and_then(|p| p.law().cloned())
+    });
+    let shared = Shared {
+        rows: shared.as_ref(),
+        law: reference.as_ref(),
+    };
     let blocks = range
         .into_par_iter()
-        .map(|i| one_theta(set, i, shared.as_ref(), cond, how, cancel))
+        .map(|i| one_theta(set, i, &shared, cond, how, cancel))
         .collect::<Vec<_>>();
     let mut all = PathSet {
         fixed: set.fixed,
@@ -348,13 +363,20 @@ pub fn sample_paths(
     Ok(all)
 }
 
+/// What every θ's plan starts from: the rows (when they do not depend on θ) and a corridor
+/// law to lay its own out like.
+struct Shared<'a> {
+    rows: Option<&'a Rows>,
+    law: Option<&'a CorridorLaw>,
+}
+
 /// The paths of θ `i`: its plan, then its paths in chunks (in parallel for fixed
 /// coefficients). With parameter uncertainty, any failure sets the whole draw aside; with
 /// fixed coefficients a failing plan stops the run and a failing path is set aside.
 fn one_theta(
     set: &ThetaSet,
     i: usize,
-    shared: Option<&Rows>,
+    shared: &Shared,
     cond: &Conditions,
     how: Sampling,
     cancel: &AtomicBool,
@@ -439,15 +461,15 @@ fn one_theta(
 /// The plan of θ `i`, screened for hopeless corridors, and its log weight when reweighting.
 fn plan_for(
     theta: &Theta,
-    shared: Option<&Rows>,
+    shared: &Shared,
     cond: &Conditions,
     how: Sampling,
     i: usize,
     draw: Option<usize>,
 ) -> Result<(Plan, Option<f64>), ForecastError> {
-    let plan = match shared {
-        Some(rows) => Plan::with_rows(theta, rows.clone(), cond, draw),
-        None => Plan::new(theta, cond, draw),
+    let plan = match shared.rows {
+        Some(rows) => Plan::with_rows(theta, rows.clone(), cond, draw, shared.law),
+        None => Plan::with_rows(theta, Rows::new(theta, cond, draw)?, cond, draw, shared.law),
     }?;
     // Fail fast, naming the draw, rather than spend the path budget on a hopeless θ.
     let mut rng = stream(how.seed, Purpose::Acceptance, i as u64);

@@ -1,11 +1,13 @@
 //! The forecast engine: the stacked VAR system per parameter draw, pins and corridors on
 //! observables and on structural shocks, drivers, and the parallel sampling loop.
 //!
-//! - [`theta`]: the θ-level cache (mean path, shock map, banded precision and its factor);
+//! - [`theta`]: the θ-level cache (coefficients, impact matrix, mean path) and the
+//!   recursions for the shock map `M` and its transpose;
 //! - [`conditions`]: pins, corridors and drivers in engine form;
 //! - [`rows`]: conditions as scaled rows for one θ, with dependencies resolved;
 //! - [`polytope`]: whether dependent corridors leave room to hold together;
 //! - [`corridor`]: the truncated law of the corridor quantities;
+//! - [`factor`]: the thin QR of the conditions in shock space;
 //! - [`plan`]: conditioning one θ (kriging, or the drivers construction) and drawing paths;
 //! - [`reach`]: the rank condition for drivers;
 //! - [`engine`]: posterior draws and paths over all θ, in parallel and reproducibly;
@@ -14,6 +16,7 @@
 pub mod conditions;
 pub mod corridor;
 pub mod engine;
+pub mod factor;
 pub mod plan;
 pub mod polytope;
 pub mod random;

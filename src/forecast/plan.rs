@@ -26,7 +26,7 @@
 
 use std::sync::OnceLock;
 
-use nalgebra::{DMatrix, DVector, SVD};
+use nalgebra::{DMatrix, DVector};
 use rand::Rng;
 use rand_distr::{Distribution, StandardNormal};
 
@@ -34,6 +34,7 @@ use super::{
     ForecastError,
     conditions::Conditions,
     corridor::{CorridorLaw, LawRows},
+    factor::Factor,
     reach,
     rows::Rows,
     theta::Theta,
@@ -49,159 +50,6 @@ pub struct ShockLaw {
     pub gain: DMatrix<f64>,
     /// `F_R = R M` (m×N).
     pub rows: DMatrix<f64>,
-}
-
-/// The thin QR of `F_J'` for one set of moving cells.
-#[derive(Debug, Clone)]
-struct Factor {
-    /// `Q` (|J| × k, orthonormal columns).
-    q: DMatrix<f64>,
-    /// `R` (k × k, upper triangular).
-    r: DMatrix<f64>,
-}
-
-impl Factor {
-    /// Factor `F_J'` (the columns `cells` of `F`), padded with zero rows to at least k rows so
-    /// that too few cells show up as a rank deficiency.
-    fn new(ft: &DMatrix<f64>, cells: Option<&[usize]>) -> Factor {
-        let k = ft.ncols();
-        let fjt = match cells {
-            None if ft.nrows() >= k => ft.clone(),
-            None => ft.clone().resize_vertically(k, 0.0),
-            Some(cells) => {
-                let rows = cells.len().max(k);
-                DMatrix::from_fn(rows, k, |i, c| cells.get(i).map_or(0.0, |&j| ft[(j, c)]))
-            }
-        };
-        cholesky_qr2(&fjt).unwrap_or_else(|| {
-            let qr = fjt.qr();
-            Factor {
-                q: qr.q(),
-                r: qr.r(),
-            }
-        })
-    }
-
-    fn size(&self) -> usize {
-        self.r.nrows()
-    }
-
-    /// `R_RR⁻¹ x` for the leading `m × m` block (x: m × c).
-    fn rr_solve(&self, m: usize, x: &DMatrix<f64>) -> DMatrix<f64> {
-        let rr = self.r.view((0, 0), (m, m));
-        rr.solve_upper_triangular(x)
-            .unwrap_or_else(|| DMatrix::from_element(m, x.ncols(), f64::NAN))
-    }
-
-    /// `R_RR⁻ᵀ x` (x: m × c).
-    fn rr_solve_transpose(&self, m: usize, x: &DMatrix<f64>) -> DMatrix<f64> {
-        let rrt = self.r.view((0, 0), (m, m)).transpose();
-        rrt.solve_lower_triangular(x)
-            .unwrap_or_else(|| DMatrix::from_element(m, x.ncols(), f64::NAN))
-    }
-
-    /// `C = R_RS' R_RR⁻ᵀ` (q × m): the corridor rows' regression on the pins.
-    fn corridor_on_pins(&self, m: usize) -> DMatrix<f64> {
-        let q = self.size() - m;
-        if m == 0 {
-            return DMatrix::zeros(q, 0);
-        }
-        let rrs = self.r.view((0, m), (m, q)).into_owned();
-        // (R_RR⁻¹ R_RS)' = R_RS' R_RR⁻ᵀ.
-        self.rr_solve(m, &rrs).transpose()
-    }
-
-    /// `R_SS` (q × q).
-    fn corridor_block(&self, m: usize) -> DMatrix<f64> {
-        let q = self.size() - m;
-        self.r.view((m, m), (q, q)).into_owned()
-    }
-
-    /// `F_J⁺ = Q R⁻ᵀ` (|J| × k).
-    fn pseudo_inverse(&self) -> Option<DMatrix<f64>> {
-        let rinv_qt = self.r.solve_upper_triangular(&self.q.transpose())?;
-        Some(rinv_qt.transpose())
-    }
-
-    /// `R D` with `D = diag(Γ)^{−½}`: the factor of `Γ` scaled to a unit diagonal.
-    fn scaled(&self) -> DMatrix<f64> {
-        let mut rd = self.r.clone();
-        for mut col in rd.column_iter_mut() {
-            let norm = col.norm();
-            col.scale_mut(1.0 / norm.max(f64::MIN_POSITIVE));
-        }
-        rd
-    }
-
-    /// Condition number of `Γ = R'R` scaled to a unit diagonal, and the conditions in the
-    /// direction it nearly loses (the right singular vector of `R D`, `D = diag(Γ)^{−½}`).
-    fn scaled_condition(&self) -> (f64, Vec<usize>) {
-        let k = self.size();
-        if k < 2 {
-            return (1.0, Vec::new());
-        }
-        let svd = SVD::new(self.scaled(), false, true);
-        let (lo_at, lo) = svd.singular_values.argmin();
-        let hi = svd.singular_values.max();
-        let cond = if lo > 0.0 {
-            (hi / lo).powi(2)
-        } else {
-            f64::INFINITY
-        };
-        let involved = svd.v_t.map_or_else(Vec::new, |vt| {
-            let v = vt.row(lo_at);
-            let top = v.amax();
-            (0..k).filter(|&i| v[i].abs() > 1e-3 * top).collect()
-        });
-        (cond, involved)
-    }
-}
-
-/// Thin QR by CholeskyQR2 (Yamamoto, Nakatsukasa, Yanagisawa and Fukaya 2015) on the matrix
-/// with unit-norm columns `A = F_J'D`: twice `R_i = chol(A'A)'`, `A ← A R_i⁻¹`; then
-/// `F_J' = Q R` with `R = R_2 R_1 D⁻¹`. Two matrix products per pass instead of Householder
-/// reflections. Forming `A'A` squares the condition of the *scaled* conditions only (the
-/// growth of explosive horizons sits in the column norms, removed by `D`); the second pass
-/// restores orthogonality to rounding whenever `cond(A) ≲ 10⁸`, and every accepted plan has
-/// `cond(A) ≤ 10⁶` (`NEARLY_DEPENDENT`). `None` when a Cholesky fails (rank deficient or
-/// nearly so): the caller then uses Householder QR, whose `R` names the deficiency.
-fn cholesky_qr2(fjt: &DMatrix<f64>) -> Option<Factor> {
-    let k = fjt.ncols();
-    let scale: Vec<f64> = (0..k).map(|c| fjt.column(c).norm()).collect();
-    if scale.iter().any(|&s| !(s > 0.0 && s.is_finite())) {
-        return None;
-    }
-    let mut a = fjt.clone();
-    for (c, s) in scale.iter().enumerate() {
-        a.column_mut(c).scale_mut(1.0 / s);
-    }
-    let mut r = DMatrix::identity(k, k);
-    for _ in 0..2 {
-        let gram = a.tr_mul(&a);
-        let upper = gram.cholesky()?.l().transpose();
-        let inv = triangular_inverse(&upper)?;
-        a = &a * inv;
-        r = upper * r;
-    }
-    for (c, s) in scale.iter().enumerate() {
-        r.column_mut(c).scale_mut(*s);
-    }
-    Some(Factor { q: a, r })
-}
-
-/// `U⁻¹` for an upper-triangular `U` (None if a diagonal entry is zero).
-fn triangular_inverse(u: &DMatrix<f64>) -> Option<DMatrix<f64>> {
-    u.solve_upper_triangular(&DMatrix::identity(u.nrows(), u.ncols()))
-}
-
-/// `‖U‖_F ‖U⁻¹‖_F`, an upper bound on the 2-norm condition number of `U` (at most `k` times
-/// too large): a screen that spares the singular value decomposition when `U` is clearly
-/// well conditioned.
-pub(super) fn condition_bound(u: &DMatrix<f64>) -> f64 {
-    triangular_inverse(u)
-        .map(|inv| u.norm() * inv.norm())
-        .filter(|b| b.is_finite())
-        .unwrap_or(f64::INFINITY)
 }
 
 /// Condition-dependent objects for one θ.
@@ -237,16 +85,18 @@ impl Plan {
         cond: &Conditions,
         draw: Option<usize>,
     ) -> Result<Plan, ForecastError> {
-        Plan::with_rows(theta, Rows::new(theta, cond, draw)?, cond, draw)
+        Plan::with_rows(theta, Rows::new(theta, cond, draw)?, cond, draw, None)
     }
 
     /// Build the plan on rows already made (conditions on observables give the same rows
-    /// under every θ, so a run makes them once; see [`Conditions::on_shocks`]).
+    /// under every θ, so a run makes them once; see [`Conditions::on_shocks`]), with the
+    /// corridor law laid out like `like`'s (another θ's law of the same corridors) when given.
     pub fn with_rows(
         theta: &Theta,
         rows: Rows,
         cond: &Conditions,
         draw: Option<usize>,
+        like: Option<&CorridorLaw>,
     ) -> Result<Plan, ForecastError> {
         let g = rows.stacked();
         let (m, q) = (rows.pins.nrows(), rows.corridors.nrows());
@@ -266,7 +116,7 @@ impl Plan {
         let factor = Factor::new(&shock_rows, cells.as_deref());
         if cells.is_some() {
             let width = cells.as_ref().map_or(0, Vec::len).max(m + q);
-            reach::check(&factor.r, width).map_err(|involved| ForecastError::Unreachable {
+            reach::check(&factor, width).map_err(|involved| ForecastError::Unreachable {
                 conditions: involved.iter().map(|&i| labels[i].clone()).collect(),
                 drivers: cond.driver_names(),
                 draw,
@@ -303,7 +153,7 @@ impl Plan {
                         DMatrix::from_fn(m + q, rest.len(), |i, c| shock_rows[(rest[c], i)]);
                     f_rest.rows(m, q) - &on_pins * f_rest.rows(0, m)
                 });
-                CorridorLaw::new(cov, m0, shift, law_rows(&rows))
+                CorridorLaw::new(cov, m0, shift, law_rows(&rows), like)
             })
             .transpose()?;
         let model = OnceLock::new();
@@ -324,6 +174,11 @@ impl Plan {
             law,
             draw,
         })
+    }
+
+    /// The corridor quantities' law under this plan's drivers (none without corridors).
+    pub fn law(&self) -> Option<&CorridorLaw> {
+        self.law.as_ref()
     }
 
     pub fn pin_count(&self) -> usize {
@@ -461,7 +316,8 @@ impl Plan {
         let f = self.model_factor();
         let r_ss = f.corridor_block(m);
         let mean = &self.smean + f.corridor_on_pins(m) * &self.rtilde;
-        CorridorLaw::new(r_ss.transpose() * r_ss, mean, None, law_rows(&self.rows)).map(Some)
+        let rows = law_rows(&self.rows);
+        CorridorLaw::new(r_ss.transpose() * r_ss, mean, None, rows, self.law.as_ref()).map(Some)
     }
 
     /// Probability of the corridors under this plan's own law given the non-driver shocks
@@ -490,7 +346,7 @@ impl Plan {
         let big_n = theta.len();
         let m = self.pin_count();
         let f = &self.factor;
-        let q1 = f.q.columns(0, m).into_owned();
+        let q1 = f.q().columns(0, m).into_owned();
         let pinv = f.rr_solve(m, &q1.transpose()).transpose();
         if pinv.iter().any(|x| !x.is_finite()) {
             return Err(ForecastError::Singular("the pins' shock map F_R".into()));
@@ -537,13 +393,13 @@ impl Plan {
 const NEARLY_DEPENDENT: f64 = 1e12;
 
 /// Refuse nearly dependent conditions, naming those in the direction `Γ` nearly loses. The
-/// scaled `Γ = D R'R D` has condition `cond(R D)²`, screened first by [`condition_bound`].
+/// scaled `Γ` has condition `cond(U)²`, screened first by [`Factor::condition_bound`].
 fn well_conditioned(
     factor: &Factor,
     labels: &[String],
     draw: Option<usize>,
 ) -> Result<(), ForecastError> {
-    if condition_bound(&factor.scaled()).powi(2) <= NEARLY_DEPENDENT {
+    if factor.condition_bound().powi(2) <= NEARLY_DEPENDENT {
         return Ok(());
     }
     let (cond, involved) = factor.scaled_condition();

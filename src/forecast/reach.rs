@@ -12,23 +12,26 @@
 //! read off them against a `σ_max · max(rows, cols) · 1e−12` threshold (numerical-rank
 //! practice, Golub and Van Loan).
 
-use nalgebra::{DMatrix, SVD};
+use nalgebra::SVD;
+
+use super::factor::Factor;
 
 /// Singular values below `RANK_RTOL · σ_max · max(rows, cols)` count as zero.
 const RANK_RTOL: f64 = 1e-12;
 /// A null-vector entry above this share of the largest marks its condition as involved.
 const INVOLVED: f64 = 1e-3;
 
-/// Check that `F_J` (factor `r`, k × k, from `width = max(|J|, k)` columns) has full row rank;
+/// Check that `F_J` (its factor, k × k, from `width = max(|J|, k)` columns) has full row rank;
 /// on failure return the rows involved (indices).
-pub fn check(r: &DMatrix<f64>, width: usize) -> Result<(), Vec<usize>> {
+pub fn check(factor: &Factor, width: usize) -> Result<(), Vec<usize>> {
+    let r = &factor.r;
     let rows = r.ncols();
     if rows == 0 {
         return Ok(());
     }
     let tol = RANK_RTOL * width as f64;
     // σ_min/σ_max ≥ 1/bound: clearly of full rank without a singular value decomposition.
-    if super::plan::condition_bound(r) * tol < 1.0 {
+    if factor.raw_condition_bound() * tol < 1.0 {
         return Ok(());
     }
     let svd = SVD::new(r.clone(), false, true);

@@ -105,44 +105,42 @@ impl Theta {
     /// `X ← H⁻ᵀ X` for `N × k` blocks: `x_t += Σ_{j=1}^{min(p,h−t)} B_j' x_{t+j}`, `t = h … 1`.
     pub fn backward_in_place(&self, x: &mut DMatrix<f64>) {
         let n = self.n();
+        // `B_j'` made once: a product with a transposed copy runs as a matrix product, where
+        // a transposed product would run as dot products.
+        let lags_t: Vec<DMatrix<f64>> = self.lags.iter().map(|b| b.transpose()).collect();
         for t in (0..self.h.saturating_sub(1)).rev() {
-            for (j, b) in self.lags.iter().enumerate() {
+            for (j, bt) in lags_t.iter().enumerate() {
                 let s = t + j + 1;
                 if s >= self.h {
                     break;
                 }
                 let (mut now, future) =
                     x.rows_range_pair_mut(t * n..(t + 1) * n, s * n..(s + 1) * n);
-                now.gemm_tr(1.0, b, &future, 1.0);
+                now.gemm(1.0, bt, &future, 1.0);
             }
         }
     }
 
-    /// `X ← (I ⊗ A) X` block by block, for `A = L` or `L'`.
-    fn each_period(&self, x: &mut DMatrix<f64>, transpose: bool) {
+    /// `X ← (I ⊗ A) X` block by block.
+    fn each_period(&self, x: &mut DMatrix<f64>, a: &DMatrix<f64>) {
         let n = self.n();
         let mut tmp = DMatrix::zeros(n, x.ncols());
         for t in 0..self.h {
-            let block = x.rows(t * n, n);
-            if transpose {
-                tmp.gemm_tr(1.0, &self.impact, &block, 0.0);
-            } else {
-                tmp.gemm(1.0, &self.impact, &block, 0.0);
-            }
+            tmp.gemm(1.0, a, &x.rows(t * n, n), 0.0);
             x.rows_mut(t * n, n).copy_from(&tmp);
         }
     }
 
     /// `E ← M E` (paths' departures from the mean made by the shocks in each column).
     pub fn shocks_to_paths(&self, e: &mut DMatrix<f64>) {
-        self.each_period(e, false);
+        self.each_period(e, &self.impact);
         self.forward_in_place(e);
     }
 
     /// `V ← M' V = (I ⊗ L') H⁻ᵀ V`.
     pub fn adjoint_in_place(&self, v: &mut DMatrix<f64>) {
         self.backward_in_place(v);
-        self.each_period(v, true);
+        self.each_period(v, &self.impact.transpose());
     }
 
     /// `V ← K⁻¹ V = M M' V`: the unconditional forecast covariance times `V`.

@@ -12,7 +12,7 @@ use rand::Rng;
 
 use super::{
     TruncError,
-    reorder::{Ordered, reorder},
+    reorder::{Ordered, in_order, reorder},
     tilting::{self, SolveStatus, Tilt},
     univariate,
 };
@@ -85,6 +85,34 @@ impl TruncatedNormal {
     /// The same `Σ` (and variable order) on another box: the saddle point is solved again,
     /// warm-started from this one's when that is closer.
     pub fn with_bounds(&self, lower: &[f64], upper: &[f64]) -> Result<TruncatedNormal, TruncError> {
+        self.resolve(self.order.clone(), lower, upper)
+    }
+
+    /// Another `Σ` of the same size in this one's variable order (a nearby problem, such as
+    /// the same corridors under another posterior draw): no reordering search, and the saddle
+    /// point warm-started from this one's when that is closer.
+    pub fn like(
+        &self,
+        sigma: &DMatrix<f64>,
+        lower: &[f64],
+        upper: &[f64],
+    ) -> Result<TruncatedNormal, TruncError> {
+        if sigma.nrows() != self.dim() || sigma.ncols() != self.dim() {
+            return Err(TruncError::Shape {
+                sigma: sigma.shape(),
+                lower: lower.len(),
+                upper: upper.len(),
+            });
+        }
+        self.resolve(in_order(sigma, &self.order.perm)?, lower, upper)
+    }
+
+    fn resolve(
+        &self,
+        order: Ordered,
+        lower: &[f64],
+        upper: &[f64],
+    ) -> Result<TruncatedNormal, TruncError> {
         if lower.len() != self.dim() || upper.len() != self.dim() {
             return Err(TruncError::Shape {
                 sigma: (self.dim(), self.dim()),
@@ -93,15 +121,15 @@ impl TruncatedNormal {
             });
         }
         check_box(lower, upper)?;
-        let (lo, hi) = self.order.scale_bounds(lower, upper);
+        let (lo, hi) = order.scale_bounds(lower, upper);
         let m = self.dim() - 1;
-        let cold = tilting::cold_start(&self.order, &lo, &hi);
+        let cold = tilting::cold_start(&order, &lo, &hi);
         let start = match self.tilt.status {
             SolveStatus::Converged { .. } => {
                 let mut warm = DVector::zeros(2 * m);
                 warm.rows_mut(0, m).copy_from_slice(&self.tilt.x);
                 warm.rows_mut(m, m).copy_from_slice(&self.tilt.mu[..m]);
-                let size = |v: &DVector<f64>| tilting::gradient_size(&self.order, &lo, &hi, v);
+                let size = |v: &DVector<f64>| tilting::gradient_size(&order, &lo, &hi, v);
                 if size(&warm) < size(&cold) {
                     warm
                 } else {
@@ -110,9 +138,9 @@ impl TruncatedNormal {
             }
             SolveStatus::Fallback => cold,
         };
-        let tilt = tilting::solve(&self.order, &lo, &hi, start);
+        let tilt = tilting::solve(&order, &lo, &hi, start);
         Ok(TruncatedNormal {
-            order: self.order.clone(),
+            order,
             lo,
             hi,
             tilt,

@@ -129,6 +129,38 @@ pub fn reorder(sigma: &DMatrix<f64>, lower: &[f64], upper: &[f64]) -> Result<Ord
     Ok(Ordered { perm, diag, lt })
 }
 
+/// Factor `Σ[perm, perm]` in a given order (no search): another covariance laid out like an
+/// earlier problem's, so that its saddle point can start from that problem's. The order only
+/// affects efficiency, never the law (ALGORITHMS §7.2).
+pub fn in_order(sigma: &DMatrix<f64>, perm: &[usize]) -> Result<Ordered, TruncError> {
+    let d = sigma.nrows();
+    let s = DMatrix::from_fn(d, d, |a, b| sigma[(perm[a], perm[b])]);
+    let mut c = DMatrix::<f64>::zeros(d, d);
+    for j in 0..d {
+        let done: f64 = (0..j).map(|t| c[(j, t)] * c[(j, t)]).sum();
+        let pivot = s[(j, j)] - done;
+        if !pivot.is_finite() || pivot < -NEGATIVE_PIVOT * s[(j, j)].abs() {
+            return Err(TruncError::NotPositiveDefinite { index: perm[j] });
+        }
+        let cjj = pivot.max(0.0).sqrt();
+        if cjj <= SINGULAR_PIVOT * s[(j, j)].abs().sqrt() {
+            return Err(TruncError::Singular { index: perm[j] });
+        }
+        c[(j, j)] = cjj;
+        for i in j + 1..d {
+            let dot: f64 = (0..j).map(|t| c[(i, t)] * c[(j, t)]).sum();
+            c[(i, j)] = (s[(i, j)] - dot) / cjj;
+        }
+    }
+    let diag: Vec<f64> = (0..d).map(|k| c[(k, k)]).collect();
+    let lt = DMatrix::from_fn(d, d, |k, j| if j < k { c[(k, j)] / diag[k] } else { 0.0 });
+    Ok(Ordered {
+        perm: perm.to_vec(),
+        diag,
+        lt,
+    })
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -154,6 +186,26 @@ mod tests {
             sorted.sort();
             assert_eq!(sorted, (0..d).collect::<Vec<_>>());
         }
+    }
+
+    /// A given order reproduces the searched factor when it is the searched order.
+    #[test]
+    fn given_order_matches_search() {
+        let d = 6;
+        let g = DMatrix::from_fn(d, d, |i, j| ((i * 5 + j * 2) as f64 * 0.71).cos());
+        let sigma = &g * g.transpose() + DMatrix::identity(d, d) * 0.3;
+        let lower = vec![-0.5; d];
+        let upper: Vec<f64> = (0..d).map(|i| 0.2 + 0.4 * i as f64).collect();
+        let searched = reorder(&sigma, &lower, &upper).unwrap();
+        let given = in_order(&sigma, &searched.perm).unwrap();
+        assert!((&given.lt - &searched.lt).amax() < 1e-12);
+        assert!(
+            given
+                .diag
+                .iter()
+                .zip(&searched.diag)
+                .all(|(a, b)| (a - b).abs() < 1e-12)
+        );
     }
 
     /// The least probable interval comes first.

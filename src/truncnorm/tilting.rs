@@ -97,15 +97,10 @@ fn hessian(o: &Ordered, var: &[f64]) -> DMatrix<f64> {
     let m = d - 1;
     let delta: Vec<f64> = var.iter().map(|v| v - 1.0).collect();
     let mut j = DMatrix::zeros(2 * m, 2 * m);
-    for a in 0..m {
-        for b in 0..=a {
-            let s: f64 = (a.max(b) + 1..d)
-                .map(|k| o.lt[(k, a)] * delta[k] * o.lt[(k, b)])
-                .sum();
-            j[(a, b)] = s;
-            j[(b, a)] = s;
-        }
-    }
+    // [L̃'ΔL̃]₁₁ = −W'W with W = diag(√−Δ) L̃[:, :m] (−1 < Δ ≤ 0), as one matrix product.
+    let w = DMatrix::from_fn(d, m, |k, a| (-delta[k]).max(0.0).sqrt() * o.lt[(k, a)]);
+    j.view_mut((0, 0), (m, m))
+        .copy_from(&(-(w.transpose() * &w)));
     for k in 0..m {
         for c in 0..m {
             let off = if c < k { delta[k] * o.lt[(k, c)] } else { 0.0 };
