@@ -13,7 +13,7 @@ use crate::forecast::{
     sample_paths,
 };
 use crate::model::FitSummary;
-use crate::report::{FanRow, Kind, check_text, fans};
+use crate::report::{FanRow, Kind, check_text, displayable, fans};
 use crate::scenario::{ModelSpec, ScenarioError, Setup};
 
 /// Every path must meet every pin to this relative error (ALGORITHMS §11.4).
@@ -226,8 +226,9 @@ pub fn run(setup: &mut Setup, options: &RunOptions) -> Result<RunOutcome, RunErr
         reweight: file.reweight,
         min_acceptance: file.checks.min_acceptance,
     };
-    let paths = sample_paths(&set, 0..set.thetas.len(), &conditions, how, &cancel)?
-        .within(file.checks.max_failed_share)?;
+    let mut paths = sample_paths(&set, 0..set.thetas.len(), &conditions, how, &cancel)?;
+    paths.keep_only(|p| displayable(setup, p));
+    let paths = paths.within(file.checks.max_failed_share)?;
     // Reweighting: each θ's weight shared by its paths; the unconditional fans keep p(θ | data).
     let (weights, effective_draws) = match path_weights(&paths.log_weights, paths_per_theta) {
         Some((w, ess)) if file.reweight => (Some(w), Some(ess)),
@@ -349,7 +350,7 @@ pub fn summary(setup: &Setup, out: &RunOutcome) -> String {
             "posterior draws"
         };
         s.push(format!(
-            "           set aside: {} of {} {unit} ({:.1}%) could not be conditioned; the first ({} {}): {}",
+            "           set aside: {} of {} {unit} ({:.1}%); the first ({} {}): {}",
             out.paths.failures.len(),
             out.paths.attempted,
             100.0 * out.paths.failed_share(),

@@ -233,3 +233,124 @@ fn reweighting_changes_only_the_conditional_fans() {
     assert!(moved > 0);
     assert!(tiltyard::run::summary(&setup, &b).contains("effective sample size"));
 }
+
+/// Fixed coefficients: one θ whose paths are split into chunks across threads; the paths are
+/// bit-identical on 1, 2 and 4 threads.
+#[test]
+fn fixed_coefficients_split_paths_reproducibly() {
+    let fx = json("var_ols.json");
+    let model = fixed_model_ron(&matrix(&fx["params"]), &matrix(&fx["sigma_u"]));
+    let extra = r#"pins: [(series: "realgdp", period: "2010Q2", units: year_on_year, value: 1.0)],
+        corridors: [(series: "tbilrate", from: "2009Q4", to: "2010Q3", lower: 0.0)],
+        draws: 300, seed: 5"#;
+    let text = macro_scenario(&model, extra, 6);
+    let one = run_on_threads(&text, 1);
+    assert_eq!(one.len(), 300);
+    for threads in [2, 4] {
+        assert_eq!(one, run_on_threads(&text, threads), "{threads} threads");
+    }
+}
+
+/// The stationarity filter keeps exactly the first `draws` posterior draws whose largest
+/// companion root is below the bound, reports how many were tried, and refuses when too few
+/// pass. The roots of the kept draws are recomputed here from their coefficients (companion
+/// matrix built in the test, eigenvalues by nalgebra's Schur decomposition).
+#[test]
+fn stationarity_filter_keeps_draws_below_the_bound() {
+    let dir = tempfile::tempdir().unwrap();
+    let text = minnesota_scenario("draws: 40, seed: 3, largest_root: below(1.004)");
+    let mut setup = scenario::load(&write_scenario(&dir, &text)).unwrap();
+    let out = run(&mut setup, &RunOptions::default()).unwrap();
+    let roots = &out.roots;
+    assert_eq!((roots.kept, roots.below), (40, Some(1.004)));
+    assert_eq!(roots.measured.len(), roots.tried);
+    let passing = roots.measured.iter().filter(|&&r| r < 1.004).count();
+    assert_eq!(passing, 40, "the last draw tried is the 40th kept");
+    assert!(
+        roots.tried > 40,
+        "some draws were above the bound: {:?}",
+        roots.measured
+    );
+    let (source, _) = setup.estimate().unwrap();
+    let spec = tiltyard::forecast::DrawSpec {
+        count: 40,
+        seed: 3,
+        below: Some(1.004),
+        min_kept_share: 0.05,
+    };
+    let cancel = AtomicBool::new(false);
+    let set = tiltyard::forecast::build_thetas(
+        &source,
+        &setup.ordering,
+        &setup.tail().unwrap(),
+        6,
+        spec,
+        &cancel,
+    )
+    .unwrap();
+    for theta in &set.thetas {
+        let (n, p) = (theta.n(), theta.p());
+        let mut companion = nalgebra::DMatrix::zeros(n * p, n * p);
+        for (l, b) in theta.lags.iter().enumerate() {
+            companion.view_mut((0, l * n), (n, n)).copy_from(b);
+        }
+        for i in n..n * p {
+            companion[(i, i - n)] = 1.0;
+        }
+        let root = companion
+            .complex_eigenvalues()
+            .iter()
+            .map(|z| z.norm())
+            .fold(0.0, f64::max);
+        assert!(root < 1.004, "kept a draw with root {root}");
+    }
+    let text = minnesota_scenario("draws: 40, seed: 3, largest_root: below(0.9)");
+    let mut setup = scenario::load(&write_scenario(&dir, &text)).unwrap();
+    let err = run(&mut setup, &RunOptions::default()).unwrap_err();
+    let msg = err.to_string();
+    assert!(
+        msg.contains("largest root below 0.9") && msg.contains("min_kept_share"),
+        "{msg}"
+    );
+}
+
+/// Fixed coefficients with an explosive root: refused by the filter, naming the root; kept
+/// (the default) they run, and at a horizon where year-on-year growth overflows every path is
+/// set aside and the run fails saying why and what to change — no infinity reaches a table.
+#[test]
+fn explosive_fixed_coefficients_are_refused_or_reported() {
+    let dir = tempfile::tempdir().unwrap();
+    let n = 4;
+    let b = nalgebra::DMatrix::from_fn(1 + 2 * n, n, |r, c| if r == 1 + c { 1.5 } else { 0.0 });
+    let sigma = nalgebra::DMatrix::identity(n, n);
+    let model = fixed_model_ron(&b, &sigma);
+    let growth = r#"series: [
+        (name: "realgdp", transform: log100, display: year_on_year),
+        (name: "realcons", transform: log100),
+        (name: "realinv", transform: log100),
+        (name: "tbilrate", transform: as_is),
+    ],"#;
+    let with = |extra: &str, h: usize| {
+        let text = macro_scenario(&model, extra, h);
+        let start = text.find("series: [").unwrap();
+        let end = start + text[start..].find("],").unwrap() + 2;
+        format!("{}{growth}{}", &text[..start], &text[end..])
+    };
+    let mut setup =
+        scenario::load(&write_scenario(&dir, &with("largest_root: below(1.0)", 4))).unwrap();
+    let msg = run(&mut setup, &RunOptions::default())
+        .unwrap_err()
+        .to_string();
+    assert!(
+        msg.contains("1.5000") && msg.contains("largest_root"),
+        "{msg}"
+    );
+    let mut setup = scenario::load(&write_scenario(&dir, &with("draws: 50", 40))).unwrap();
+    let msg = run(&mut setup, &RunOptions::default())
+        .unwrap_err()
+        .to_string();
+    assert!(
+        msg.contains("50 of 50 paths") && msg.contains("overflow") && msg.contains("horizon"),
+        "{msg}"
+    );
+}

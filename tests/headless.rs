@@ -224,3 +224,38 @@ fn adverse_demo_with_corridors_runs() {
     );
     assert!(stdout.contains("plausibility"));
 }
+
+/// The adverse demo at horizon 400 — where factoring the forecast precision used to fail
+/// ("not positive definite" in one posterior draw, which stopped the run) — runs, meets its
+/// conditions, and writes finite numbers only.
+#[test]
+fn the_demo_runs_at_a_horizon_of_400() {
+    let dir = tempfile::tempdir().unwrap();
+    let text = std::fs::read_to_string(demo("adverse.ron"))
+        .unwrap()
+        .replace("horizon: 12", "horizon: 400")
+        .replace("\"economy.csv\"", &format!("{:?}", demo("economy.csv")));
+    let path = dir.path().join("long.ron");
+    std::fs::write(&path, text).unwrap();
+    let out = dir.path().join("out");
+    let status = tiltyard()
+        .args(["run", path.to_str().unwrap(), "--draws", "24", "--out"])
+        .arg(&out)
+        .output()
+        .unwrap();
+    let stdout = String::from_utf8_lossy(&status.stdout);
+    assert!(
+        status.status.success(),
+        "{stdout}\n{}",
+        String::from_utf8_lossy(&status.stderr)
+    );
+    assert!(stdout.contains("met in every path"), "{stdout}");
+    let fans = std::fs::read_to_string(out.join("fans.csv")).unwrap();
+    let numbers: Vec<f64> = fans
+        .lines()
+        .skip(1)
+        .flat_map(|l| l.split(',').skip(5).map(|v| v.parse::<f64>().unwrap()))
+        .collect();
+    assert_eq!(numbers.len(), 10 * 400 * 2 * 8);
+    assert!(numbers.iter().all(|v| v.is_finite()));
+}

@@ -414,13 +414,15 @@ fn preview(
         ParamSource::Fixed(_) => file.draws * file.paths_per_draw,
         ParamSource::Posterior(_) => PREVIEW_PATHS,
     };
-    sample_paths(
+    let mut paths = sample_paths(
         &central,
         0..1,
         conditions,
         sampling(file, paths),
         &job.cancel,
-    )
+    )?;
+    paths.keep_only(|p| crate::report::displayable(setup, p));
+    paths.within(file.checks.max_failed_share)
 }
 
 /// Tier 1: posterior draws in blocks. Fans are refreshed when the draws done have doubled
@@ -457,11 +459,12 @@ fn posterior(
             sampling(file, file.paths_per_draw),
             &job.cancel,
         );
-        let block = match block {
+        let mut block = match block {
             Ok(b) => b,
             Err(crate::forecast::ForecastError::Cancelled) => return Ok(()),
             Err(e) => return Err(e.to_string()),
         };
+        block.keep_only(|p| crate::report::displayable(setup, p));
         shocks.extend(Shocks::of(&block, |i| &set.thetas[i]).map_err(text)?);
         all.extend(block);
         done = end;

@@ -136,6 +136,7 @@ pub fn build_thetas(
                     kept: 0,
                     tried: 1,
                     limit,
+                    needed: 1.0,
                     fixed_root: Some(root),
                 });
             }
@@ -209,6 +210,7 @@ pub fn build_thetas(
             kept: thetas.len(),
             tried,
             limit,
+            needed: spec.min_kept_share,
             fixed_root: None,
         });
     }
@@ -278,6 +280,60 @@ impl PathSet {
         self.absorb(more);
     }
 
+    /// Set aside every θ (fixed coefficients: every path) with a path, conditional or not,
+    /// that `ok` rejects — for example one that overflows in display units — as `NotFinite`.
+    pub fn keep_only(&mut self, ok: impl Fn(&[f64]) -> bool) {
+        let bad: Vec<bool> = (0..self.conditional.len())
+            .map(|k| !(ok(&self.conditional[k]) && ok(&self.unconditional[k])))
+            .collect();
+        if !bad.contains(&true) {
+            return;
+        }
+        let fixed = self.fixed;
+        // Posterior draws: a θ goes with all its paths (and its weight).
+        let mut drop = bad.clone();
+        if !fixed {
+            let mut groups: Vec<(usize, usize)> = Vec::new();
+            for (k, &s) in self.sources.iter().enumerate() {
+                match groups.last_mut() {
+                    Some((source, end)) if *source == s => *end = k + 1,
+                    _ => groups.push((s, k + 1)),
+                }
+            }
+            let mut start = 0;
+            let mut weights = Vec::new();
+            for (g, &(source, end)) in groups.iter().enumerate() {
+                let any = bad[start..end].contains(&true);
+                drop[start..end].iter_mut().for_each(|d| *d = any);
+                if any {
+                    self.failures.push(Failure {
+                        index: source,
+                        error: ForecastError::NotFinite { draw: Some(source) },
+                    });
+                } else if let Some(&w) = self.log_weights.get(g) {
+                    weights.push(w);
+                }
+                start = end;
+            }
+            if !self.log_weights.is_empty() {
+                self.log_weights = weights;
+            }
+        } else {
+            for (k, &b) in bad.iter().enumerate() {
+                if b {
+                    self.failures.push(Failure {
+                        index: k,
+                        error: ForecastError::NotFinite { draw: None },
+                    });
+                }
+            }
+        }
+        retain_by(&mut self.conditional, &drop);
+        retain_by(&mut self.unconditional, &drop);
+        retain_by(&mut self.sources, &drop);
+        self.failures.sort_by_key(|f| f.index);
+    }
+
     /// Share of the attempts set aside.
     pub fn failed_share(&self) -> f64 {
         self.failures.len() as f64 / self.attempted.max(1) as f64
@@ -299,6 +355,12 @@ impl PathSet {
         }
         Ok(self)
     }
+}
+
+/// Keep the entries of `v` whose `drop` flag is false.
+fn retain_by<T>(v: &mut Vec<T>, drop: &[bool]) {
+    let mut flags = drop.iter();
+    v.retain(|_| !flags.next().copied().unwrap_or(false));
 }
 
 /// How many paths, and whether to reweight θ by the scenario (ALGORITHMS §8.4).
@@ -535,6 +597,47 @@ pub fn path_weights(log_weights: &[f64], paths_per_theta: usize) -> Option<(Vec<
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    fn paths(sources: &[usize]) -> PathSet {
+        let attempted = sources
+            .iter()
+            .collect::<std::collections::HashSet<_>>()
+            .len();
+        PathSet {
+            conditional: sources.iter().map(|&s| vec![s as f64]).collect(),
+            unconditional: sources.iter().map(|_| vec![0.0]).collect(),
+            sources: sources.to_vec(),
+            log_weights: (0..attempted).map(|g| g as f64).collect(),
+            attempted,
+            ..PathSet::default()
+        }
+    }
+
+    /// A posterior draw with one unusable path goes whole, with its weight; the rest stay in
+    /// order. The run fails only past the allowed share, and always when nothing is left.
+    #[test]
+    fn draws_set_aside_whole_and_counted() {
+        let mut p = paths(&[0, 0, 1, 1, 2, 2]);
+        p.keep_only(|y| y[0] != 1.0);
+        assert_eq!(p.sources, vec![0, 0, 2, 2]);
+        assert_eq!(p.log_weights, vec![0.0, 2.0]);
+        assert_eq!(p.failures.len(), 1);
+        assert_eq!(p.failures[0].index, 1);
+        assert!((p.failed_share() - 1.0 / 3.0).abs() < 1e-15);
+        assert!(p.clone().within(0.34).is_ok());
+        let err = p.within(0.3).unwrap_err();
+        assert!(matches!(
+            err,
+            ForecastError::TooManyFailed {
+                failed: 1,
+                attempted: 3,
+                ..
+            }
+        ));
+        let mut none = paths(&[0, 1]);
+        none.keep_only(|_| false);
+        assert!(none.within(1.0).is_err());
+    }
 
     /// Kish's effective sample size: `n` for equal weights, 1 when one weight dominates, and
     /// `(Σω)²/Σω²` in between (here ω = (1, 1, 2): 16/6).

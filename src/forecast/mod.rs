@@ -86,16 +86,18 @@ pub enum ForecastError {
         at_draw(*draw)
     )]
     NotFinite { draw: Option<usize> },
-    #[error("{}", not_stationary(*kept, *tried, *limit, *fixed_root))]
+    #[error("{}", not_stationary(*kept, *tried, *limit, *needed, *fixed_root))]
     NotStationary {
         kept: usize,
         tried: usize,
         limit: f64,
+        /// The share of draws tried that must be kept.
+        needed: f64,
         /// For fixed coefficients: their largest root.
         fixed_root: Option<f64>,
     },
     #[error(
-        "{failed} of {attempted} {} ({:.1}%) could not be conditioned, more than the {:.1}% the scenario allows (checks.max_failed_share); the first, {}: {}. {}",
+        "{failed} of {attempted} {} ({:.1}%) could not be used, more than the {:.1}% the scenario allows (checks.max_failed_share); the first, {}: {}. {}",
         if *fixed { "paths" } else { "posterior draws" },
         100.0 * *failed as f64 / (*attempted).max(1) as f64,
         100.0 * allowed,
@@ -114,14 +116,21 @@ pub enum ForecastError {
     Cancelled,
 }
 
-fn not_stationary(kept: usize, tried: usize, limit: f64, fixed_root: Option<f64>) -> String {
+fn not_stationary(
+    kept: usize,
+    tried: usize,
+    limit: f64,
+    needed: f64,
+    fixed_root: Option<f64>,
+) -> String {
     match fixed_root {
         Some(root) => format!(
             "the fixed coefficients' largest root has modulus {root:.4}, not below the bound {limit} set by largest_root; keep them (largest_root: keep) or supply stationary coefficients"
         ),
         None => format!(
-            "only {kept} of {tried} posterior draws ({:.1}%) have their largest root below {limit}, fewer than the scenario needs (checks.min_kept_share); raise the bound, keep every draw (largest_root: keep), or revisit the model (fewer lags, a tighter prior)",
-            100.0 * kept as f64 / tried.max(1) as f64
+            "only {kept} of {tried} posterior draws ({:.1}%) have their largest root below {limit}, fewer than the {:.1}% the scenario needs (checks.min_kept_share); raise the bound, keep every draw (largest_root: keep), or revisit the model (fewer lags, a tighter prior)",
+            100.0 * kept as f64 / tried.max(1) as f64,
+            100.0 * needed
         ),
     }
 }

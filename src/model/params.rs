@@ -113,3 +113,32 @@ impl Params {
             .fold(0.0, f64::max)
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Closed forms: a triangular VAR(1) has its diagonal as roots; a scalar AR(2)
+    /// `y_t = a y_{t−1} + b y_{t−2}` has the roots of `z² − a z − b`, here
+    /// `a = 1.1, b = −0.3`: z = 0.6 and 0.5; `a = 0.2, b = −0.5`: a complex pair of modulus
+    /// `√0.5`.
+    #[test]
+    fn spectral_radius_matches_closed_forms() {
+        let var1 = |m: &[f64]| Params {
+            intercept: DVector::zeros(2),
+            lags: vec![DMatrix::from_row_slice(2, 2, m)],
+            sigma: DMatrix::identity(2, 2),
+        };
+        assert!((var1(&[0.7, 3.0, 0.0, -1.2]).spectral_radius() - 1.2).abs() < 1e-14);
+        let ar2 = |a: f64, b: f64| Params {
+            intercept: DVector::zeros(1),
+            lags: vec![
+                DMatrix::from_element(1, 1, a),
+                DMatrix::from_element(1, 1, b),
+            ],
+            sigma: DMatrix::identity(1, 1),
+        };
+        assert!((ar2(1.1, -0.3).spectral_radius() - 0.6).abs() < 1e-14);
+        assert!((ar2(0.2, -0.5).spectral_radius() - 0.5f64.sqrt()).abs() < 1e-14);
+    }
+}

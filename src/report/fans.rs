@@ -57,6 +57,13 @@ pub fn display_path_value(setup: &Setup, path: &[f64], i: usize, t: usize) -> f6
     .unwrap_or(f64::NAN)
 }
 
+/// True when every value of `path` is finite in every series' display units (growth of
+/// explosive paths in `100·ln` units can overflow there although the path itself is finite).
+pub fn displayable(setup: &Setup, path: &[f64]) -> bool {
+    let h = setup.file.horizon;
+    (0..setup.n()).all(|i| (1..=h).all(|t| display_path_value(setup, path, i, t).is_finite()))
+}
+
 /// Fans of `paths` (each a stacked future path in model units), optionally with a weight per
 /// path (normalised to sum to one).
 pub fn fans(setup: &Setup, paths: &[Vec<f64>], weights: Option<&[f64]>, kind: Kind) -> Vec<FanRow> {
@@ -69,10 +76,14 @@ pub fn fans(setup: &Setup, paths: &[Vec<f64>], weights: Option<&[f64]>, kind: Ki
             values.clear();
             values.extend(paths.iter().map(|p| display_path_value(setup, p, i, t)));
             let (mean, quantiles) = match weights {
-                None => (
-                    values.iter().sum::<f64>() / values.len().max(1) as f64,
-                    quantiles(&mut values),
-                ),
+                None => {
+                    // Divide first: the sum of large finite values must not overflow.
+                    let count = values.len().max(1) as f64;
+                    (
+                        values.iter().map(|v| v / count).sum(),
+                        quantiles(&mut values),
+                    )
+                }
                 Some(w) => weighted(&values, w),
             };
             rows.push(FanRow {
@@ -102,7 +113,12 @@ pub fn quantiles(values: &mut [f64]) -> [f64; 7] {
         let pos = q * last;
         let lo = pos.floor() as usize;
         let hi = (lo + 1).min(values.len() - 1);
-        *o = values[lo] + (pos - lo as f64) * (values[hi] - values[lo]);
+        // Equal neighbours (infinite ones included) need no interpolation: ∞ − ∞ is NaN.
+        *o = if values[hi] == values[lo] {
+            values[lo]
+        } else {
+            values[lo] + (pos - lo as f64) * (values[hi] - values[lo])
+        };
     }
     out
 }
@@ -139,7 +155,11 @@ pub fn weighted(values: &[f64], weights: &[f64]) -> (f64, [f64; 7]) {
         } else {
             let (c0, c1) = (positions[k - 1], positions[k]);
             let f = if c1 > c0 { (q - c0) / (c1 - c0) } else { 0.0 };
-            pairs[k - 1].0 + f * (pairs[k].0 - pairs[k - 1].0)
+            if pairs[k].0 == pairs[k - 1].0 {
+                pairs[k].0
+            } else {
+                pairs[k - 1].0 + f * (pairs[k].0 - pairs[k - 1].0)
+            }
         };
     }
     (mean, out)

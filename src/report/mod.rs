@@ -7,7 +7,7 @@ pub mod fans;
 use std::path::Path;
 
 pub use checks::{check_text, write_checks_json};
-pub use fans::{FanRow, Kind, QUANTILES, fans, quantiles, weighted};
+pub use fans::{FanRow, Kind, QUANTILES, displayable, fans, quantiles, weighted};
 
 use crate::scenario::Setup;
 

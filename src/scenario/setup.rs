@@ -295,6 +295,26 @@ pub fn check_counts(file: &ScenarioFile) -> Result<(), ScenarioError> {
     if file.draws == 0 || file.draws > MAX_DRAWS {
         return bad("draws", format!("must be between 1 and {MAX_DRAWS}"));
     }
+    let checks = &file.checks;
+    for (field, share) in [
+        ("checks.max_failed_share", checks.max_failed_share),
+        ("checks.min_kept_share", checks.min_kept_share),
+    ] {
+        if !(0.0..=1.0).contains(&share) {
+            return bad(
+                field,
+                format!("must be a share between 0 and 1, got {share}"),
+            );
+        }
+    }
+    if let Some(bound) = file.largest_root.bound()
+        && !(bound.is_finite() && bound > 0.0)
+    {
+        return bad(
+            "largest_root",
+            format!("the bound must be a positive number (common practice: 1), got {bound}"),
+        );
+    }
     if file.paths_per_draw == 0
         || file
             .paths_per_draw
