@@ -5,6 +5,7 @@
 #[cfg(feature = "gui")]
 pub mod app;
 pub mod checks;
+pub mod crosscheck;
 pub mod dataset;
 pub mod forecast;
 pub mod model;

@@ -6,6 +6,7 @@ use std::process::ExitCode;
 use anyhow::Context;
 use clap::{Parser, Subcommand};
 
+use tiltyard::crosscheck::EngineKind;
 use tiltyard::report::{
     CAUTION, check_text, write_about, write_checks_json, write_draws, write_fans,
 };
@@ -51,6 +52,14 @@ enum Command {
         /// Also write every path to draws.csv.
         #[arg(long)]
         keep_draws: bool,
+        /// The engine that draws the paths: main, or a cross-check (dense: the full
+        /// covariance; kalman: filter and simulation smoother, pins only; rejection: naive
+        /// acceptance–rejection for corridors).
+        #[arg(long, value_enum, default_value = "main")]
+        engine: EngineArg,
+        /// With --engine rejection: proposals tried for one path before giving up.
+        #[arg(long, default_value_t = 1_000_000)]
+        proposal_cap: usize,
     },
     /// Check a scenario: clashes, strain, the conditions to blame and the plausibility;
     /// prints the report and writes checks.json. Exit status 2 when the conditions clash.
@@ -64,6 +73,25 @@ enum Command {
         #[arg(long, default_value = "out")]
         out: PathBuf,
     },
+}
+
+#[derive(Clone, Copy, clap::ValueEnum)]
+enum EngineArg {
+    Main,
+    Dense,
+    Kalman,
+    Rejection,
+}
+
+impl EngineArg {
+    fn kind(self, cap: usize) -> EngineKind {
+        match self {
+            EngineArg::Main => EngineKind::Main,
+            EngineArg::Dense => EngineKind::Dense,
+            EngineArg::Kalman => EngineKind::Kalman,
+            EngineArg::Rejection => EngineKind::Rejection { cap: cap.max(1) },
+        }
+    }
 }
 
 /// Exit status when the scenario's conditions clash (1 is any other error).
@@ -86,12 +114,15 @@ fn main() -> ExitCode {
             threads,
             out,
             keep_draws,
+            engine,
+            proposal_cap,
         }) => run_command(
             scenario,
             RunOptions {
                 draws,
                 seed,
                 paths_per_draw,
+                engine: engine.kind(proposal_cap),
             },
             threads,
             out,

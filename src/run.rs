@@ -6,6 +6,7 @@ use std::sync::atomic::AtomicBool;
 use std::time::{Duration, Instant};
 
 use crate::checks::{CheckReport, Finding, Severity, check_conditions};
+use crate::crosscheck::EngineKind;
 use crate::forecast::{
     DrawSpec, ForecastError, ParamSource, PathSet, Plan, RootSummary, Sampling, Theta,
     build_thetas, path_weights,
@@ -25,6 +26,8 @@ pub struct RunOptions {
     pub draws: Option<usize>,
     pub seed: Option<u64>,
     pub paths_per_draw: Option<usize>,
+    /// The engine that draws the paths.
+    pub engine: EngineKind,
 }
 
 /// Errors of a run.
@@ -60,6 +63,8 @@ pub struct RunOutcome {
     pub checks: CheckReport,
     /// With reweighting: the effective sample size of the weighted posterior draws.
     pub effective_draws: Option<f64>,
+    /// The engine that drew the paths.
+    pub engine: EngineKind,
 }
 
 /// The posterior draws a scenario asks for (`count` of them).
@@ -225,6 +230,7 @@ pub fn run(setup: &mut Setup, options: &RunOptions) -> Result<RunOutcome, RunErr
         seed: file.seed,
         reweight: file.reweight,
         min_acceptance: file.checks.min_acceptance,
+        engine: options.engine,
     };
     let mut paths = sample_paths(&set, 0..set.thetas.len(), &conditions, how, &cancel)?;
     paths.keep_only(|p| displayable(setup, p));
@@ -254,6 +260,7 @@ pub fn run(setup: &mut Setup, options: &RunOptions) -> Result<RunOutcome, RunErr
         paths,
         checks,
         effective_draws,
+        engine: options.engine,
     })
 }
 
@@ -323,6 +330,20 @@ pub fn summary(setup: &Setup, out: &RunOutcome) -> String {
             format!("{k} {one}s")
         }
     };
+    if out.engine != EngineKind::Main {
+        let extra = match out.engine {
+            EngineKind::Rejection { .. } => format!(
+                ": {} proposals for {paths} paths (acceptance {:.2e}, an estimate of the corridors' probability)",
+                out.paths.proposals,
+                paths as f64 / out.paths.proposals.max(1) as f64
+            ),
+            _ => String::new(),
+        };
+        s.push(format!(
+            "engine     {} (a cross-check){extra}",
+            out.engine.name()
+        ));
+    }
     s.push(format!(
         "conditions {} {} (largest relative error {:.1e}); {} {} (largest violation {:.1e}); {drivers}",
         plural(pins, "pin"),

@@ -199,6 +199,7 @@ fn engine_paths(setup: &Setup, theta: Theta) -> Vec<DVector<f64>> {
         seed: 5,
         reweight: false,
         min_acceptance: 1e-5,
+        engine: tiltyard::crosscheck::EngineKind::Main,
     };
     let out = sample_paths(
         &set,
@@ -387,6 +388,7 @@ fn hopeless_draws_fail_fast_and_are_named() {
         seed: 1,
         reweight: false,
         min_acceptance: 0.99999,
+        engine: tiltyard::crosscheck::EngineKind::Main,
     };
     let paths = sample_paths(&set, 0..3, &setup.conditions().unwrap(), how, &cancel).unwrap();
     assert_eq!((paths.failures.len(), paths.attempted), (3, 3));

@@ -243,6 +243,7 @@ fn sampled_paths_match_rejection_sampling() {
             seed: 9,
             reweight: false,
             min_acceptance: 1e-5,
+            engine: tiltyard::crosscheck::EngineKind::Main,
         };
         let cond = setup.conditions().unwrap();
         let out = sample_paths(&set, 0..1, &cond, how, &AtomicBool::new(false)).unwrap();

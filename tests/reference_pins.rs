@@ -115,6 +115,7 @@ fn sampled_paths_match_numpy_within_monte_carlo_error() {
             seed: 5,
             reweight: false,
             min_acceptance: 1e-5,
+            engine: tiltyard::crosscheck::EngineKind::Main,
         };
         let out = sample_paths(&set, 0..1, &cond, how, &AtomicBool::new(false)).unwrap();
         let name = case["name"].as_str().unwrap();

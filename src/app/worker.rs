@@ -398,6 +398,7 @@ fn sampling(file: &ScenarioFile, paths_per_theta: usize) -> Sampling {
         seed: file.seed,
         reweight: file.reweight,
         min_acceptance: file.checks.min_acceptance,
+        engine: crate::crosscheck::EngineKind::Main,
     }
 }
 

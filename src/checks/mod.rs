@@ -396,6 +396,8 @@ fn describe(e: &ForecastError) -> (&'static str, Vec<String>, &'static str) {
         | ForecastError::NotFinite { .. }
         | ForecastError::NotStationary { .. }
         | ForecastError::TooManyFailed { .. }
+        | ForecastError::Unsupported { .. }
+        | ForecastError::GaveUp { .. }
         | ForecastError::Cancelled => (
             "numerical",
             Vec::new(),

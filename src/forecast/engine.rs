@@ -23,6 +23,7 @@ use super::{
     rows::Rows,
     theta::Theta,
 };
+use crate::crosscheck::{Conditioner, EngineKind};
 use crate::model::{Params, Posterior};
 
 /// Where the parameters come from.
@@ -255,6 +256,8 @@ pub struct PathSet {
     pub attempted: usize,
     /// True for the paths of fixed coefficients (failures then count paths).
     pub fixed: bool,
+    /// Proposals behind the kept paths (naive rejection: its acceptance share).
+    pub proposals: usize,
 }
 
 impl PathSet {
@@ -267,6 +270,7 @@ impl PathSet {
         self.log_weights.extend(b.log_weights);
         self.failures.extend(b.failures);
         self.attempted += b.attempted;
+        self.proposals += b.proposals;
         for note in b.notes {
             if !self.notes.contains(&note) {
                 self.notes.push(note);
@@ -371,6 +375,8 @@ pub struct Sampling {
     pub reweight: bool,
     /// Refuse a θ whose corridor sampler would accept fewer than this share of its proposals.
     pub min_acceptance: f64,
+    /// The engine that draws the paths (the main one unless cross-checking).
+    pub engine: EngineKind,
 }
 
 /// Proposals behind each θ's acceptance estimate before its paths are drawn: a screen for
@@ -456,7 +462,20 @@ fn one_theta(
         fixed: set.fixed,
         ..PathSet::default()
     };
-    let planned = plan_for(theta, shared, cond, how, i, draw).map_err(name);
+    let planned = match how.engine {
+        EngineKind::Main => plan_for(theta, shared, cond, how, i, draw)
+            .map(|(plan, w)| (Conditioner::Main(Box::new(plan)), w)),
+        other if how.reweight => Err(ForecastError::Unsupported {
+            engine: other.name().into(),
+            what: "does not reweight posterior draws".into(),
+        }),
+        other => shared
+            .rows
+            .map_or_else(|| Rows::new(theta, cond, draw), |r| Ok(r.clone()))
+            .and_then(|rows| Conditioner::cross_check(other, theta, rows, cond, draw))
+            .map(|c| (c, None)),
+    }
+    .map_err(name);
     let (plan, log_weight) = match planned {
         Ok(p) => p,
         Err(ForecastError::Cancelled) => return Err(ForecastError::Cancelled),
@@ -474,19 +493,21 @@ fn one_theta(
                 let index = (i * per + j) as u64;
                 let mut rng = stream(how.seed, Purpose::Paths, index);
                 out.attempted += 1;
-                let drawn = plan.sample(theta, &mut rng).and_then(|(y, ystar)| {
+                let drawn = plan.sample(theta, &mut rng).and_then(|(y, ystar, tried)| {
                     let finite = y.iter().chain(&ystar).all(|v| v.is_finite());
                     if finite {
-                        Ok((y, ystar))
+                        Ok((y, ystar, tried))
                     } else {
                         Err(ForecastError::NotFinite { draw })
                     }
                 });
                 match drawn {
-                    Ok((y, ystar)) => {
-                        out.max_pin_error = out.max_pin_error.max(plan.pin_error(&y));
-                        out.max_corridor_violation =
-                            out.max_corridor_violation.max(plan.corridor_violation(&y));
+                    Ok((y, ystar, tried)) => {
+                        out.proposals += tried;
+                        out.max_pin_error = out.max_pin_error.max(plan.rows().pin_error(&y));
+                        out.max_corridor_violation = out
+                            .max_corridor_violation
+                            .max(plan.rows().corridor_violation(&y));
                         out.conditional.push(y);
                         out.unconditional.push(ystar);
                         out.sources.push(i);
@@ -501,7 +522,7 @@ fn one_theta(
         })
         .collect::<Result<_, _>>()?;
     let mut out = PathSet {
-        notes: plan.notes().to_vec(),
+        notes: plan.rows().notes.clone(),
         fixed: set.fixed,
         ..PathSet::default()
     };

@@ -112,6 +112,16 @@ pub enum ForecastError {
         fixed: bool,
         first: Box<engine::Failure>,
     },
+    #[error("the {engine} engine {what}; use the main engine (--engine main)")]
+    Unsupported { engine: String, what: String },
+    #[error(
+        "naive rejection gave up after {proposals} proposals without a path inside the corridors{}: their probability is too small for this engine; the main engine samples them exactly",
+        at_draw(*draw)
+    )]
+    GaveUp {
+        proposals: usize,
+        draw: Option<usize>,
+    },
     #[error("cancelled")]
     Cancelled,
 }
@@ -176,6 +186,13 @@ impl ForecastError {
                 draw: Some(i),
             },
             ForecastError::NotFinite { draw: None } => ForecastError::NotFinite { draw: Some(i) },
+            ForecastError::GaveUp {
+                proposals,
+                draw: None,
+            } => ForecastError::GaveUp {
+                proposals,
+                draw: Some(i),
+            },
             other => other,
         }
     }

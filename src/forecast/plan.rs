@@ -225,6 +225,11 @@ impl Plan {
         names
     }
 
+    /// The conditions' rows.
+    pub fn rows(&self) -> &Rows {
+        &self.rows
+    }
+
     /// What the row analysis dropped or merged.
     pub fn notes(&self) -> &[String] {
         &self.rows.notes
@@ -236,24 +241,51 @@ impl Plan {
         theta: &Theta,
         rng: &mut R,
     ) -> Result<(Vec<f64>, Vec<f64>), ForecastError> {
-        let m = self.pin_count();
         let eps: Vec<f64> = (0..theta.len())
             .map(|_| StandardNormal.sample(rng))
             .collect();
-        let ystar = DVector::from_vec(theta.path_from_shocks(&eps));
+        let z = match &self.law {
+            Some(law) => {
+                let nondrivers: Vec<f64> = self.rest.iter().map(|&c| eps[c]).collect();
+                Some(law.draw(&nondrivers, rng, self.draw)?)
+            }
+            None => None,
+        };
+        Ok(self.complete(theta, &eps, z.as_ref()))
+    }
+
+    /// The conditional path made from the standard normal shocks `ε*` (and, with corridors,
+    /// the corridor quantities `z`), with the unconditional path `y* = μ + M ε*`.
+    fn complete(
+        &self,
+        theta: &Theta,
+        eps: &[f64],
+        z: Option<&DVector<f64>>,
+    ) -> (Vec<f64>, Vec<f64>) {
+        let m = self.pin_count();
+        let ystar = DVector::from_vec(theta.path_from_shocks(eps));
         let mut target = self.rows.values.clone();
-        if let Some(law) = &self.law {
-            let nondrivers: Vec<f64> = self.rest.iter().map(|&c| eps[c]).collect();
-            let z = law.draw(&nondrivers, rng, self.draw)?;
+        if let Some(z) = z {
             target = target.resize_vertically(m + z.len(), 0.0);
-            target.rows_mut(m, z.len()).copy_from(&z);
+            target.rows_mut(m, z.len()).copy_from(z);
         }
         let mut y = ystar.clone();
         for _ in 0..2 {
             let gap = &target - &self.stacked * &y;
             y += &self.gain * gap;
         }
-        Ok((y.as_slice().to_vec(), ystar.as_slice().to_vec()))
+        (y.as_slice().to_vec(), ystar.as_slice().to_vec())
+    }
+
+    /// The pinned path made from given standard normal shocks `ε*` (plans without corridors:
+    /// the building block of naive rejection), with the unconditional path.
+    pub fn from_shocks(&self, theta: &Theta, eps: &[f64]) -> (Vec<f64>, Vec<f64>) {
+        self.complete(theta, eps, None)
+    }
+
+    /// The driver cells (`None`: every shock moves).
+    pub fn driver_cells(&self) -> Option<&[usize]> {
+        self.cells.as_deref()
     }
 
     /// Largest relative pin error of a path (over every pin, also those found redundant).
