@@ -19,7 +19,7 @@ use crate::checks::{CheckReport, check_conditions};
 use crate::dataset::Period;
 use crate::forecast::{
     Conditions, DrawSpec, ParamSource, PathSet, Sampling, Theta, ThetaSet, build_thetas,
-    sample_paths,
+    preview::Preview, sample_paths,
 };
 use crate::report::{FanRow, Kind, fans};
 use crate::scenario::{ScenarioError, ScenarioFile, Setup, Units, units::display_value};
@@ -142,6 +142,8 @@ struct ModelCache {
     central_label: String,
     /// Posterior draws, made after the first fans and the checks, then kept for edits.
     thetas: Option<ThetaSet>,
+    /// The first tier's paths at the central θ, reused across edits.
+    preview: Preview,
     model_line: String,
 }
 
@@ -232,7 +234,7 @@ fn process(
         send(Message::State(g, EngineState::Estimating));
         *cache = Some(estimate(&setup, key)?);
     }
-    let Some(model) = cache.as_ref() else {
+    let Some(model) = cache.as_mut() else {
         return Err("no model".into());
     };
     send(Message::Model(g, model.model_line.clone()));
@@ -244,16 +246,17 @@ fn process(
     // Invalid conditions are clashes; no preview is shown for them.
     let fixed = matches!(model.source, ParamSource::Fixed(_));
     let total = if fixed { 0 } else { setup.file.draws };
-    let show = |paths: &PathSet, without_conditions: bool| {
+    let publish = |model: &ModelCache, paths: &PathSet, without_conditions: bool| {
         let shocks = Shocks::of(paths, |_| &model.central)?;
         let mut r = results(&setup, paths, &shocks, 0, total, !fixed);
         r.without_conditions = without_conditions;
         send(Message::Results(g, Arc::new(r)));
         Ok(())
     };
-    let first = problems
-        .is_empty()
-        .then(|| preview(&setup, model, &conditions, job).and_then(|paths| show(&paths, false)));
+    let first = problems.is_empty().then(|| {
+        preview(&setup, &mut model.preview, &conditions, job)
+            .and_then(|paths| publish(model, &paths, false))
+    });
     if cancelled() {
         return Ok(());
     }
@@ -274,9 +277,9 @@ fn process(
         // Something to look at when the window has no earlier fans (it keeps those if it has):
         // the forecast without the conditions.
         if !matches!(first, Some(Ok(())))
-            && let Ok(paths) = preview(&setup, model, &Conditions::default(), job)
+            && let Ok(paths) = preview(&setup, &mut model.preview, &Conditions::default(), job)
         {
-            show(&paths, true).map_err(text)?;
+            publish(model, &paths, true).map_err(text)?;
         }
         return Ok(());
     }
@@ -340,6 +343,10 @@ fn estimate(setup: &Setup, key: String) -> Result<ModelCache, String> {
     };
     let tail = setup.tail().map_err(text)?;
     let central = Theta::new(params, &setup.ordering, &tail, file.horizon).map_err(text)?;
+    let preview_count = match source {
+        ParamSource::Fixed(_) => file.draws * file.paths_per_draw,
+        ParamSource::Posterior(_) => PREVIEW_PATHS,
+    };
     let p = setup.lags();
     let model_line = match (&fit, &source) {
         (_, ParamSource::Fixed(_)) => format!(
@@ -366,6 +373,7 @@ fn estimate(setup: &Setup, key: String) -> Result<ModelCache, String> {
     Ok(ModelCache {
         key,
         source,
+        preview: Preview::new(central.clone(), preview_count, file.seed),
         central,
         central_label: central_label.into(),
         thetas: None,
@@ -402,26 +410,16 @@ fn sampling(file: &ScenarioFile, paths_per_theta: usize) -> Sampling {
     }
 }
 
-/// Tier 0: paths at the central θ alone (for fixed coefficients, all the paths there are).
+/// Tier 0: paths at the central θ alone (for fixed coefficients, all the paths there are),
+/// reusing the randomness and, when only values changed, the plan of the previous edit.
 fn preview(
     setup: &Setup,
-    model: &ModelCache,
+    tier0: &mut Preview,
     conditions: &Conditions,
     job: &Job,
 ) -> Result<PathSet, crate::forecast::ForecastError> {
     let file = &setup.file;
-    let central = ThetaSet::single(model.central.clone());
-    let paths = match model.source {
-        ParamSource::Fixed(_) => file.draws * file.paths_per_draw,
-        ParamSource::Posterior(_) => PREVIEW_PATHS,
-    };
-    let mut paths = sample_paths(
-        &central,
-        0..1,
-        conditions,
-        sampling(file, paths),
-        &job.cancel,
-    )?;
+    let mut paths = tier0.update(conditions, sampling(file, 1), &job.cancel)?;
     paths.keep_only(|p| crate::report::displayable(setup, p));
     paths.within(file.checks.max_failed_share)
 }

@@ -20,6 +20,8 @@ use crate::forecast::{
     ForecastError, Theta,
     conditions::Conditions,
     corridor::{CorridorLaw, LawRows},
+    plan::Drawn,
+    product::mul,
     rows::Rows,
 };
 
@@ -190,51 +192,79 @@ impl DensePlan {
         Some((mean, cov))
     }
 
-    /// One conditional path and the unconditional path it was made from.
-    pub fn sample<R: Rng + ?Sized>(
-        &self,
-        rng: &mut R,
-    ) -> Result<(Vec<f64>, Vec<f64>), ForecastError> {
-        let big_n = self.mean.len();
-        let m = self.rows.pins.nrows();
-        let normals =
-            |rng: &mut R| DVector::from_fn(big_n, |_, _| StandardNormal.sample(&mut *rng));
-        match &self.route {
-            Route::Free { chol, w } => {
-                let ystar = &self.mean + chol * normals(rng);
-                let mut target = self.rows.values.clone();
-                if let Some(law) = &self.law {
-                    let z = law.draw(&[], rng, self.draw)?;
-                    target = target.resize_vertically(m + z.len(), 0.0);
-                    target.rows_mut(m, z.len()).copy_from(&z);
+    /// One path per random stream (its N normals, then its corridor quantities), the
+    /// products over all of them at once.
+    pub fn sample_many<R: Rng + ?Sized>(&self, rngs: &mut [&mut R]) -> Vec<Drawn> {
+        let (big_n, count, m) = (self.mean.len(), rngs.len(), self.rows.pins.nrows());
+        let k = self.stacked.nrows();
+        let mut normals = DMatrix::zeros(big_n, count);
+        let mut target = DMatrix::zeros(k, count);
+        let mut failed: Vec<Option<ForecastError>> = vec![None; count];
+        let rest: &[usize] = match &self.route {
+            Route::Free { .. } => &[],
+            Route::Drivers { rest, .. } => rest,
+        };
+        let free = matches!(self.route, Route::Free { .. });
+        for (j, rng) in rngs.iter_mut().enumerate() {
+            for i in 0..big_n {
+                normals[(i, j)] = StandardNormal.sample(&mut **rng);
+            }
+            let pins = if free {
+                &self.rows.values
+            } else {
+                &self.rtilde
+            };
+            target.view_mut((0, j), (m, 1)).copy_from(pins);
+            if let Some(law) = &self.law {
+                let nondrivers: Vec<f64> = rest.iter().map(|&c| normals[(c, j)]).collect();
+                match law.draw(&nondrivers, &mut **rng, self.draw) {
+                    Ok(z) => {
+                        let z = if free { z } else { z - &self.smean };
+                        target.view_mut((m, j), (z.len(), 1)).copy_from(&z);
+                    }
+                    Err(e) => failed[j] = Some(e),
                 }
-                let y = &ystar + w * (target - &self.stacked * &ystar);
-                Ok((y.as_slice().to_vec(), ystar.as_slice().to_vec()))
+            }
+        }
+        let add_mean = |mut x: DMatrix<f64>| {
+            for mut col in x.column_iter_mut() {
+                col += &self.mean;
+            }
+            x
+        };
+        let (y, ystar) = match &self.route {
+            Route::Free { chol, w } => {
+                let ystar = add_mean(chol * &normals);
+                let y = &ystar + mul(w, &(target - mul(&self.stacked, &ystar)));
+                (y, ystar)
             }
             Route::Drivers {
                 m: dense_m,
                 f,
                 cells,
-                rest,
                 gain,
+                ..
             } => {
-                let estar = normals(rng);
-                let ystar = &self.mean + dense_m * &estar;
-                let mut target = self.rtilde.clone();
-                if let Some(law) = &self.law {
-                    let nondrivers: Vec<f64> = rest.iter().map(|&c| estar[c]).collect();
-                    let z = law.draw(&nondrivers, rng, self.draw)? - &self.smean;
-                    target = target.resize_vertically(m + z.len(), 0.0);
-                    target.rows_mut(m, z.len()).copy_from(&z);
-                }
-                let step = gain * (target - f * &estar);
-                let mut eps = estar;
+                let ystar = add_mean(dense_m * &normals);
+                let step = mul(gain, &(target - mul(f, &normals)));
+                let mut eps = normals;
                 for (k, &c) in cells.iter().enumerate() {
-                    eps[c] += step[k];
+                    let row = eps.row(c) + step.row(k);
+                    eps.set_row(c, &row);
                 }
-                let y = &self.mean + dense_m * eps;
-                Ok((y.as_slice().to_vec(), ystar.as_slice().to_vec()))
+                (add_mean(dense_m * eps), ystar)
             }
-        }
+        };
+        failed
+            .into_iter()
+            .enumerate()
+            .map(|(j, f)| match f {
+                Some(e) => Err(e),
+                None => Ok((
+                    y.column(j).iter().copied().collect(),
+                    ystar.column(j).iter().copied().collect(),
+                )),
+            })
+            .collect()
     }
 }

@@ -21,7 +21,9 @@ use nalgebra::{DMatrix, DVector};
 use rand::Rng;
 use rand_distr::{Distribution, StandardNormal};
 
-use crate::forecast::{ForecastError, Theta, conditions::Conditions, rows::Rows};
+use crate::forecast::{
+    ForecastError, Theta, conditions::Conditions, plan::Drawn, product::mul, rows::Rows,
+};
 
 /// The observation step of one period (empty when nothing is pinned there).
 #[derive(Debug, Clone)]
@@ -58,16 +60,17 @@ fn transition(lags: &[DMatrix<f64>], n: usize, d: usize, x: &DMatrix<f64>) -> DM
     out
 }
 
-/// `T' x`: `(T'x)_j = B_{j+1}' x_0 + x_{j+1}`.
-fn transition_t(lags: &[DMatrix<f64>], n: usize, d: usize, x: &DVector<f64>) -> DVector<f64> {
-    let mut out = DVector::zeros(n * d);
+/// `T' X` (columns of state vectors): `(T'X)_j = B_{j+1}' X_0 + X_{j+1}`.
+fn transition_t(lags: &[DMatrix<f64>], n: usize, d: usize, x: &DMatrix<f64>) -> DMatrix<f64> {
+    let mut out = DMatrix::zeros(n * d, x.ncols());
     let top = x.rows(0, n);
     for (j, b) in lags.iter().enumerate() {
-        out.rows_mut(j * n, n).gemv_tr(1.0, b, &top, 0.0);
+        out.rows_mut(j * n, n).gemm(1.0, &b.transpose(), &top, 0.0);
     }
     for j in 0..d - 1 {
         let next = x.rows((j + 1) * n, n).into_owned();
-        out.rows_mut(j * n, n).axpy(1.0, &next, 1.0);
+        let mut block = out.rows_mut(j * n, n);
+        block += &next;
     }
     out
 }
@@ -181,38 +184,39 @@ impl KalmanPlan {
         &self.rows
     }
 
-    /// The smoothed path of the zero-mean system given observations `x` (one per kept pin).
-    fn correction(&self, x: &DVector<f64>) -> Vec<f64> {
+    /// The smoothed paths of the zero-mean system given observations `x` (one row per kept
+    /// pin, one column per path), as columns.
+    fn correction(&self, x: &DMatrix<f64>) -> DMatrix<f64> {
         let (n, d) = (self.n, self.d);
-        let h = self.steps.len();
-        let mut a = DMatrix::zeros(n * d, 1);
+        let (h, count) = (self.steps.len(), x.ncols());
+        let mut a = DMatrix::zeros(n * d, count);
         let mut a_top = Vec::with_capacity(h);
-        let mut innovations: Vec<DVector<f64>> = Vec::with_capacity(h);
+        let mut innovations: Vec<DMatrix<f64>> = Vec::with_capacity(h);
         for step in &self.steps {
             a_top.push(a.rows(0, n).into_owned());
             if step.pins.is_empty() {
-                innovations.push(DVector::zeros(0));
+                innovations.push(DMatrix::zeros(0, count));
             } else {
-                let obs = DVector::from_iterator(step.pins.len(), step.pins.iter().map(|&i| x[i]));
-                let v = obs - &step.z * a.column(0);
-                a += &step.gain * &v;
+                let obs = DMatrix::from_fn(step.pins.len(), count, |k, c| x[(step.pins[k], c)]);
+                let v = obs - mul(&step.z, &a);
+                a += mul(&step.gain, &v);
                 innovations.push(v);
             }
             a = transition(&self.lags, n, d, &a);
         }
-        let mut r = DVector::zeros(n * d);
-        let mut out = vec![0.0; n * h];
+        let mut r = DMatrix::zeros(n * d, count);
+        let mut out = DMatrix::zeros(n * h, count);
         for t in (0..h).rev() {
             let step = &self.steps[t];
             let tr = transition_t(&self.lags, n, d, &r);
             r = if step.pins.is_empty() {
                 tr
             } else {
-                let u = &step.finv * &innovations[t] - step.gain.tr_mul(&tr);
-                step.z.tr_mul(&u) + tr
+                let u = mul(&step.finv, &innovations[t]) - mul(&step.gain.transpose(), &tr);
+                mul(&step.z.transpose(), &u) + tr
             };
-            let s_top = &a_top[t] + &self.p_top[t] * &r;
-            out[t * n..(t + 1) * n].copy_from_slice(s_top.as_slice());
+            let s_top = &a_top[t] + mul(&self.p_top[t], &r);
+            out.rows_mut(t * n, n).copy_from(&s_top);
         }
         out
     }
@@ -220,23 +224,39 @@ impl KalmanPlan {
     /// The smoothed (pinned) mean path: `μ + A(r − R μ)`.
     pub fn mean(&self, theta: &Theta) -> Vec<f64> {
         let mu = DVector::from_column_slice(&theta.mean);
-        let delta = self.correction(&(&self.rows.values - &self.rows.pins * &mu));
-        mu.iter().zip(&delta).map(|(a, b)| a + b).collect()
+        let x = &self.rows.values - &self.rows.pins * &mu;
+        let delta = self.correction(&DMatrix::from_column_slice(x.len(), 1, x.as_slice()));
+        mu.iter().zip(delta.iter()).map(|(a, b)| a + b).collect()
     }
 
-    /// One conditional path and the unconditional path it was made from.
-    pub fn sample<R: Rng + ?Sized>(
-        &self,
-        theta: &Theta,
-        rng: &mut R,
-    ) -> Result<(Vec<f64>, Vec<f64>), ForecastError> {
-        let eps: Vec<f64> = (0..theta.len())
-            .map(|_| StandardNormal.sample(rng))
-            .collect();
-        let ystar = theta.path_from_shocks(&eps);
-        let x = &self.rows.values - &self.rows.pins * DVector::from_column_slice(&ystar);
-        let delta = self.correction(&x);
-        let y = ystar.iter().zip(&delta).map(|(a, b)| a + b).collect();
-        Ok((y, ystar))
+    /// One path per random stream (its N normals): `y⁺` simulated, then corrected by the
+    /// smoother, all paths at once.
+    pub fn sample_many<R: Rng + ?Sized>(&self, theta: &Theta, rngs: &mut [&mut R]) -> Vec<Drawn> {
+        let big_n = theta.len();
+        let mut ystar = DMatrix::zeros(big_n, rngs.len());
+        for (j, rng) in rngs.iter_mut().enumerate() {
+            for i in 0..big_n {
+                ystar[(i, j)] = StandardNormal.sample(&mut **rng);
+            }
+        }
+        theta.shocks_to_paths(&mut ystar);
+        for mut col in ystar.column_iter_mut() {
+            for (v, mu) in col.iter_mut().zip(&theta.mean) {
+                *v += mu;
+            }
+        }
+        let mut x = -mul(&self.rows.pins, &ystar);
+        for mut col in x.column_iter_mut() {
+            col += &self.rows.values;
+        }
+        let y = &ystar + self.correction(&x);
+        (0..rngs.len())
+            .map(|j| {
+                Ok((
+                    y.column(j).iter().copied().collect(),
+                    ystar.column(j).iter().copied().collect(),
+                ))
+            })
+            .collect()
     }
 }

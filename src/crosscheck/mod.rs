@@ -16,6 +16,9 @@ use rand::Rng;
 
 use crate::forecast::{ForecastError, Plan, Theta, conditions::Conditions, rows::Rows};
 
+/// One drawn path with the proposals it took.
+pub type Tried = Result<(Vec<f64>, Vec<f64>, usize), ForecastError>;
+
 /// Which engine draws the paths.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
 pub enum EngineKind {
@@ -86,19 +89,15 @@ impl Conditioner {
         }
     }
 
-    /// One conditional path, the unconditional path it was made from, and the proposals it
-    /// took (1 except for naive rejection).
-    pub fn sample<R: Rng + ?Sized>(
-        &self,
-        theta: &Theta,
-        rng: &mut R,
-    ) -> Result<(Vec<f64>, Vec<f64>, usize), ForecastError> {
-        let one = |(y, ystar): (Vec<f64>, Vec<f64>)| (y, ystar, 1);
+    /// One path per random stream: the conditional path, the unconditional path it was made
+    /// from, and the proposals it took (1 except for naive rejection).
+    pub fn sample_many<R: Rng + ?Sized>(&self, theta: &Theta, rngs: &mut [&mut R]) -> Vec<Tried> {
+        let one = |r: crate::forecast::plan::Drawn| r.map(|(y, s)| (y, s, 1));
         match self {
-            Conditioner::Main(p) => p.sample(theta, rng).map(one),
-            Conditioner::Dense(p) => p.sample(rng).map(one),
-            Conditioner::Kalman(p) => p.sample(theta, rng).map(one),
-            Conditioner::Rejection(p) => p.sample(theta, rng),
+            Conditioner::Main(p) => p.sample_many(theta, rngs).into_iter().map(one).collect(),
+            Conditioner::Dense(p) => p.sample_many(rngs).into_iter().map(one).collect(),
+            Conditioner::Kalman(p) => p.sample_many(theta, rngs).into_iter().map(one).collect(),
+            Conditioner::Rejection(p) => rngs.iter_mut().map(|r| p.sample_one(theta, *r)).collect(),
         }
     }
 }

@@ -46,7 +46,7 @@ impl RejectionPlan {
 
     /// One conditional path (and the unconditional path of its first proposal), with the
     /// number of proposals it took.
-    pub fn sample<R: Rng + ?Sized>(
+    pub fn sample_one<R: Rng + ?Sized>(
         &self,
         theta: &Theta,
         rng: &mut R,

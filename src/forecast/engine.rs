@@ -486,14 +486,19 @@ fn one_theta(
         .into_par_iter()
         .map(|c| {
             let mut out = PathSet::default();
-            for j in c * PATH_CHUNK..((c + 1) * PATH_CHUNK).min(per) {
-                if cancel.load(Ordering::Relaxed) {
-                    return Err(ForecastError::Cancelled);
-                }
-                let index = (i * per + j) as u64;
-                let mut rng = stream(how.seed, Purpose::Paths, index);
+            if cancel.load(Ordering::Relaxed) {
+                return Err(ForecastError::Cancelled);
+            }
+            let paths = c * PATH_CHUNK..((c + 1) * PATH_CHUNK).min(per);
+            let mut streams: Vec<_> = paths
+                .clone()
+                .map(|j| stream(how.seed, Purpose::Paths, (i * per + j) as u64))
+                .collect();
+            let mut rngs: Vec<_> = streams.iter_mut().collect();
+            let drawn = plan.sample_many(theta, &mut rngs);
+            for (j, result) in paths.zip(drawn) {
                 out.attempted += 1;
-                let drawn = plan.sample(theta, &mut rng).and_then(|(y, ystar, tried)| {
+                let result = result.and_then(|(y, ystar, tried)| {
                     let finite = y.iter().chain(&ystar).all(|v| v.is_finite());
                     if finite {
                         Ok((y, ystar, tried))
@@ -501,7 +506,7 @@ fn one_theta(
                         Err(ForecastError::NotFinite { draw })
                     }
                 });
-                match drawn {
+                match result {
                     Ok((y, ystar, tried)) => {
                         out.proposals += tried;
                         out.max_pin_error = out.max_pin_error.max(plan.rows().pin_error(&y));

@@ -10,6 +10,7 @@
 //! - [`factor`]: the thin QR of the conditions in shock space;
 //! - [`plan`]: conditioning one θ (kriging, or the drivers construction) and drawing paths;
 //! - [`reach`]: the rank condition for drivers;
+//! - [`preview`]: paths at one θ that follow every edit at the least cost;
 //! - [`engine`]: posterior draws and paths over all θ, in parallel and reproducibly;
 //! - [`random`]: per-draw random streams.
 
@@ -19,6 +20,8 @@ pub mod engine;
 pub mod factor;
 pub mod plan;
 pub mod polytope;
+pub mod preview;
+pub mod product;
 pub mod random;
 pub mod reach;
 pub mod rows;

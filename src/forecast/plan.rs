@@ -35,11 +35,15 @@ use super::{
     conditions::Conditions,
     corridor::{CorridorLaw, LawRows},
     factor::Factor,
+    product::mul,
     reach,
     rows::Rows,
     theta::Theta,
 };
 use crate::truncnorm::Probability;
+
+/// One drawn path: the conditional path and the unconditional path it was made from.
+pub type Drawn = Result<(Vec<f64>, Vec<f64>), ForecastError>;
 
 /// The pins-only shock law in low-rank form: `ε = mean + (I − gain · rows) ε*`.
 #[derive(Debug, Clone)]
@@ -140,22 +144,7 @@ impl Plan {
             }
         };
         theta.shocks_to_paths(&mut gain);
-        let law = (q > 0)
-            .then(|| {
-                let on_pins = factor.corridor_on_pins(m);
-                let r_ss = factor.corridor_block(m);
-                let cov = r_ss.transpose() * r_ss;
-                let m0 = &smean + &on_pins * &rtilde;
-                // With drivers the mean moves with the non-driver shocks:
-                // (F_SJ̄ − C F_RJ̄) ε*_J̄.
-                let shift = (!rest.is_empty()).then(|| {
-                    let f_rest =
-                        DMatrix::from_fn(m + q, rest.len(), |i, c| shock_rows[(rest[c], i)]);
-                    f_rest.rows(m, q) - &on_pins * f_rest.rows(0, m)
-                });
-                CorridorLaw::new(cov, m0, shift, law_rows(&rows), like)
-            })
-            .transpose()?;
+        let law = plan_law(&factor, &rows, &rtilde, &smean, &shock_rows, &rest, like)?;
         let model = OnceLock::new();
         if cells.is_none() {
             let _ = model.set(factor.clone());
@@ -174,6 +163,36 @@ impl Plan {
             law,
             draw,
         })
+    }
+
+    /// The same plan for new values of the same conditions: when `rows` (made from the edited
+    /// conditions) stack to exactly this plan's rows, everything but the values is kept — the
+    /// factor, the gain `W` and the corridor law's covariance — and only `r̃`, `Sμ` and the
+    /// law's mean and bounds are made again (ALGORITHMS §8.2, the "values" level). `None` when
+    /// the rows differ.
+    pub fn revalue(&self, theta: &Theta, rows: Rows) -> Option<Result<Plan, ForecastError>> {
+        if rows.stacked() != self.stacked || rows.extra.len() != self.rows.extra.len() {
+            return None;
+        }
+        let mean = DVector::from_column_slice(&theta.mean);
+        let rtilde = &rows.values - &rows.pins * &mean;
+        let smean = &rows.corridors * &mean;
+        let law = plan_law(
+            &self.factor,
+            &rows,
+            &rtilde,
+            &smean,
+            &self.shock_rows,
+            &self.rest,
+            self.law.as_ref(),
+        );
+        Some(law.map(|law| Plan {
+            rows,
+            rtilde,
+            smean,
+            law,
+            ..self.clone()
+        }))
     }
 
     /// The corridor quantities' law under this plan's drivers (none without corridors).
@@ -241,46 +260,98 @@ impl Plan {
         theta: &Theta,
         rng: &mut R,
     ) -> Result<(Vec<f64>, Vec<f64>), ForecastError> {
-        let eps: Vec<f64> = (0..theta.len())
-            .map(|_| StandardNormal.sample(rng))
-            .collect();
-        let z = match &self.law {
-            Some(law) => {
-                let nondrivers: Vec<f64> = self.rest.iter().map(|&c| eps[c]).collect();
-                Some(law.draw(&nondrivers, rng, self.draw)?)
-            }
-            None => None,
-        };
-        Ok(self.complete(theta, &eps, z.as_ref()))
+        let mut one = [rng];
+        self.sample_many(theta, &mut one)
+            .pop()
+            .unwrap_or(Err(ForecastError::Cancelled))
     }
 
-    /// The conditional path made from the standard normal shocks `ε*` (and, with corridors,
-    /// the corridor quantities `z`), with the unconditional path `y* = μ + M ε*`.
-    fn complete(
+    /// One path per random stream, drawn together: each stream gives its path's shocks
+    /// `ε*` (N normals) and then its corridor quantities, so a path is the same whichever
+    /// paths it is drawn with (up to rounding); the recursions and the corrections run as
+    /// matrix products over all of them.
+    pub fn sample_many<R: Rng + ?Sized>(&self, theta: &Theta, rngs: &mut [&mut R]) -> Vec<Drawn> {
+        let (big_n, count) = (theta.len(), rngs.len());
+        let k = self.stacked.nrows();
+        let mut ystar = DMatrix::zeros(big_n, count);
+        let mut target = DMatrix::zeros(k, count);
+        let mut failed: Vec<Option<ForecastError>> = vec![None; count];
+        for (j, rng) in rngs.iter_mut().enumerate() {
+            for i in 0..big_n {
+                ystar[(i, j)] = StandardNormal.sample(&mut **rng);
+            }
+            match self.target(&ystar, j, &mut **rng) {
+                Ok(t) => target.set_column(j, &t),
+                Err(e) => failed[j] = Some(e),
+            }
+        }
+        theta.shocks_to_paths(&mut ystar);
+        for mut col in ystar.column_iter_mut() {
+            for (v, mu) in col.iter_mut().zip(&theta.mean) {
+                *v += mu;
+            }
+        }
+        let gy = self.stacked_times(&ystar);
+        let y = self.correct(&ystar, &gy, &target);
+        failed
+            .into_iter()
+            .enumerate()
+            .map(|(j, f)| match f {
+                Some(e) => Err(e),
+                None => Ok((
+                    y.column(j).iter().copied().collect(),
+                    ystar.column(j).iter().copied().collect(),
+                )),
+            })
+            .collect()
+    }
+
+    /// The conditional paths from unconditional ones (columns of `ystar`, with `gy = 𝒢 y*`)
+    /// and their targets `(r; z)` (columns): `y = y* + W(t − 𝒢y*)`, then once more with the
+    /// same `W` to remove the rounding that long, explosive horizons leave.
+    pub fn correct(
         &self,
-        theta: &Theta,
-        eps: &[f64],
-        z: Option<&DVector<f64>>,
-    ) -> (Vec<f64>, Vec<f64>) {
+        ystar: &DMatrix<f64>,
+        gy: &DMatrix<f64>,
+        target: &DMatrix<f64>,
+    ) -> DMatrix<f64> {
+        let mut y = ystar + mul(&self.gain, &(target - gy));
+        let gap = target - mul(&self.stacked, &y);
+        y += mul(&self.gain, &gap);
+        y
+    }
+
+    /// `𝒢 Y` for paths in the columns of `y`.
+    pub fn stacked_times(&self, y: &DMatrix<f64>) -> DMatrix<f64> {
+        mul(&self.stacked, y)
+    }
+
+    /// The targets `(r; z)` of one path: the pin values, then the corridor quantities drawn
+    /// given the path's non-driver shocks (from its shocks `ε*`, a column of `eps`).
+    pub fn target<R: Rng + ?Sized>(
+        &self,
+        eps: &DMatrix<f64>,
+        j: usize,
+        rng: &mut R,
+    ) -> Result<DVector<f64>, ForecastError> {
         let m = self.pin_count();
-        let ystar = DVector::from_vec(theta.path_from_shocks(eps));
         let mut target = self.rows.values.clone();
-        if let Some(z) = z {
+        if let Some(law) = &self.law {
+            let nondrivers: Vec<f64> = self.rest.iter().map(|&c| eps[(c, j)]).collect();
+            let z = law.draw(&nondrivers, rng, self.draw)?;
             target = target.resize_vertically(m + z.len(), 0.0);
-            target.rows_mut(m, z.len()).copy_from(z);
+            target.rows_mut(m, z.len()).copy_from(&z);
         }
-        let mut y = ystar.clone();
-        for _ in 0..2 {
-            let gap = &target - &self.stacked * &y;
-            y += &self.gain * gap;
-        }
-        (y.as_slice().to_vec(), ystar.as_slice().to_vec())
+        Ok(target)
     }
 
     /// The pinned path made from given standard normal shocks `ε*` (plans without corridors:
     /// the building block of naive rejection), with the unconditional path.
     pub fn from_shocks(&self, theta: &Theta, eps: &[f64]) -> (Vec<f64>, Vec<f64>) {
-        self.complete(theta, eps, None)
+        let ystar = DMatrix::from_vec(eps.len(), 1, theta.path_from_shocks(eps));
+        let target = DMatrix::from_column_slice(self.pin_count(), 1, self.rows.values.as_slice());
+        let y = self.correct(&ystar, &self.stacked_times(&ystar), &target);
+        (y.as_slice().to_vec(), ystar.as_slice().to_vec())
     }
 
     /// The driver cells (`None`: every shock moves).
@@ -442,6 +513,33 @@ fn well_conditioned(
         conditions: involved.iter().map(|&i| labels[i].clone()).collect(),
         draw,
     })
+}
+
+/// The corridor quantities' law under the drivers of `factor` (none without corridors):
+/// mean `Sμ + C r̃` with `C = R_RS'R_RR⁻ᵀ`, covariance `R_SS'R_SS`, and, with drivers, the
+/// mean's shift `(F_SJ̄ − C F_RJ̄) ε*_J̄` by the non-driver shocks.
+fn plan_law(
+    factor: &Factor,
+    rows: &Rows,
+    rtilde: &DVector<f64>,
+    smean: &DVector<f64>,
+    shock_rows: &DMatrix<f64>,
+    rest: &[usize],
+    like: Option<&CorridorLaw>,
+) -> Result<Option<CorridorLaw>, ForecastError> {
+    let (m, q) = (rows.pins.nrows(), rows.corridors.nrows());
+    if q == 0 {
+        return Ok(None);
+    }
+    let on_pins = factor.corridor_on_pins(m);
+    let r_ss = factor.corridor_block(m);
+    let cov = r_ss.transpose() * r_ss;
+    let m0 = smean + &on_pins * rtilde;
+    let shift = (!rest.is_empty()).then(|| {
+        let f_rest = DMatrix::from_fn(m + q, rest.len(), |i, c| shock_rows[(rest[c], i)]);
+        f_rest.rows(m, q) - &on_pins * f_rest.rows(0, m)
+    });
+    CorridorLaw::new(cov, m0, shift, law_rows(rows), like).map(Some)
 }
 
 /// The corridor rows of a plan as a law needs them.

@@ -392,6 +392,30 @@ impl Rows {
             .fold(0.0, f64::max)
     }
 
+    /// The largest pin error and corridor violation over the paths in the columns of `y`
+    /// (as [`Rows::pin_error`] and [`Rows::corridor_violation`], as two matrix products).
+    pub fn errors(&self, y: &DMatrix<f64>) -> (f64, f64) {
+        let (pins, values) = &self.every_pin;
+        let (rows, lower, upper) = &self.every_corridor;
+        let at_pins = super::product::mul(pins, y);
+        let at_rows = super::product::mul(rows, y);
+        let mut pin: f64 = 0.0;
+        let mut corridor: f64 = 0.0;
+        for col in at_pins.column_iter() {
+            for (v, r) in col.iter().zip(values.iter()) {
+                pin = pin.max((v - r).abs() / (1.0 + r.abs()));
+            }
+        }
+        for col in at_rows.column_iter() {
+            for (i, v) in col.iter().enumerate() {
+                let below = (lower[i] - v) / (1.0 + lower[i].abs());
+                let above = (v - upper[i]) / (1.0 + upper[i].abs());
+                corridor = corridor.max(below.max(above));
+            }
+        }
+        (pin, corridor)
+    }
+
     /// Largest corridor violation of a path over every corridor row as given, relative to
     /// `1 + |bound|` (0 when every corridor holds).
     pub fn corridor_violation(&self, y: &[f64]) -> f64 {
