@@ -77,7 +77,7 @@ fn engine(name: &str) -> EngineKind {
     match name {
         "dense" => EngineKind::Dense,
         "kalman" => EngineKind::Kalman,
-        "rejection" => EngineKind::Rejection { cap: 10_000_000 },
+        "rejection" => EngineKind::Rejection { cap: 100_000 },
         _ => EngineKind::Main,
     }
 }
@@ -302,6 +302,54 @@ fn child_flops() -> String {
     )
 }
 
+/// A window that never opens a dialog.
+struct NoDialogs;
+
+impl tiltyard::app::files::PathPicker for NoDialogs {
+    fn open(&self, _: &Path) -> Option<PathBuf> {
+        None
+    }
+    fn save(&self, _: &Path, _: &str) -> Option<PathBuf> {
+        None
+    }
+    fn dataset(&self, _: &Path) -> Option<PathBuf> {
+        None
+    }
+}
+
+/// `frames:FILE`: the window (headless, egui_kittest at 1600×1000: layout and tessellation,
+/// no painting on a GPU) from opening the scenario until all its draws are in; the longest and the median
+/// frame while the engine works.
+fn child_frames(args: &[&str]) -> String {
+    let path = data(args[0]);
+    let app = tiltyard::app::TiltyardApp::new(&path, Arc::new(NoDialogs), Arc::new(|| {}));
+    let mut h = egui_kittest::Harness::builder()
+        .with_size(egui::Vec2::new(1600.0, 1000.0))
+        .build_ui_state(|ui, app: &mut tiltyard::app::TiltyardApp| app.ui(ui), app);
+    let start = Instant::now();
+    let mut frames = Vec::new();
+    while start.elapsed() < Duration::from_secs(120) {
+        let t = Instant::now();
+        h.step();
+        // What a renderer would ask of the CPU next: the frame's shapes as triangles.
+        let shapes = h.output().shapes.clone();
+        std::hint::black_box(h.ctx.tessellate(shapes, 1.0));
+        frames.push(t.elapsed());
+        let app = h.state();
+        if !app.busy() && app.results.is_some() {
+            break;
+        }
+        std::thread::sleep(Duration::from_millis(5));
+    }
+    let count = frames.len();
+    let longest = frames.iter().max().copied().unwrap_or_default();
+    format!(
+        "frames={count} longest_ms={:.1} median_ms={:.1}",
+        longest.as_secs_f64() * 1e3,
+        median(&mut frames).as_secs_f64() * 1e3
+    )
+}
+
 fn child(case: &str) {
     let parts: Vec<&str> = case.split(':').collect();
     let out = match parts[0] {
@@ -310,6 +358,7 @@ fn child(case: &str) {
         "edit" => child_edit(&parts[1..]),
         "roots" => child_roots(&parts[1..]),
         "flops" => child_flops(),
+        "frames" => child_frames(&parts[1..]),
         other => format!("error=unknown_case_{other}"),
     };
     println!("{out}");
@@ -472,6 +521,15 @@ fn main() {
         println!(
             "largest root at L: {r:.2} ms per eigenvalue decomposition, {d:.2} ms per posterior draw (one core); measured on 200 of 2,000 draws: {:.1}% of the run",
             100.0 * 200.0 * r / (2000.0 * d)
+        );
+    }
+    for file in ["l-estimated.ron", "m-estimated.ron"] {
+        let frames = measure(&format!("frames:{file}"));
+        println!(
+            "window frames at {file} while the engine works (headless, 1600×1000): longest {} ms, median {} ms over {} frames",
+            cell(num(&frames, "longest_ms"), 1),
+            cell(num(&frames, "median_ms"), 1),
+            cell(num(&frames, "frames"), 0)
         );
     }
     let flops = measure("flops");

@@ -16,6 +16,7 @@
 pub mod chart;
 pub mod document;
 pub mod files;
+pub mod grid;
 pub mod palette;
 pub mod panels;
 pub mod settings;
@@ -88,6 +89,10 @@ pub struct TiltyardApp {
     // Interface.
     pub charts: HashMap<(Subject, usize), ChartMemory>,
     pub hidden: HashSet<String>,
+    /// The chart grid's order, search and page.
+    pub grid: grid::GridView,
+    /// What the series list is narrowed to.
+    pub list_filter: String,
     pub selected: Option<CondRef>,
     /// Series charts or shock charts.
     pub view: Subject,
@@ -147,7 +152,9 @@ impl TiltyardApp {
             Err(e) => Some(format!("the engine thread could not start: {e}")),
         };
         let prompt = files::newer_recovery(path).map(|r| Prompt::Recover { edits: Box::new(r) });
+        let grid_view = grid::GridView::for_file(&doc.file);
         TiltyardApp {
+            grid: grid_view,
             doc,
             notice,
             jobs,
@@ -165,6 +172,7 @@ impl TiltyardApp {
             first_update: None,
             charts: HashMap::new(),
             hidden: HashSet::new(),
+            list_filter: String::new(),
             selected: None,
             view: Subject::Series,
             snapping: true,
@@ -723,6 +731,8 @@ impl TiltyardApp {
         self.notice = None;
         self.charts.clear();
         self.hidden.clear();
+        self.grid = grid::GridView::for_file(&self.doc.file);
+        self.list_filter.clear();
     }
 
     /// Let the unsaved edits go: on close at once, otherwise once the next scenario is there.

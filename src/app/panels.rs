@@ -4,7 +4,7 @@
 
 use egui::{Color32, RichText};
 
-use super::chart::{self, ChartInput, CondRef};
+use super::chart::CondRef;
 use super::files::Purpose;
 use super::palette::Palette;
 use super::worker::{EngineState, Subject};
@@ -26,7 +26,7 @@ pub fn palette(ui: &egui::Ui) -> Palette {
     Palette::for_theme(ui.visuals().dark_mode)
 }
 
-fn severity_colour(p: &Palette, s: Severity) -> Color32 {
+pub(super) fn severity_colour(p: &Palette, s: Severity) -> Color32 {
     match s {
         Severity::Clash => p.clash,
         Severity::Strain => p.strain,
@@ -57,7 +57,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp) {
                 checks(ui, app, &pal);
             });
         });
-    egui::CentralPanel::default().show(ui, |ui| chart_grid(ui, app, &pal));
+    egui::CentralPanel::default().show(ui, |ui| super::grid::show(ui, app, &pal));
     prompts(ui, app);
 }
 
@@ -217,13 +217,45 @@ fn footer(ui: &mut egui::Ui, app: &TiltyardApp, pal: &Palette) {
 
 fn series_list(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     ui.strong("Series");
+    ui.add(
+        egui::TextEdit::singleline(&mut app.list_filter)
+            .hint_text("find a series")
+            .desired_width(f32::INFINITY),
+    )
+    .accessible_name("find a series");
+    let wanted = app.list_filter.to_lowercase();
     let names: Vec<(String, Units)> = app
         .doc
         .file
         .series
         .iter()
+        .filter(|s| wanted.is_empty() || s.name.to_lowercase().contains(&wanted))
         .map(|s| (s.name.clone(), s.display))
         .collect();
+    ui.horizontal(|ui| {
+        ui.label(RichText::new("charts:").small().color(pal.muted));
+        if ui
+            .small_button("all")
+            .on_hover_text("show the charts of the series listed")
+            .clicked()
+        {
+            for (name, _) in &names {
+                app.hidden.remove(name);
+            }
+        }
+        if ui
+            .small_button("none")
+            .on_hover_text("hide the charts of the series listed")
+            .clicked()
+        {
+            for (name, _) in &names {
+                app.hidden.insert(name.clone());
+            }
+        }
+    });
+    if names.is_empty() {
+        ui.label(RichText::new("no series matches").small().color(pal.muted));
+    }
     for (name, units) in &names {
         ui.horizontal(|ui| {
             let mut shown = !app.hidden.contains(name);
@@ -324,132 +356,8 @@ fn status(app: &TiltyardApp, subject: Subject, name: &str) -> Option<Severity> {
     worst
 }
 
-fn chart_grid(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
-    // One row, whatever it says (a line appearing above the charts would move them under a
-    // drag): the view switch, then why the fans are greyed, or how to draw on them.
-    ui.horizontal(|ui| {
-        ui.selectable_value(&mut app.view, Subject::Series, "Series paths");
-        ui.selectable_value(&mut app.view, Subject::Shock, "Structural shocks");
-        if app.stale() {
-            let what = if app.results.as_ref().is_some_and(|r| r.without_conditions) {
-                "the greyed fans are the model's forecast without any conditions"
-            } else {
-                "the greyed fans are the last that could be drawn"
-            };
-            let why = match app.state {
-                EngineState::Failed => "The engine stopped on an error",
-                _ => "The conditions clash",
-            };
-            ui.add(
-                egui::Label::new(
-                    RichText::new(format!("{why}: {what}. See the checks.")).color(pal.clash),
-                )
-                .truncate(),
-            );
-            return;
-        }
-        let hint = match app.view {
-            Subject::Series => {
-                "drag across future periods: corridor · Ctrl+click: pin · arrows: nudge the selected"
-            }
-            Subject::Shock => {
-                "standardised shocks; grey: their usual N(0, 1) · drag: corridor · Ctrl+click: pin"
-            }
-        };
-        ui.label(RichText::new(hint).small().color(pal.muted));
-    });
-    let Some(results) = app.results.clone() else {
-        ui.centered_and_justified(|ui| {
-            ui.label("The fans appear here as soon as the engine has the first draws.");
-        });
-        return;
-    };
-    let subject = app.view;
-    let views = match subject {
-        Subject::Series => &results.series,
-        Subject::Shock => &results.shocks,
-    };
-    let enlarged = app
-        .enlarged
-        .filter(|&(s, i)| s == subject && i < views.len())
-        .map(|(_, i)| i);
-    let shown: Vec<usize> = match (enlarged, subject) {
-        (Some(i), _) => vec![i],
-        (None, Subject::Series) => (0..views.len())
-            .filter(|&i| !app.hidden.contains(&views[i].name))
-            .collect(),
-        // Shocks in identification order.
-        (None, Subject::Shock) => shock_order(app)
-            .iter()
-            .filter_map(|name| views.iter().position(|v| &v.name == name))
-            .collect(),
-    };
-    let width = ui.available_width();
-    let columns = if enlarged.is_some() {
-        1
-    } else {
-        ((width / 360.0).floor() as usize).clamp(1, 4)
-    };
-    let height = if enlarged.is_some() {
-        (ui.available_height() - 60.0).max(240.0)
-    } else {
-        190.0
-    };
-    let mut actions = Vec::new();
-    egui::ScrollArea::vertical().show(ui, |ui| {
-        for row in shown.chunks(columns) {
-            ui.columns(columns, |cols| {
-                for (col, &i) in cols.iter_mut().zip(row) {
-                    let view = &views[i];
-                    col.horizontal(|ui| {
-                        match subject {
-                            Subject::Series => {
-                                ui.strong(&view.name);
-                                units_box(ui, app, i, &view.name);
-                            }
-                            Subject::Shock => {
-                                ui.strong(format!("{} shock", view.name));
-                            }
-                        }
-                        let label = if enlarged == Some(i) {
-                            "back to all"
-                        } else {
-                            "enlarge"
-                        };
-                        if ui.small_button(label).clicked() {
-                            actions.push((view.name.clone(), chart::ChartAction::Enlarge));
-                        }
-                    });
-                    let mut memory = app.charts.remove(&(subject, i)).unwrap_or_default();
-                    let status = |r: CondRef| app.status_of(r).map(|s| severity_colour(pal, s));
-                    let input = ChartInput {
-                        index: i,
-                        view,
-                        results: &results,
-                        file: &app.doc.file,
-                        stale: app.stale(),
-                        selected: app.selected,
-                        status: &status,
-                        height,
-                        palette: pal,
-                        snapping: app.snapping,
-                    };
-                    for a in chart::show(col, &input, &mut memory) {
-                        actions.push((view.name.clone(), a));
-                    }
-                    app.charts.insert((subject, i), memory);
-                }
-            });
-            ui.add_space(6.0);
-        }
-    });
-    for (name, action) in actions {
-        app.apply(subject, &name, action);
-    }
-}
-
 /// The units switch of series `i`'s chart.
-fn units_box(ui: &mut egui::Ui, app: &mut TiltyardApp, i: usize, name: &str) {
+pub(super) fn units_box(ui: &mut egui::Ui, app: &mut TiltyardApp, i: usize, name: &str) {
     let mut units = app.doc.file.series.get(i).map(|s| s.display);
     egui::ComboBox::from_id_salt(("units", i))
         .selected_text(units.map(|u| u.label()).unwrap_or_default())
@@ -468,7 +376,7 @@ fn units_box(ui: &mut egui::Ui, app: &mut TiltyardApp, i: usize, name: &str) {
 }
 
 /// Shock names in identification order.
-fn shock_order(app: &TiltyardApp) -> Vec<String> {
+pub(super) fn shock_order(app: &TiltyardApp) -> Vec<String> {
     match &app.doc.file.ordering {
         Some(o) => o.clone(),
         None => app.doc.file.series.iter().map(|s| s.name.clone()).collect(),

@@ -7,6 +7,7 @@ use super::TiltyardApp;
 use super::chart::CondRef;
 use super::palette::Palette;
 use crate::checks::Severity;
+use crate::dataset::{Frequency, Period};
 use crate::scenario::{Bound, CorridorSpec, PinSpec, ScenarioFile, Units};
 
 /// Units offered in the table: the linear ones, the average over a year's periods, and
@@ -59,6 +60,7 @@ pub fn conditions(ui: &mut Ui, app: &mut TiltyardApp, pal: &Palette) {
         .results
         .as_ref()
         .map_or(4, |r| r.last.freq.periods_per_year());
+    let freq = app.results.as_ref().map(|r| r.last.freq);
     let mut edits = Vec::new();
     for (k, pin) in file.pins.iter().enumerate() {
         let cref = CondRef::Pin(k);
@@ -69,7 +71,7 @@ pub fn conditions(ui: &mut Ui, app: &mut TiltyardApp, pal: &Palette) {
     for (k, c) in file.corridors.iter().enumerate() {
         let cref = CondRef::Corridor(k);
         row_frame(ui, app, pal, cref, |ui| {
-            corridor_row(ui, k, c, &series, per_year, &mut edits)
+            corridor_row(ui, k, c, &series, (per_year, freq), &mut edits)
         });
     }
     if file.pins.is_empty() && file.corridors.is_empty() {
@@ -326,7 +328,7 @@ fn corridor_row(
     k: usize,
     c: &CorridorSpec,
     names: &[String],
-    per_year: usize,
+    (per_year, freq): (usize, Option<Frequency>),
     edits: &mut Vec<Edit>,
 ) {
     let mut s = c.clone();
@@ -350,80 +352,135 @@ fn corridor_row(
             edits.push(Edit::Remove(CondRef::Corridor(k)));
         }
     });
-    ui.horizontal_wrapped(|ui| {
-        for (side, bound) in [("lower", &mut s.lower), ("upper", &mut s.upper)] {
-            ui.label(RichText::new(side).small());
-            changed |= bound_editor(ui, (side, k), bound, edits);
-        }
+    // Period labels from the corridor's first period (when it reads as one).
+    let span = freq.and_then(|f| {
+        let from = Period::parse(&s.from, f).ok()?;
+        let to = Period::parse(&s.to, f).ok()?;
+        let n = to.periods_since(&from) + 1;
+        (n >= 1).then_some((from, n as usize))
     });
+    let label = |i: usize| {
+        span.map_or(format!("period {}", i + 1), |(p, _)| {
+            p.offset(i as i64).to_string()
+        })
+    };
+    for (side, bound) in [("lower", &mut s.lower), ("upper", &mut s.upper)] {
+        changed |= bound_editor(ui, (side, k), bound, span.map(|(_, n)| n), &label, edits);
+    }
     if changed {
         edits.push(Edit::Corridor(k, s));
     }
 }
 
-/// One side of a corridor: open, one value, or one value per period.
+/// Per-period bounds up to this many are shown open; longer lists fold into a summary line.
+const UNFOLDED_PERIODS: usize = 8;
+/// Per-period bounds in a row of the table.
+const PERIODS_PER_ROW: usize = 4;
+
+/// One side of a corridor: open, one value, or one value per period (each labelled with its
+/// period, in a grid of a few a row, folded when there are many).
 fn bound_editor(
     ui: &mut Ui,
     id: (&str, usize),
     bound: &mut Option<Bound>,
+    periods: Option<usize>,
+    label: &dyn Fn(usize) -> String,
     edits: &mut Vec<Edit>,
 ) -> bool {
     let mut changed = false;
-    let mut open = bound.is_none();
-    if ui
-        .checkbox(&mut open, "open")
-        .accessible_name(format!("{} bound open", id.0))
-        .changed()
-    {
-        *bound = if open { None } else { Some(Bound::Same(0.0)) };
-        changed = true;
-    }
-    match bound {
-        Some(Bound::Same(v)) => {
+    ui.horizontal(|ui| {
+        ui.label(RichText::new(id.0).small());
+        let mut open = bound.is_none();
+        if ui
+            .checkbox(&mut open, "open")
+            .accessible_name(format!("{} bound open", id.0))
+            .changed()
+        {
+            *bound = if open { None } else { Some(Bound::Same(0.0)) };
+            changed = true;
+        }
+        let each = matches!(bound, Some(Bound::Each(_)));
+        if bound.is_some() {
+            // A two-way switch: the same bound at every period, or one per period.
+            if ui.selectable_label(!each, "one value").clicked() && each {
+                let first = match bound {
+                    Some(Bound::Each(list)) => list.iter().flatten().next().copied(),
+                    _ => None,
+                };
+                *bound = Some(Bound::Same(first.unwrap_or(0.0)));
+                changed = true;
+            }
+            if let Some(n) = periods
+                && ui.selectable_label(each, "per period").clicked()
+                && !each
+                && let Some(Bound::Same(v)) = bound
+            {
+                *bound = Some(Bound::Each(vec![Some(*v); n]));
+                changed = true;
+            }
+        }
+        if let Some(Bound::Same(v)) = bound {
             let r = ui
                 .add(egui::DragValue::new(v).speed(0.01).max_decimals(4))
                 .accessible_name(format!("{} bound", id.0));
             gesture(&r, edits);
             changed |= r.changed();
         }
-        Some(Bound::Each(list)) => {
-            if ui
-                .small_button("one value")
-                .on_hover_text("the same bound at every period (the first one's)")
-                .clicked()
-            {
-                let first = list.iter().flatten().next().copied().unwrap_or(0.0);
-                *bound = Some(Bound::Same(first));
-                return true;
-            }
-            ui.push_id(id, |ui| {
-                for (i, v) in list.iter_mut().enumerate() {
-                    match v {
-                        Some(x) => {
-                            let r = ui
-                                .add(egui::DragValue::new(x).speed(0.01).max_decimals(4))
-                                .accessible_name(format!("{} bound, period {}", id.0, i + 1));
-                            gesture(&r, edits);
-                            changed |= r.changed();
-                        }
-                        None => {
-                            if ui
-                                .small_button("open")
-                                .on_hover_text(format!(
-                                    "period {} is open; click to bound it",
-                                    i + 1
-                                ))
-                                .clicked()
-                            {
-                                *v = Some(0.0);
-                                changed = true;
+    });
+    if let Some(Bound::Each(list)) = bound {
+        let values: Vec<f64> = list.iter().flatten().copied().collect();
+        let range = match (values.first(), values.last()) {
+            (Some(a), Some(b)) => format!("{a} … {b}"),
+            _ => "all open".into(),
+        };
+        let header = format!("{} periods, {range}", list.len());
+        egui::CollapsingHeader::new(RichText::new(header).small())
+            .id_salt(("per period", id.0, id.1))
+            .default_open(list.len() <= UNFOLDED_PERIODS)
+            .show(ui, |ui| {
+                egui::Grid::new(("bounds", id.0, id.1))
+                    .num_columns(PERIODS_PER_ROW)
+                    .spacing([10.0, 2.0])
+                    .show(ui, |ui| {
+                        for (i, v) in list.iter_mut().enumerate() {
+                            // A period's label and its value stay together.
+                            ui.horizontal(|ui| {
+                                ui.label(RichText::new(label(i)).small());
+                                match v {
+                                    Some(x) => {
+                                        let r = ui
+                                            .add(
+                                                egui::DragValue::new(x).speed(0.01).max_decimals(4),
+                                            )
+                                            .accessible_name(format!(
+                                                "{} bound, period {}",
+                                                id.0,
+                                                i + 1
+                                            ));
+                                        gesture(&r, edits);
+                                        changed |= r.changed();
+                                    }
+                                    None => {
+                                        if ui
+                                            .small_button("open")
+                                            .on_hover_text(format!(
+                                                "{} is open on this side; click to bound it",
+                                                label(i)
+                                            ))
+                                            .clicked()
+                                        {
+                                            *v = Some(0.0);
+                                            changed = true;
+                                        }
+                                    }
+                                }
+                            });
+                            if (i + 1) % PERIODS_PER_ROW == 0 {
+                                ui.end_row();
                             }
                         }
-                    }
-                }
+                    });
             });
-        }
-        None => {}
     }
     changed
 }

@@ -1,0 +1,300 @@
+//! The chart grid: which charts are shown, in what order, a page at a time.
+//!
+//! At 20–40 series a user works on a few: the grid shows the series that carry conditions
+//! first (then the rest in the file's order), lets the series list untick the ones not wanted,
+//! narrows the grid by typing part of a name, and pages through the rest. The order is fixed
+//! when a scenario opens and when the user asks for it again ("conditioned first"), never by
+//! an edit, so that a chart never jumps away from under the pointer.
+
+use egui::RichText;
+
+use super::TiltyardApp;
+use super::chart::{self, ChartInput, CondRef};
+use super::palette::Palette;
+use super::panels::{severity_colour, shock_order, units_box};
+use super::worker::{EngineState, Subject};
+use crate::scenario::ScenarioFile;
+
+/// Charts per page offered.
+pub const PAGE_SIZES: [usize; 4] = [4, 8, 12, 24];
+
+/// What the grid shows.
+#[derive(Debug, Clone, PartialEq)]
+pub struct GridView {
+    /// Only charts whose name contains this (ignoring case).
+    pub filter: String,
+    pub page: usize,
+    pub per_page: usize,
+    /// Series in the grid's order.
+    pub order: Vec<String>,
+}
+
+impl Default for GridView {
+    fn default() -> Self {
+        GridView {
+            filter: String::new(),
+            page: 0,
+            per_page: 12,
+            order: Vec::new(),
+        }
+    }
+}
+
+impl GridView {
+    /// The grid of a scenario just opened: its conditioned series first.
+    pub fn for_file(file: &ScenarioFile) -> GridView {
+        let mut g = GridView::default();
+        g.conditioned_first(file);
+        g
+    }
+
+    /// Series with a pin or corridor first (in the file's order), then the rest.
+    pub fn conditioned_first(&mut self, file: &ScenarioFile) {
+        let conditioned = |name: &str| {
+            file.pins.iter().any(|p| p.series.as_deref() == Some(name))
+                || file
+                    .corridors
+                    .iter()
+                    .any(|c| c.series.as_deref() == Some(name))
+        };
+        let names = file.series.iter().map(|s| s.name.clone());
+        let (first, rest): (Vec<String>, Vec<String>) = names.partition(|n| conditioned(n));
+        self.order = first.into_iter().chain(rest).collect();
+        self.page = 0;
+    }
+
+    /// The order kept in step with the file's series (new ones last, gone ones dropped).
+    fn sync(&mut self, file: &ScenarioFile) {
+        self.order
+            .retain(|n| file.series.iter().any(|s| &s.name == n));
+        for s in &file.series {
+            if !self.order.contains(&s.name) {
+                self.order.push(s.name.clone());
+            }
+        }
+    }
+
+    fn matches(&self, name: &str) -> bool {
+        self.filter.is_empty() || name.to_lowercase().contains(&self.filter.to_lowercase())
+    }
+
+    /// The names on the current page (the page moved into range), and the number of pages.
+    pub fn page_of(&mut self, names: &[String]) -> (Vec<String>, usize) {
+        let per = self.per_page.max(1);
+        let kept: Vec<String> = names.iter().filter(|n| self.matches(n)).cloned().collect();
+        let pages = kept.len().div_ceil(per).max(1);
+        self.page = self.page.min(pages - 1);
+        let shown = kept.into_iter().skip(self.page * per).take(per).collect();
+        (shown, pages)
+    }
+}
+
+/// The controls above the grid (one row that never changes height) and the charts.
+pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
+    app.grid.sync(&app.doc.file);
+    let subject = app.view;
+    let names: Vec<String> = match subject {
+        Subject::Series => app
+            .grid
+            .order
+            .iter()
+            .filter(|n| !app.hidden.contains(*n))
+            .cloned()
+            .collect(),
+        Subject::Shock => shock_order(app),
+    };
+    let (page_names, pages) = app.grid.page_of(&names);
+    controls(ui, app, pal, pages);
+    let Some(results) = app.results.clone() else {
+        ui.centered_and_justified(|ui| {
+            ui.label("The fans appear here as soon as the engine has the first draws.");
+        });
+        return;
+    };
+    let views = match subject {
+        Subject::Series => &results.series,
+        Subject::Shock => &results.shocks,
+    };
+    let enlarged = app
+        .enlarged
+        .filter(|&(s, i)| s == subject && i < views.len())
+        .map(|(_, i)| i);
+    let shown: Vec<usize> = match enlarged {
+        Some(i) => vec![i],
+        None => page_names
+            .iter()
+            .filter_map(|name| views.iter().position(|v| &v.name == name))
+            .collect(),
+    };
+    if shown.is_empty() {
+        ui.label(
+            RichText::new("No chart matches: clear the search or tick series on the left.")
+                .color(pal.muted),
+        );
+        return;
+    }
+    let width = ui.available_width();
+    let columns = if enlarged.is_some() {
+        1
+    } else {
+        ((width / 360.0).floor() as usize).clamp(1, 4)
+    };
+    let height = if enlarged.is_some() {
+        (ui.available_height() - 60.0).max(240.0)
+    } else {
+        190.0
+    };
+    let mut actions = Vec::new();
+    egui::ScrollArea::vertical().show(ui, |ui| {
+        for row in shown.chunks(columns) {
+            ui.columns(columns, |cols| {
+                for (col, &i) in cols.iter_mut().zip(row) {
+                    let view = &views[i];
+                    col.horizontal(|ui| {
+                        match subject {
+                            Subject::Series => {
+                                ui.strong(&view.name);
+                                units_box(ui, app, i, &view.name);
+                            }
+                            Subject::Shock => {
+                                ui.strong(format!("{} shock", view.name));
+                            }
+                        }
+                        let label = if enlarged == Some(i) {
+                            "back to all"
+                        } else {
+                            "enlarge"
+                        };
+                        if ui.small_button(label).clicked() {
+                            actions.push((view.name.clone(), chart::ChartAction::Enlarge));
+                        }
+                    });
+                    let mut memory = app.charts.remove(&(subject, i)).unwrap_or_default();
+                    let status = |r: CondRef| app.status_of(r).map(|s| severity_colour(pal, s));
+                    let input = ChartInput {
+                        index: i,
+                        view,
+                        results: &results,
+                        file: &app.doc.file,
+                        stale: app.stale(),
+                        selected: app.selected,
+                        status: &status,
+                        height,
+                        palette: pal,
+                        snapping: app.snapping,
+                    };
+                    for a in chart::show(col, &input, &mut memory) {
+                        actions.push((view.name.clone(), a));
+                    }
+                    app.charts.insert((subject, i), memory);
+                }
+            });
+            ui.add_space(6.0);
+        }
+    });
+    for (name, action) in actions {
+        app.apply(subject, &name, action);
+    }
+}
+
+/// The view switch, the search and the pager in one row; then why the fans are greyed, or
+/// how to draw on them, in a second row of its own.
+fn controls(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette, pages: usize) {
+    // Wrapped when the panel is narrow; the page label has a fixed width, so the row keeps
+    // its height as pages turn.
+    ui.horizontal_wrapped(|ui| {
+        ui.selectable_value(&mut app.view, Subject::Series, "Series paths");
+        ui.selectable_value(&mut app.view, Subject::Shock, "Structural shocks");
+        ui.separator();
+        let find = ui
+            .add(
+                egui::TextEdit::singleline(&mut app.grid.filter)
+                    .hint_text("find a chart")
+                    .desired_width(120.0),
+            )
+            .accessible_name("find a chart");
+        if find.changed() {
+            app.grid.page = 0;
+        }
+        ui.separator();
+        let page = app.grid.page;
+        if ui
+            .add_enabled(page > 0, egui::Button::new("previous").small())
+            .on_hover_text("Page Up")
+            .clicked()
+        {
+            app.grid.page -= 1;
+        }
+        ui.add_sized(
+            [80.0, ui.spacing().interact_size.y],
+            egui::Label::new(format!("page {} of {pages}", page + 1)),
+        );
+        if ui
+            .add_enabled(page + 1 < pages, egui::Button::new("next").small())
+            .on_hover_text("Page Down")
+            .clicked()
+        {
+            app.grid.page += 1;
+        }
+        egui::ComboBox::from_id_salt("charts per page")
+            .selected_text(format!("{} a page", app.grid.per_page))
+            .show_ui(ui, |ui| {
+                for size in PAGE_SIZES {
+                    ui.selectable_value(&mut app.grid.per_page, size, format!("{size} a page"));
+                }
+            })
+            .response
+            .accessible_name("charts per page");
+        if app.view == Subject::Series
+            && ui
+                .small_button("conditioned first")
+                .on_hover_text("Put the series with pins or corridors at the front")
+                .clicked()
+        {
+            app.grid.conditioned_first(&app.doc.file);
+        }
+    });
+    let (up, down) = ui.input(|i| {
+        (
+            i.key_pressed(egui::Key::PageUp),
+            i.key_pressed(egui::Key::PageDown),
+        )
+    });
+    if !ui.ctx().egui_wants_keyboard_input() {
+        if up {
+            app.grid.page = app.grid.page.saturating_sub(1);
+        }
+        if down && app.grid.page + 1 < pages {
+            app.grid.page += 1;
+        }
+    }
+    ui.horizontal(|ui| {
+        if app.stale() {
+            let what = if app.results.as_ref().is_some_and(|r| r.without_conditions) {
+                "the greyed fans are the model's forecast without any conditions"
+            } else {
+                "the greyed fans are the last that could be drawn"
+            };
+            let why = match app.state {
+                EngineState::Failed => "The engine stopped on an error",
+                _ => "The conditions clash",
+            };
+            ui.add(
+                egui::Label::new(
+                    RichText::new(format!("{why}: {what}. See the checks.")).color(pal.clash),
+                )
+                .truncate(),
+            );
+            return;
+        }
+        let hint = match app.view {
+            Subject::Series => {
+                "drag across future periods: corridor · Ctrl+click: pin · arrows: nudge the selected"
+            }
+            Subject::Shock => {
+                "standardised shocks; grey: their usual N(0, 1) · drag: corridor · Ctrl+click: pin"
+            }
+        };
+        ui.add(egui::Label::new(RichText::new(hint).small().color(pal.muted)).truncate());
+    });
+}
