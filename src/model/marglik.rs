@@ -10,6 +10,7 @@
 use std::f64::consts::PI;
 
 use nalgebra::DMatrix;
+use rayon::prelude::*;
 use statrs::function::gamma::ln_gamma;
 
 use super::{
@@ -101,9 +102,14 @@ pub fn choose_tightness(
     };
     let (lo, hi) = LN_LAMBDA_RANGE;
     let step = (hi - lo) / (GRID - 1) as f64;
+    // The grid's evaluations are independent: in parallel (in grid order, so the first of
+    // equal maxima wins as before).
+    let values = (0..GRID)
+        .into_par_iter()
+        .map(|g| eval(lo + step * g as f64))
+        .collect::<Result<Vec<f64>, _>>()?;
     let mut best = (0, f64::NEG_INFINITY);
-    for g in 0..GRID {
-        let v = eval(lo + step * g as f64)?;
+    for (g, &v) in values.iter().enumerate() {
         if v > best.1 {
             best = (g, v);
         }

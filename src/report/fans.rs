@@ -2,6 +2,8 @@
 //! series' display units (each path is turned into display units first, then summarised,
 //! so non-linear units such as year-on-year growth are exact).
 
+use rayon::prelude::*;
+
 use crate::dataset::Period;
 use crate::scenario::{Setup, Units, units::display_value};
 
@@ -69,35 +71,39 @@ pub fn displayable(setup: &Setup, path: &[f64]) -> bool {
 pub fn fans(setup: &Setup, paths: &[Vec<f64>], weights: Option<&[f64]>, kind: Kind) -> Vec<FanRow> {
     let h = setup.file.horizon;
     let last = setup.last_period();
-    let mut rows = Vec::with_capacity(setup.n() * h);
-    let mut values = Vec::with_capacity(paths.len());
-    for i in 0..setup.n() {
-        for t in 1..=h {
-            values.clear();
-            values.extend(paths.iter().map(|p| display_path_value(setup, p, i, t)));
-            let (mean, quantiles) = match weights {
-                None => {
-                    // Divide first: the sum of large finite values must not overflow.
-                    let count = values.len().max(1) as f64;
-                    (
-                        values.iter().map(|v| v / count).sum(),
-                        quantiles(&mut values),
-                    )
-                }
-                Some(w) => weighted(&values, w),
-            };
-            rows.push(FanRow {
-                series: setup.names[i].clone(),
-                period: last.offset(t as i64),
-                horizon: t,
-                kind,
-                units: setup.display[i],
-                mean,
-                quantiles,
-            });
-        }
-    }
-    rows
+    // One series per piece of work, gathered in series order.
+    (0..setup.n())
+        .into_par_iter()
+        .flat_map_iter(|i| {
+            let mut values = Vec::with_capacity(paths.len());
+            (1..=h)
+                .map(|t| {
+                    values.clear();
+                    values.extend(paths.iter().map(|p| display_path_value(setup, p, i, t)));
+                    let (mean, quantiles) = match weights {
+                        None => {
+                            // Divide first: the sum of large finite values must not overflow.
+                            let count = values.len().max(1) as f64;
+                            (
+                                values.iter().map(|v| v / count).sum(),
+                                quantiles(&mut values),
+                            )
+                        }
+                        Some(w) => weighted(&values, w),
+                    };
+                    FanRow {
+                        series: setup.names[i].clone(),
+                        period: last.offset(t as i64),
+                        horizon: t,
+                        kind,
+                        units: setup.display[i],
+                        mean,
+                        quantiles,
+                    }
+                })
+                .collect::<Vec<_>>()
+        })
+        .collect()
 }
 
 /// Sample quantiles with linear interpolation between order statistics (position
