@@ -4,11 +4,13 @@
 
 #[cfg(feature = "gui")]
 pub mod app;
+pub mod attribution;
 pub mod checks;
 pub mod crosscheck;
 pub mod dataset;
 pub mod forecast;
 pub mod model;
+pub mod pipeline;
 pub mod report;
 pub mod run;
 pub mod scenario;

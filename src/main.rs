@@ -8,7 +8,7 @@ use clap::{Parser, Subcommand};
 
 use tiltyard::crosscheck::EngineKind;
 use tiltyard::report::{
-    CAUTION, check_text, write_about, write_checks_json, write_draws, write_fans,
+    CAUTION, check_text, write_about, write_attribution, write_checks_json, write_draws, write_fans,
 };
 use tiltyard::run::{RunError, RunOptions, check, run, summary};
 
@@ -229,22 +229,20 @@ fn run_command(
     create(&out)?;
     write_fans(&out.join("fans.csv"), &outcome.fans)?;
     write_checks_json(&out.join("checks.json"), &outcome.checks)?;
+    let mut wrote = vec![out.join("fans.csv"), out.join("checks.json")];
+    if let Some(a) = &outcome.attribution {
+        write_attribution(&out.join("attribution.csv"), &setup, a)?;
+        wrote.push(out.join("attribution.csv"));
+    }
     if keep_draws {
         write_draws(&out.join("draws.csv"), &setup, &outcome.paths.conditional)?;
+        wrote.push(out.join("draws.csv"));
     }
     let text = summary(&setup, &outcome);
     write_about(&out.join("about.txt"), &text)?;
     println!("{text}");
-    println!(
-        "wrote      {}, {}{}",
-        out.join("fans.csv").display(),
-        out.join("checks.json").display(),
-        if keep_draws {
-            format!(", {}", out.join("draws.csv").display())
-        } else {
-            String::new()
-        }
-    );
+    let wrote: Vec<String> = wrote.iter().map(|p| p.display().to_string()).collect();
+    println!("wrote      {}", wrote.join(", "));
     println!("\n{CAUTION}");
     Ok(Outcome::Done)
 }

@@ -5,15 +5,14 @@
 use std::sync::atomic::AtomicBool;
 use std::time::{Duration, Instant};
 
-use crate::checks::{CheckReport, Finding, Severity, check_conditions};
+use crate::attribution::{Attribution, attribute};
+use crate::checks::CheckReport;
 use crate::crosscheck::EngineKind;
-use crate::forecast::{
-    DrawSpec, ForecastError, ParamSource, PathSet, Plan, RootSummary, Sampling, Theta,
-    build_thetas, path_weights,
-    random::{Purpose, stream},
-    sample_paths,
-};
+use crate::forecast::{ForecastError, PathSet, RootSummary, Sampling, path_weights, sample_paths};
 use crate::model::FitSummary;
+use crate::pipeline::{
+    DRAWS_RECHECKED, Model, PipelineError, check_central, check_draws, read_conditions,
+};
 use crate::report::{FanRow, Kind, check_text, displayable, fans};
 use crate::scenario::{ModelSpec, ScenarioError, Setup};
 
@@ -41,11 +40,15 @@ pub enum RunError {
     Clash(Box<CheckReport>),
 }
 
-/// Posterior draws re-checked for the drivers' rank condition (ALGORITHMS §9.1 item 6).
-pub const DRAWS_RECHECKED: usize = 40;
-/// Proposals behind each re-checked draw's acceptance estimate (more than the sampling
-/// loop's screen: here the estimate is reported).
-const RECHECK_PROPOSALS: usize = 256;
+impl From<PipelineError> for RunError {
+    fn from(e: PipelineError) -> RunError {
+        match e {
+            PipelineError::Scenario(e) => RunError::Scenario(e),
+            PipelineError::Forecast(e) => RunError::Forecast(e),
+        }
+    }
+}
+
 /// Warn when the effective sample size of reweighted draws falls below this share.
 pub const LOW_ESS_SHARE: f64 = 0.1;
 
@@ -65,119 +68,21 @@ pub struct RunOutcome {
     pub effective_draws: Option<f64>,
     /// The engine that drew the paths.
     pub engine: EngineKind,
-}
-
-/// The posterior draws a scenario asks for (`count` of them).
-fn draw_spec(setup: &Setup, count: usize) -> DrawSpec {
-    DrawSpec {
-        count,
-        seed: setup.file.seed,
-        below: setup.file.largest_root.bound(),
-        min_kept_share: setup.file.checks.min_kept_share,
-    }
-}
-
-/// The parameters the checks use: the posterior mean, or the fixed coefficients.
-fn central_theta(setup: &Setup, source: &ParamSource) -> Result<(Theta, String), RunError> {
-    let (params, at) = match source {
-        ParamSource::Fixed(p) => (p.clone(), "the fixed coefficients"),
-        ParamSource::Posterior(post) => (
-            post.mean().ok_or(ForecastError::Singular(
-                "the posterior mean of Σ (too few observations)".into(),
-            ))?,
-            "the posterior mean of the parameters",
-        ),
-    };
-    let theta = Theta::new(params, &setup.ordering, &setup.tail()?, setup.file.horizon)?;
-    Ok((theta, at.to_string()))
+    /// The departure from the unconditional forecast by shock and by condition (main engine).
+    pub attribution: Option<Attribution>,
 }
 
 /// Check a loaded scenario: every invalid condition is a clash naming its field; the rest are
-/// checked at the posterior mean (or the fixed coefficients); with parameter uncertainty they
-/// are also re-checked on a few posterior draws (the drivers' rank condition, near dependence
-/// and the corridor sampler's acceptance can change from draw to draw).
+/// checked at the central parameters and, with parameter uncertainty, on the first posterior
+/// draws ([`crate::pipeline`]).
 pub fn check(setup: &Setup) -> Result<CheckReport, RunError> {
-    let (source, _) = setup.estimate()?;
-    let (conditions, problems) = setup.read_conditions();
-    let invalid: Vec<Finding> = problems
-        .into_iter()
-        .map(|e| {
-            let field = match &e {
-                ScenarioError::Invalid { field, .. }
-                | ScenarioError::Condition { field, .. }
-                | ScenarioError::UnknownSeries { field, .. }
-                | ScenarioError::UnknownShock { field, .. } => field.clone(),
-                _ => String::new(),
-            };
-            Finding {
-                severity: Severity::Clash,
-                kind: "invalid_condition".into(),
-                conditions: Vec::new(),
-                fields: vec![field],
-                message: e.to_string(),
-                remedy:
-                    "correct the field named here (the condition was left out of the other checks)"
-                        .into(),
-                minimal: None,
-            }
-        })
-        .collect();
-    let (theta, at) = central_theta(setup, &source)?;
-    let mut report = check_conditions(
-        &theta,
-        &conditions,
-        &setup.file.checks,
-        setup.file.seed,
-        &at,
-        invalid,
-    );
-    if let (ParamSource::Posterior(_), false) = (&source, report.clashes()) {
-        let cancel = AtomicBool::new(false);
-        let set = build_thetas(
-            &source,
-            &setup.ordering,
-            &setup.tail()?,
-            setup.file.horizon,
-            draw_spec(setup, DRAWS_RECHECKED),
-            &cancel,
-        )?;
-        let settings = &setup.file.checks;
-        let fails = |i: usize| -> Option<ForecastError> {
-            let plan = match Plan::new(&set.thetas[i], &conditions, Some(i)) {
-                Ok(plan) => plan,
-                Err(e) => return Some(e),
-            };
-            let mut rng = stream(setup.file.seed, Purpose::Acceptance, i as u64);
-            match plan.acceptance(&mut rng, RECHECK_PROPOSALS) {
-                Ok(Some(a)) if a < settings.min_acceptance => Some(ForecastError::TooImprobable {
-                    corridors: plan.corridor_names(),
-                    acceptance: a,
-                    draw: Some(i),
-                }),
-                Ok(_) => None,
-                Err(e) => Some(e),
-            }
-        };
-        let failing: Vec<(usize, ForecastError)> = (0..set.thetas.len())
-            .filter_map(|i| fails(i).map(|e| (i, e)))
-            .collect();
-        if let Some((_, first)) = failing.first() {
-            let e = first.to_string();
-            report.findings.push(Finding {
-                severity: Severity::Clash,
-                kind: "fails_in_posterior_draws".into(),
-                conditions: Vec::new(),
-                fields: Vec::new(),
-                message: format!(
-                    "{} of {} posterior draws checked cannot meet the conditions ({e})",
-                    failing.len(),
-                    set.thetas.len()
-                ),
-                remedy: "add drivers or loosen the conditions; the posterior mean meets them, but parameter uncertainty does not".into(),
-                minimal: None,
-            });
-            report.status = crate::checks::Status::Clashing;
-        }
+    let model = Model::new(setup)?;
+    let (conditions, invalid) = read_conditions(setup);
+    let mut report = check_central(setup, &model, &conditions, invalid);
+    if !model.is_fixed() && !report.clashes() {
+        let count = DRAWS_RECHECKED.min(setup.file.draws);
+        let thetas = model.draw(setup, count, &AtomicBool::new(false))?;
+        check_draws(setup, &mut report, &thetas, &conditions);
     }
     Ok(report)
 }
@@ -195,36 +100,20 @@ pub fn run(setup: &mut Setup, options: &RunOptions) -> Result<RunOutcome, RunErr
         setup.file.paths_per_draw = p;
     }
     crate::scenario::setup::check_counts(&setup.file)?;
-    let (source, fit) = setup.estimate()?;
-    let conditions = setup.conditions()?;
-    let (theta, at) = central_theta(setup, &source)?;
-    let checks = check_conditions(
-        &theta,
-        &conditions,
-        &setup.file.checks,
-        setup.file.seed,
-        &at,
-        Vec::new(),
-    );
+    let model = Model::new(setup)?;
+    let (conditions, invalid) = read_conditions(setup);
+    let mut checks = check_central(setup, &model, &conditions, invalid);
     if checks.clashes() {
         return Err(RunError::Clash(Box::new(checks)));
     }
     let file = &setup.file;
-    // Fixed coefficients: one θ, and `draws` paths from it.
-    let (thetas_wanted, paths_per_theta) = match source {
-        ParamSource::Fixed(_) => (1, file.draws * file.paths_per_draw),
-        ParamSource::Posterior(_) => (file.draws, file.paths_per_draw),
-    };
+    let (thetas_wanted, paths_per_theta) = model.counts(setup);
     let cancel = AtomicBool::new(false);
-    let tail = setup.tail()?;
-    let set = build_thetas(
-        &source,
-        &setup.ordering,
-        &tail,
-        file.horizon,
-        draw_spec(setup, thetas_wanted),
-        &cancel,
-    )?;
+    let set = model.draw(setup, thetas_wanted, &cancel)?;
+    check_draws(setup, &mut checks, &set, &conditions);
+    if checks.clashes() {
+        return Err(RunError::Clash(Box::new(checks)));
+    }
     let how = Sampling {
         paths_per_theta,
         seed: file.seed,
@@ -240,6 +129,19 @@ pub fn run(setup: &mut Setup, options: &RunOptions) -> Result<RunOutcome, RunErr
         Some((w, ess)) if file.reweight => (Some(w), Some(ess)),
         _ => (None, None),
     };
+    // The attribution averages θ by θ: each θ's weight is its paths' weights together.
+    let theta_weights = weights
+        .as_ref()
+        .map(|_| crate::forecast::normalise(&paths.log_weights).0);
+    let attribution = match options.engine {
+        EngineKind::Main => Some(attribute(
+            &set.thetas,
+            &conditions,
+            &paths.parts,
+            theta_weights.as_deref(),
+        )?),
+        _ => None,
+    };
     let mut rows = fans(
         setup,
         &paths.conditional,
@@ -249,18 +151,19 @@ pub fn run(setup: &mut Setup, options: &RunOptions) -> Result<RunOutcome, RunErr
     rows.extend(fans(setup, &paths.unconditional, None, Kind::Unconditional));
     Ok(RunOutcome {
         fans: rows,
-        fit,
-        posterior_draws: if matches!(source, ParamSource::Fixed(_)) {
+        posterior_draws: if model.is_fixed() {
             0
         } else {
             set.thetas.len()
         },
+        fit: model.fit,
         roots: set.roots,
         elapsed: start.elapsed(),
         paths,
         checks,
         effective_draws,
         engine: options.engine,
+        attribution,
     })
 }
 

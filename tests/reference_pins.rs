@@ -1,6 +1,7 @@
 //! Pins and drivers for fixed coefficients against textbook Gaussian conditioning and the
 //! drivers closed form, both computed independently in numpy (`tests/fixtures/pins_gaussian.json`,
-//! made by `tests/fixtures/make_fixtures.py`).
+//! made by `tests/fixtures/make_fixtures.py`); their attribution by shock and by pin against
+//! `tests/fixtures/attribution.json` (made by `tests/fixtures/make_attribution.py`).
 
 mod common;
 
@@ -9,6 +10,7 @@ use std::sync::atomic::AtomicBool;
 use common::*;
 use nalgebra::{DMatrix, DVector};
 use serde_json::Value;
+use tiltyard::attribution::attribute;
 use tiltyard::forecast::{ParamSource, Plan, Sampling, Theta, ThetaSet, sample_paths};
 use tiltyard::scenario::{self, Setup};
 
@@ -222,5 +224,53 @@ fn pin_log_density_matches_numpy() {
             (got - want).abs() < EXACT * want.abs().max(1.0),
             "{name}: {got} vs {want}"
         );
+    }
+}
+
+/// The conditional mean shift split by structural shock and by pin (ALGORITHMS §10) against
+/// the dense numpy split of `tests/fixtures/attribution.json` (made by `make_attribution.py`
+/// from the same cases): `ε̄ = D⁺(r̃; 0)`, shock `j`'s part `M_{·j} ε̄_j`, pin `k`'s part
+/// `M D⁺ e_k r̃_k`. With pins only the split is exact whatever the paths (every path meets
+/// the pins), so a few paths serve; the parts also add up to the total.
+#[test]
+fn attribution_matches_numpy() {
+    let fx = json("pins_gaussian.json");
+    let reference = json("attribution.json");
+    for (case, want) in fx["cases"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .zip(reference["cases"].as_array().unwrap())
+    {
+        let name = case["name"].as_str().unwrap();
+        assert_eq!(want["name"], case["name"]);
+        let dir = tempfile::tempdir().unwrap();
+        let setup = case_setup(&fx, case, &dir);
+        let set = ThetaSet::single(theta_of(&setup));
+        let cond = setup.conditions().unwrap();
+        let how = Sampling {
+            paths_per_theta: 7,
+            seed: 3,
+            reweight: false,
+            min_acceptance: 1e-5,
+            engine: tiltyard::crosscheck::EngineKind::Main,
+        };
+        let out = sample_paths(&set, 0..1, &cond, how, &AtomicBool::new(false)).unwrap();
+        let a = attribute(&set.thetas, &cond, &out.parts, None).unwrap();
+        let total = vector(&want["total"]);
+        let scale = total.amax().max(1.0);
+        let close = |got: &[f64], want: &DVector<f64>, what: &str| {
+            let err = (DVector::from_column_slice(got) - want).amax() / scale;
+            assert!(err < EXACT, "{name}: {what}: error {err:e}");
+        };
+        close(&a.total, &total, "total");
+        for (j, part) in want["by_shock"].as_array().unwrap().iter().enumerate() {
+            close(&a.by_shock[j], &vector(part), &format!("shock {j}"));
+        }
+        let pins = want["by_pin"].as_array().unwrap();
+        assert_eq!(a.by_condition.len(), pins.len(), "{name}");
+        for (k, part) in pins.iter().enumerate() {
+            close(&a.by_condition[k], &vector(part), &format!("pin {k}"));
+        }
     }
 }

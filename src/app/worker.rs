@@ -15,14 +15,14 @@ use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::mpsc::{Receiver, Sender};
 use std::time::Instant;
 
-use crate::checks::{CheckReport, check_conditions};
+use crate::checks::CheckReport;
 use crate::dataset::Period;
 use crate::forecast::{
-    Conditions, DrawSpec, ParamSource, PathSet, Sampling, Theta, ThetaSet, build_thetas,
-    preview::Preview, sample_paths,
+    Conditions, ForecastError, PathSet, Sampling, Theta, ThetaSet, preview::Preview, sample_paths,
 };
+use crate::pipeline::{Model, PipelineError, check_central, check_draws, read_conditions};
 use crate::report::{FanRow, Kind, fans};
-use crate::scenario::{ScenarioError, ScenarioFile, Setup, Units, units::display_value};
+use crate::scenario::{ScenarioFile, Setup, Units, units::display_value};
 
 /// Posterior draws per block of the streamed results.
 pub const BLOCK: usize = 50;
@@ -137,9 +137,7 @@ pub enum Message {
 /// Model-level work kept between jobs.
 struct ModelCache {
     key: String,
-    source: ParamSource,
-    central: Theta,
-    central_label: String,
+    model: Model,
     /// Posterior draws, made after the first fans and the checks, then kept for edits.
     thetas: Option<ThetaSet>,
     /// The first tier's paths at the central θ, reused across edits.
@@ -241,19 +239,19 @@ fn process(
     if cancelled() {
         return Ok(());
     }
-    let (conditions, problems) = setup.read_conditions();
+    let (conditions, invalid) = read_conditions(&setup);
     // First fans fast: the preview at the central θ, before the checks (which take longer).
     // Invalid conditions are clashes; no preview is shown for them.
-    let fixed = matches!(model.source, ParamSource::Fixed(_));
+    let fixed = model.model.is_fixed();
     let total = if fixed { 0 } else { setup.file.draws };
     let publish = |model: &ModelCache, paths: &PathSet, without_conditions: bool| {
-        let shocks = Shocks::of(paths, |_| &model.central)?;
+        let shocks = Shocks::of(paths, |_| &model.model.central)?;
         let mut r = results(&setup, paths, &shocks, 0, total, !fixed);
         r.without_conditions = without_conditions;
         send(Message::Results(g, Arc::new(r)));
         Ok(())
     };
-    let first = problems.is_empty().then(|| {
+    let first = invalid.is_empty().then(|| {
         preview(&setup, &mut model.preview, &conditions, job)
             .and_then(|paths| publish(model, &paths, false))
     });
@@ -261,17 +259,10 @@ fn process(
         return Ok(());
     }
     send(Message::State(g, EngineState::Checking));
-    let invalid = problems.iter().map(invalid_finding).collect();
-    let report = check_conditions(
-        &model.central,
-        &conditions,
-        &setup.file.checks,
-        setup.file.seed,
-        &model.central_label,
-        invalid,
-    );
+    let report = check_central(&setup, &model.model, &conditions, invalid);
     let clashes = report.clashes();
-    send(Message::Checks(g, Box::new(report)));
+    let findings = report.findings.len();
+    send(Message::Checks(g, Box::new(report.clone())));
     if clashes {
         send(Message::State(g, EngineState::Clashing));
         // Something to look at when the window has no earlier fans (it keeps those if it has):
@@ -304,25 +295,22 @@ fn process(
             };
             if model.thetas.is_none() {
                 send(Message::State(g, EngineState::Drawing));
-                let spec = DrawSpec {
-                    count: setup.file.draws,
-                    seed: setup.file.seed,
-                    below: setup.file.largest_root.bound(),
-                    min_kept_share: setup.file.checks.min_kept_share,
-                };
-                let tail = setup.tail().map_err(text)?;
-                let ordering = &setup.ordering;
-                match build_thetas(
-                    &model.source,
-                    ordering,
-                    &tail,
-                    setup.file.horizon,
-                    spec,
-                    &job.cancel,
-                ) {
+                match model.model.draw(&setup, setup.file.draws, &job.cancel) {
                     Ok(set) => model.thetas = Some(set),
-                    Err(crate::forecast::ForecastError::Cancelled) => return Ok(()),
+                    Err(PipelineError::Forecast(ForecastError::Cancelled)) => return Ok(()),
                     Err(e) => return Err(e.to_string()),
+                }
+            }
+            if let Some(set) = &model.thetas {
+                let mut report = report;
+                check_draws(&setup, &mut report, set, &conditions);
+                if report.findings.len() > findings {
+                    let clashes = report.clashes();
+                    send(Message::Checks(g, Box::new(report)));
+                    if clashes {
+                        send(Message::State(g, EngineState::Clashing));
+                        return Ok(());
+                    }
                 }
             }
             posterior(&setup, model, &conditions, job, send, start)
@@ -331,31 +319,22 @@ fn process(
 }
 
 fn estimate(setup: &Setup, key: String) -> Result<ModelCache, String> {
-    let (source, fit) = setup.estimate().map_err(text)?;
-    let file = &setup.file;
-    let (params, central_label) = match &source {
-        ParamSource::Fixed(p) => (p.clone(), "the fixed coefficients"),
-        ParamSource::Posterior(post) => (
-            post.mean()
-                .ok_or("too few observations for the posterior mean of Σ")?,
-            "the posterior mean of the parameters",
-        ),
-    };
-    let tail = setup.tail().map_err(text)?;
-    let central = Theta::new(params, &setup.ordering, &tail, file.horizon).map_err(text)?;
-    let preview_count = match source {
-        ParamSource::Fixed(_) => file.draws * file.paths_per_draw,
-        ParamSource::Posterior(_) => PREVIEW_PATHS,
+    let model = Model::new(setup).map_err(text)?;
+    let (fit, file) = (&model.fit, &setup.file);
+    let preview_count = if model.is_fixed() {
+        file.draws * file.paths_per_draw
+    } else {
+        PREVIEW_PATHS
     };
     let p = setup.lags();
-    let model_line = match (&fit, &source) {
-        (_, ParamSource::Fixed(_)) => format!(
+    let model_line = match (fit, model.is_fixed()) {
+        (_, true) => format!(
             "{} series · VAR({p}), fixed coefficients · {}–{}",
             setup.n(),
             setup.dataset.first_period(),
             setup.last_period()
         ),
-        (Some(fit), _) => format!(
+        (Some(fit), false) => format!(
             "{} series · VAR({p}){} · {}T = {} · {} draws",
             setup.n(),
             fit.lambda
@@ -368,36 +347,15 @@ fn estimate(setup: &Setup, key: String) -> Result<ModelCache, String> {
             fit.observations,
             file.draws
         ),
-        (None, _) => format!("{} series · VAR({p})", setup.n()),
+        (None, false) => format!("{} series · VAR({p})", setup.n()),
     };
     Ok(ModelCache {
         key,
-        source,
-        preview: Preview::new(central.clone(), preview_count, file.seed),
-        central,
-        central_label: central_label.into(),
+        preview: Preview::new(model.central.clone(), preview_count, file.seed),
+        model,
         thetas: None,
         model_line,
     })
-}
-
-fn invalid_finding(e: &ScenarioError) -> crate::checks::Finding {
-    let field = match e {
-        ScenarioError::Invalid { field, .. }
-        | ScenarioError::Condition { field, .. }
-        | ScenarioError::UnknownSeries { field, .. }
-        | ScenarioError::UnknownShock { field, .. } => field.clone(),
-        _ => String::new(),
-    };
-    crate::checks::Finding {
-        severity: crate::checks::Severity::Clash,
-        kind: "invalid_condition".into(),
-        conditions: Vec::new(),
-        fields: vec![field],
-        message: e.to_string(),
-        remedy: "correct the field named here".into(),
-        minimal: None,
-    }
 }
 
 fn sampling(file: &ScenarioFile, paths_per_theta: usize) -> Sampling {

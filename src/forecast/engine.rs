@@ -14,6 +14,8 @@ use std::sync::atomic::{AtomicBool, Ordering};
 
 use rayon::prelude::*;
 
+use crate::attribution::Part;
+
 use super::{
     ForecastError,
     conditions::Conditions,
@@ -258,6 +260,8 @@ pub struct PathSet {
     pub fixed: bool,
     /// Proposals behind the kept paths (naive rejection: its acceptance share).
     pub proposals: usize,
+    /// Each kept θ's conditional mean shift by condition (main engine), in θ order.
+    pub parts: Vec<Part>,
 }
 
 impl PathSet {
@@ -268,6 +272,7 @@ impl PathSet {
         self.unconditional.extend(b.unconditional);
         self.sources.extend(b.sources);
         self.log_weights.extend(b.log_weights);
+        self.parts.extend(b.parts);
         self.failures.extend(b.failures);
         self.attempted += b.attempted;
         self.proposals += b.proposals;
@@ -314,6 +319,7 @@ impl PathSet {
                         index: source,
                         error: ForecastError::NotFinite { draw: Some(source) },
                     });
+                    self.parts.retain(|p| p.theta != source);
                 } else if let Some(&w) = self.log_weights.get(g) {
                     weights.push(w);
                 }
@@ -533,6 +539,10 @@ fn one_theta(
     };
     for c in chunks {
         out.absorb(c);
+    }
+    if let Conditioner::Main(plan) = &plan {
+        out.parts
+            .extend(Part::of_paths(i, theta, plan, cond, &out.conditional));
     }
     if set.fixed {
         return Ok(out);

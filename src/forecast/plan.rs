@@ -354,6 +354,16 @@ impl Plan {
         (y.as_slice().to_vec(), ystar.as_slice().to_vec())
     }
 
+    /// The gain `W = M E_J F_J⁺` (N × k): the conditional mean shift is `W (E[t] − 𝒢μ)`.
+    pub fn gain(&self) -> &DMatrix<f64> {
+        &self.gain
+    }
+
+    /// The stacked rows `𝒢 = [R; S]` (k × N).
+    pub fn stacked(&self) -> &DMatrix<f64> {
+        &self.stacked
+    }
+
     /// The driver cells (`None`: every shock moves).
     pub fn driver_cells(&self) -> Option<&[usize]> {
         self.cells.as_deref()

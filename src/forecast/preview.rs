@@ -22,6 +22,8 @@ use nalgebra::DMatrix;
 use rand_distr::{Distribution, StandardNormal};
 use rayon::prelude::*;
 
+use crate::attribution::Part;
+
 use super::{
     ForecastError,
     conditions::Conditions,
@@ -170,6 +172,13 @@ impl Preview {
                 }
             }
         }
+        out.parts.extend(Part::of_paths(
+            0,
+            &self.theta,
+            &plan,
+            cond,
+            &out.conditional,
+        ));
         self.prepared = Some((plan, gy));
         Ok(out)
     }

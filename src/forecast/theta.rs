@@ -165,9 +165,18 @@ impl Theta {
 
     /// Structural shocks of paths: `ε_t = L⁻¹ (d_t − Σ_j B_j d_{t−j})`, `d = y − μ`.
     pub fn shocks_from_paths(&self, ys: &[Vec<f64>]) -> Result<Vec<Vec<f64>>, ForecastError> {
-        let (n, big_n) = (self.n(), self.len());
+        let d = DMatrix::from_fn(self.len(), ys.len(), |r, c| ys[c][r] - self.mean[r]);
+        Ok(self
+            .shocks_from_departures(&d)?
+            .column_iter()
+            .map(|c| c.iter().copied().collect())
+            .collect())
+    }
+
+    /// `M⁻¹ D` for departures `D = y − μ` in the columns: `ε_t = L⁻¹ (d_t − Σ_j B_j d_{t−j})`.
+    pub fn shocks_from_departures(&self, d: &DMatrix<f64>) -> Result<DMatrix<f64>, ForecastError> {
+        let n = self.n();
         let linv = self.impact_inverse()?;
-        let d = DMatrix::from_fn(big_n, ys.len(), |r, c| ys[c][r] - self.mean[r]);
         let mut eps = d.clone();
         for t in 0..self.h {
             let mut u = d.rows(t * n, n).into_owned();
@@ -177,10 +186,7 @@ impl Theta {
             }
             eps.rows_mut(t * n, n).copy_from(&(&linv * u));
         }
-        Ok(eps
-            .column_iter()
-            .map(|c| c.iter().copied().collect())
-            .collect())
+        Ok(eps)
     }
 
     /// The path row of a shock cell: `ρ' = e'(I ⊗ L⁻¹) H`, so that `ε_{j,t} = ρ'(y − μ)`.

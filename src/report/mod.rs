@@ -1,11 +1,14 @@
-//! Tables written by the headless commands: `fans.csv`, `draws.csv`, `about.txt` (what was
-//! run, and the caution every forecast export carries) and `checks.json`.
+//! Tables written by the headless commands: `fans.csv`, `draws.csv`, `attribution.csv`,
+//! `about.txt` (what was run, and the caution every forecast export carries) and
+//! `checks.json`.
 
+pub mod attribution;
 pub mod checks;
 pub mod fans;
 
 use std::path::Path;
 
+pub use attribution::write_attribution;
 pub use checks::{check_text, write_checks_json};
 pub use fans::{FanRow, Kind, QUANTILES, displayable, fans, quantiles, weighted};
 

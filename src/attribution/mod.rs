@@ -1,0 +1,219 @@
+//! Where a scenario comes from (ALGORITHMS §10): the departure of its conditional mean from
+//! the unconditional one, split exactly by structural shock and by condition.
+//!
+//! For one θ with gain `W = M E_J F_J⁺` (N × k) and stacked rows `𝒢 = [R; S]` (k × N), the
+//! conditional mean shift is linear in the conditions' offsets:
+//!
+//! `Δ_θ = E[y | scenario, θ] − μ_θ = W d_θ`, `d_θ = E[t] − 𝒢μ_θ`,
+//!
+//! with `d = r̃ = r − Rμ` for the pins and `E[z] − Sμ` for the corridor quantities (drawn from
+//! their truncated law; `E[z]` is the mean of `S y` over θ's paths, since every path meets
+//! `S y = z` exactly). With drivers `W` is the drivers construction's own map (Antolín-Díaz,
+//! Petrella and Rubio-Ramírez 2021); with every shock free it is kriging's.
+//!
+//! - **By condition** `c` (its rows `K_c`): `W_{·K_c} d_{K_c}`; the parts sum to `Δ_θ`.
+//! - **By shock**: `ε̄_θ = M⁻¹Δ_θ = E_J F_J⁺ d_θ` are the shocks' conditional means, and the
+//!   part of shock `j` in series `i` at horizon `t` is `Σ_{s≤t} (Ψ_{t−s} L)_{ij} ε̄_{j,s}`,
+//!   computed for all shocks at once by the recursion
+//!   `C_t = Σ_l B_l C_{t−l} + L diag(ε̄_t)` (`C_t`: n × n, series × shock); the row sums of
+//!   `C_t` are `Δ_{θ,t}`.
+//!
+//! Every part is averaged over the posterior draws (weighted when the draws are reweighted):
+//! additivity holds draw by draw, so it holds for the averages. With reweighting the
+//! unconditional mean keeps `p(θ | data)`, and the difference of the two weightings of `μ_θ`
+//! is a part of its own ("parameters"). The split by shock depends on the identification
+//! (the ordering).
+
+use nalgebra::{DMatrix, DVector};
+use rayon::prelude::*;
+
+use crate::forecast::{Conditions, ForecastError, Plan, Theta};
+
+/// One θ's conditional mean shift, by condition: column `c` is the part of condition `c`
+/// (pins first, then corridors, in the scenario's order); N × C.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Part {
+    /// The θ (index into its set).
+    pub theta: usize,
+    pub by_condition: DMatrix<f64>,
+}
+
+impl Part {
+    /// The part of one θ from its plan and its conditional paths (`None` without paths).
+    pub fn of_paths(
+        theta_index: usize,
+        theta: &Theta,
+        plan: &Plan,
+        cond: &Conditions,
+        paths: &[Vec<f64>],
+    ) -> Option<Part> {
+        if paths.is_empty() {
+            return None;
+        }
+        // d = 𝒢(ȳ − μ): the pins' r̃ and the corridor quantities' mean shift.
+        let count = paths.len() as f64;
+        let mut gap = DVector::zeros(theta.len());
+        for y in paths {
+            for ((g, v), m) in gap.iter_mut().zip(y).zip(&theta.mean) {
+                *g += (v - m) / count;
+            }
+        }
+        let d = plan.stacked() * gap;
+        let rows = plan.rows();
+        let owner = |label: &str, pins: bool| -> Option<usize> {
+            if pins {
+                cond.pins.iter().position(|p| p.label == label)
+            } else {
+                cond.corridors
+                    .iter()
+                    .position(|c| c.label == label)
+                    .map(|k| cond.pins.len() + k)
+            }
+        };
+        let owners = rows
+            .pin_labels
+            .iter()
+            .map(|l| owner(l, true))
+            .chain(rows.corridor_names.iter().map(|l| owner(l, false)));
+        let w = plan.gain();
+        let mut by_condition = DMatrix::zeros(theta.len(), condition_count(cond));
+        for (r, c) in owners.enumerate() {
+            if let Some(c) = c {
+                let mut col = by_condition.column_mut(c);
+                col.axpy(d[r], &w.column(r), 1.0);
+            }
+        }
+        Some(Part {
+            theta: theta_index,
+            by_condition,
+        })
+    }
+}
+
+fn condition_count(cond: &Conditions) -> usize {
+    cond.pins.len() + cond.corridors.len()
+}
+
+/// The scenario's departure from the unconditional forecast, split, in model units. Vectors
+/// are stacked paths (index `(t − 1) n + i`).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Attribution {
+    pub n: usize,
+    pub h: usize,
+    /// Condition labels and their fields in the scenario (`pins[0]`), pins then corridors.
+    pub conditions: Vec<(String, String)>,
+    /// `by_shock[j]`: the part of structural shock `j` (named after series `j`).
+    pub by_shock: Vec<Vec<f64>>,
+    /// `by_condition[c]`: the part of condition `c`.
+    pub by_condition: Vec<Vec<f64>>,
+    /// With reweighting: the part due to reweighting the parameters.
+    pub parameters: Option<Vec<f64>>,
+    /// Conditional mean minus unconditional mean: the sum of the shocks' parts (or of the
+    /// conditions' parts), plus the parameters' part.
+    pub total: Vec<f64>,
+    /// Posterior draws averaged over.
+    pub draws: usize,
+}
+
+/// Draws summed together in one piece of work: the sums are formed in the same order
+/// whatever the number of threads.
+const CHUNK: usize = 16;
+
+/// Average the parts of the θ in `thetas` (weights per part, summing to one, or equal).
+pub fn attribute(
+    thetas: &[Theta],
+    cond: &Conditions,
+    parts: &[Part],
+    weights: Option<&[f64]>,
+) -> Result<Attribution, ForecastError> {
+    let (n, h) = thetas.first().map_or((0, 0), |t| (t.n(), t.h));
+    let big_n = n * h;
+    let c = condition_count(cond);
+    let count = parts.len();
+    let equal = 1.0 / count.max(1) as f64;
+    let weight = |k: usize| weights.map_or(equal, |w| w[k]);
+    // Per chunk: (Σ w·by condition (N × C), Σ w·by shock (N × n), Σ w·μ, Σ μ / count).
+    let sums = parts
+        .par_chunks(CHUNK)
+        .enumerate()
+        .map(|(chunk, list)| {
+            let mut cond_sum = DMatrix::<f64>::zeros(big_n, c);
+            let mut shock_sum = DMatrix::<f64>::zeros(big_n, n);
+            let mut mu_w = DVector::<f64>::zeros(big_n);
+            let mut mu_eq = DVector::<f64>::zeros(big_n);
+            for (k, part) in list.iter().enumerate() {
+                let w = weight(chunk * CHUNK + k);
+                let theta = &thetas[part.theta];
+                cond_sum += w * &part.by_condition;
+                let delta: Vec<f64> = part.by_condition.column_sum().iter().copied().collect();
+                shock_sum += w * by_shock(theta, &delta)?;
+                let mu = DVector::from_column_slice(&theta.mean);
+                mu_w += w * &mu;
+                mu_eq += equal * mu;
+            }
+            Ok((cond_sum, shock_sum, mu_w, mu_eq))
+        })
+        .collect::<Result<Vec<_>, ForecastError>>()?;
+    let mut cond_sum = DMatrix::<f64>::zeros(big_n, c);
+    let mut shock_sum = DMatrix::<f64>::zeros(big_n, n);
+    let mut mu_w = DVector::<f64>::zeros(big_n);
+    let mut mu_eq = DVector::<f64>::zeros(big_n);
+    for (a, b, m1, m2) in sums {
+        cond_sum += a;
+        shock_sum += b;
+        mu_w += m1;
+        mu_eq += m2;
+    }
+    let parameters = weights.map(|_| (&mu_w - &mu_eq).iter().copied().collect::<Vec<f64>>());
+    let mut total: Vec<f64> = cond_sum.column_sum().iter().copied().collect();
+    if let Some(p) = &parameters {
+        total.iter_mut().zip(p).for_each(|(t, p)| *t += p);
+    }
+    let columns = |m: &DMatrix<f64>| -> Vec<Vec<f64>> {
+        m.column_iter()
+            .map(|col| col.iter().copied().collect())
+            .collect()
+    };
+    Ok(Attribution {
+        n,
+        h,
+        conditions: cond
+            .pins
+            .iter()
+            .map(|p| (p.label.clone(), p.field.clone()))
+            .chain(
+                cond.corridors
+                    .iter()
+                    .map(|x| (x.label.clone(), x.field.clone())),
+            )
+            .collect(),
+        by_shock: columns(&shock_sum),
+        by_condition: columns(&cond_sum),
+        parameters,
+        total,
+        draws: count,
+    })
+}
+
+/// The part of every shock in a mean shift `Δ` (N): `ε̄ = M⁻¹Δ`, then
+/// `C_t = Σ_l B_l C_{t−l} + L diag(ε̄_t)`; column `j` of the result (N × n) is shock `j`'s part.
+pub fn by_shock(theta: &Theta, delta: &[f64]) -> Result<DMatrix<f64>, ForecastError> {
+    let (n, h, p) = (theta.n(), theta.h, theta.p());
+    let eps = theta.shocks_from_departures(&DMatrix::from_column_slice(delta.len(), 1, delta))?;
+    let mut c: Vec<DMatrix<f64>> = Vec::with_capacity(h);
+    for t in 0..h {
+        let mut ct = theta.impact.clone();
+        for j in 0..n {
+            ct.column_mut(j).scale_mut(eps[(t * n + j, 0)]);
+        }
+        for l in 1..=p.min(t) {
+            ct.gemm(1.0, &theta.lags[l - 1], &c[t - l], 1.0);
+        }
+        c.push(ct);
+    }
+    let mut out = DMatrix::zeros(n * h, n);
+    for (t, ct) in c.iter().enumerate() {
+        out.rows_mut(t * n, n).copy_from(ct);
+    }
+    Ok(out)
+}

@@ -1,0 +1,224 @@
+//! One scenario pipeline, driven by `tiltyard run`, `tiltyard check` and the window's worker:
+//! model → checks at the central parameters → checks on posterior draws → paths → results.
+//!
+//! Each front end calls the same steps in the same order, so the same scenario and seed give
+//! the same check report wherever it is read:
+//!
+//! 1. [`Model::new`]: the posterior (or the fixed coefficients) and the central parameters
+//!    `θ̄` (the posterior mean, or the fixed coefficients themselves);
+//! 2. [`read_conditions`]: pins and corridors as engine rows, every invalid one a clash
+//!    finding naming its field;
+//! 3. [`check_central`]: clashes, strain and plausibility at `θ̄` (ALGORITHMS §9);
+//! 4. [`check_draws`]: the first [`DRAWS_RECHECKED`] posterior draws conditioned one by one
+//!    (the drivers' rank condition, near dependence and the corridor sampler's acceptance
+//!    change from draw to draw, ALGORITHMS §9.1 item 6);
+//! 5. paths ([`crate::forecast::sample_paths`]) over the posterior draws of [`Model::draw`],
+//!    block by block, then fans and attribution.
+
+use std::sync::atomic::AtomicBool;
+
+use rayon::prelude::*;
+
+use crate::checks::{CheckReport, Finding, Severity, Status, check_conditions};
+use crate::forecast::{
+    Conditions, DrawSpec, ForecastError, ParamSource, Plan, Theta, ThetaSet, build_thetas,
+    random::{Purpose, stream},
+};
+use crate::model::FitSummary;
+use crate::scenario::{ScenarioError, Setup};
+
+/// Posterior draws re-checked one by one (ALGORITHMS §9.1 item 6).
+pub const DRAWS_RECHECKED: usize = 40;
+/// Proposals behind each re-checked draw's acceptance estimate (more than the sampling
+/// loop's screen: here the estimate is reported).
+const RECHECK_PROPOSALS: usize = 256;
+
+/// The model-level part of a run: kept while only conditions change.
+#[derive(Debug, Clone)]
+pub struct Model {
+    pub source: ParamSource,
+    pub fit: Option<FitSummary>,
+    /// The central parameters: the posterior mean, or the fixed coefficients.
+    pub central: Theta,
+    /// Which parameters `central` holds, as the reports say it.
+    pub central_label: &'static str,
+}
+
+impl Model {
+    /// Estimate the model (or take the fixed coefficients) and build the central θ.
+    pub fn new(setup: &Setup) -> Result<Model, PipelineError> {
+        let (source, fit) = setup.estimate()?;
+        let (params, central_label) = match &source {
+            ParamSource::Fixed(p) => (p.clone(), "the fixed coefficients"),
+            ParamSource::Posterior(post) => (
+                post.mean().ok_or(ForecastError::Singular(
+                    "the posterior mean of Σ (too few observations)".into(),
+                ))?,
+                "the posterior mean of the parameters",
+            ),
+        };
+        let central = Theta::new(params, &setup.ordering, &setup.tail()?, setup.file.horizon)?;
+        Ok(Model {
+            source,
+            fit,
+            central,
+            central_label,
+        })
+    }
+
+    pub fn is_fixed(&self) -> bool {
+        matches!(self.source, ParamSource::Fixed(_))
+    }
+
+    /// Parameter draws and paths per draw that the scenario asks for: fixed coefficients are
+    /// one θ with every path drawn from it.
+    pub fn counts(&self, setup: &Setup) -> (usize, usize) {
+        let file = &setup.file;
+        if self.is_fixed() {
+            (1, file.draws * file.paths_per_draw)
+        } else {
+            (file.draws, file.paths_per_draw)
+        }
+    }
+
+    /// The first `count` posterior draws (kept by the stationarity filter, if any), or the one
+    /// fixed θ. Draw `i` is the same whatever `count` is.
+    pub fn draw(
+        &self,
+        setup: &Setup,
+        count: usize,
+        cancel: &AtomicBool,
+    ) -> Result<ThetaSet, PipelineError> {
+        let spec = DrawSpec {
+            count,
+            seed: setup.file.seed,
+            below: setup.file.largest_root.bound(),
+            min_kept_share: setup.file.checks.min_kept_share,
+        };
+        Ok(build_thetas(
+            &self.source,
+            &setup.ordering,
+            &setup.tail()?,
+            setup.file.horizon,
+            spec,
+            cancel,
+        )?)
+    }
+}
+
+/// Errors of the pipeline's model-level steps.
+#[derive(Debug, thiserror::Error)]
+pub enum PipelineError {
+    #[error(transparent)]
+    Scenario(#[from] ScenarioError),
+    #[error(transparent)]
+    Forecast(#[from] ForecastError),
+}
+
+/// The scenario's conditions as engine rows, with every condition that cannot be read as a
+/// clash finding naming its field (the others are still checked).
+pub fn read_conditions(setup: &Setup) -> (Conditions, Vec<Finding>) {
+    let (conditions, problems) = setup.read_conditions();
+    (conditions, problems.iter().map(invalid_finding).collect())
+}
+
+/// A condition that cannot be read, as a clash naming its field.
+pub fn invalid_finding(e: &ScenarioError) -> Finding {
+    let field = match e {
+        ScenarioError::Invalid { field, .. }
+        | ScenarioError::Condition { field, .. }
+        | ScenarioError::UnknownSeries { field, .. }
+        | ScenarioError::UnknownShock { field, .. } => field.clone(),
+        _ => String::new(),
+    };
+    Finding {
+        severity: Severity::Clash,
+        kind: "invalid_condition".into(),
+        conditions: Vec::new(),
+        fields: vec![field],
+        message: e.to_string(),
+        remedy: "correct the field named here (the condition was left out of the other checks)"
+            .into(),
+        minimal: None,
+    }
+}
+
+/// The checks at the central parameters, with the invalid conditions' findings.
+pub fn check_central(
+    setup: &Setup,
+    model: &Model,
+    conditions: &Conditions,
+    invalid: Vec<Finding>,
+) -> CheckReport {
+    check_conditions(
+        &model.central,
+        conditions,
+        &setup.file.checks,
+        setup.file.seed,
+        model.central_label,
+        invalid,
+    )
+}
+
+/// Condition the first [`DRAWS_RECHECKED`] posterior draws of `thetas` one by one and add a
+/// finding when some cannot be used: a clash past `checks.max_failed_share` (a run would stop
+/// there), a strain below it (a run sets them aside). Nothing to do for fixed coefficients
+/// or a report that already clashes.
+pub fn check_draws(
+    setup: &Setup,
+    report: &mut CheckReport,
+    thetas: &ThetaSet,
+    conditions: &Conditions,
+) {
+    if thetas.fixed || report.clashes() {
+        return;
+    }
+    let settings = &setup.file.checks;
+    let count = thetas.thetas.len().min(DRAWS_RECHECKED);
+    let fails = |i: usize| -> Option<ForecastError> {
+        let plan = match Plan::new(&thetas.thetas[i], conditions, Some(i)) {
+            Ok(plan) => plan,
+            Err(e) => return Some(e),
+        };
+        let mut rng = stream(setup.file.seed, Purpose::Acceptance, i as u64);
+        match plan.acceptance(&mut rng, RECHECK_PROPOSALS) {
+            Ok(Some(a)) if a < settings.min_acceptance => Some(ForecastError::TooImprobable {
+                corridors: plan.corridor_names(),
+                acceptance: a,
+                draw: Some(i),
+            }),
+            Ok(_) => None,
+            Err(e) => Some(e),
+        }
+    };
+    // In parallel, gathered in draw order: the report does not depend on the threads.
+    let failing: Vec<ForecastError> = (0..count)
+        .into_par_iter()
+        .filter_map(fails)
+        .collect::<Vec<_>>();
+    let Some(first) = failing.first() else {
+        return;
+    };
+    let share = failing.len() as f64 / count.max(1) as f64;
+    let clash = share > settings.max_failed_share;
+    report.findings.push(Finding {
+        severity: if clash { Severity::Clash } else { Severity::Strain },
+        kind: "fails_in_posterior_draws".into(),
+        conditions: Vec::new(),
+        fields: Vec::new(),
+        message: format!(
+            "{} of {count} posterior draws checked cannot meet the conditions ({first}); a run sets such draws aside, and stops when they are more than {:.0}% (checks.max_failed_share)",
+            failing.len(),
+            100.0 * settings.max_failed_share
+        ),
+        remedy: "add drivers or loosen the conditions; the central parameters meet them, but parameter uncertainty does not".into(),
+        minimal: None,
+    });
+    report.status = if clash {
+        Status::Clashing
+    } else if report.status == Status::Clear {
+        Status::Strained
+    } else {
+        report.status
+    };
+}

@@ -1,0 +1,111 @@
+//! The attribution in people's units, and `attribution.csv`.
+//!
+//! The split is exact in model units ([`crate::attribution`]). A series' display units are
+//! used where they are linear in model units, so the parts still add up: levels, changes and
+//! averages of an as-is series; for a `100·ln` series its log level (≈ % difference from the
+//! unconditional forecast) and growth in log points (≈ % growth). Growth of an as-is series
+//! is a ratio, not additive: those series are split in levels. History is the same under
+//! both forecasts, so it carries no part.
+
+use std::path::Path;
+
+use super::{ReportError, csv_writer};
+use crate::attribution::Attribution;
+use crate::dataset::Transform;
+use crate::scenario::{Setup, Units};
+
+/// How series `i`'s parts are shown: `(lag, coefficient)` terms over its model-unit parts,
+/// and the units' name.
+pub fn linear_units(setup: &Setup, i: usize) -> (Vec<(usize, f64)>, String) {
+    let f = setup.periods_per_year();
+    let average = |k: usize| (0..k).map(|l| (l, 1.0 / k as f64)).collect::<Vec<_>>();
+    match (setup.transforms[i], setup.display[i]) {
+        (Transform::AsIs, Units::Difference) => (vec![(0, 1.0), (1, -1.0)], "change".into()),
+        (Transform::AsIs, Units::Average(k)) => (average(k), format!("average of {k} periods")),
+        (Transform::AsIs, _) => (vec![(0, 1.0)], "level".into()),
+        (Transform::Log100, Units::PctChange) => (
+            vec![(0, 1.0), (1, -1.0)],
+            "log points of % change on the period before".into(),
+        ),
+        (Transform::Log100, Units::Annualised) => (
+            vec![(0, f as f64), (1, -(f as f64))],
+            "log points of annualised % change".into(),
+        ),
+        (Transform::Log100, Units::YearOnYear) => (
+            vec![(0, 1.0), (f, -1.0)],
+            "log points of % change on a year earlier".into(),
+        ),
+        (Transform::Log100, Units::Average(k)) => (
+            average(k),
+            format!("log points of the {k}-period average level"),
+        ),
+        (Transform::Log100, _) => (vec![(0, 1.0)], "log points of the level (≈ %)".into()),
+    }
+}
+
+/// Series `i` of a stacked model-unit part at horizons 1…h, in its [`linear_units`].
+pub fn series_part(setup: &Setup, terms: &[(usize, f64)], part: &[f64], i: usize) -> Vec<f64> {
+    let (n, h) = (setup.n(), setup.file.horizon);
+    (1..=h)
+        .map(|t| {
+            terms
+                .iter()
+                .filter(|&&(lag, _)| lag < t)
+                .map(|&(lag, c)| c * part[(t - lag - 1) * n + i])
+                .sum()
+        })
+        .collect()
+}
+
+/// `attribution.csv`: `series,period,horizon,units,kind,part,value`, where `kind` is `total`
+/// (conditional minus unconditional mean), `shock` (a structural shock, named after the
+/// series it is ordered with), `condition` (a pin or corridor, by its label) or `parameters`
+/// (reweighting of the posterior draws).
+pub fn write_attribution(path: &Path, setup: &Setup, a: &Attribution) -> Result<(), ReportError> {
+    let err = |error| ReportError::Csv {
+        path: path.to_path_buf(),
+        error,
+    };
+    let mut w = csv_writer(path)?;
+    w.write_record([
+        "series", "period", "horizon", "units", "kind", "part", "value",
+    ])
+    .map_err(err)?;
+    let last = setup.last_period();
+    for i in 0..setup.n() {
+        let (terms, units) = linear_units(setup, i);
+        let mut parts: Vec<(&str, &str, Vec<f64>)> =
+            vec![("total", "", series_part(setup, &terms, &a.total, i))];
+        for (j, shock) in a.by_shock.iter().enumerate() {
+            parts.push((
+                "shock",
+                &setup.names[j],
+                series_part(setup, &terms, shock, i),
+            ));
+        }
+        for ((label, _), part) in a.conditions.iter().zip(&a.by_condition) {
+            parts.push(("condition", label, series_part(setup, &terms, part, i)));
+        }
+        if let Some(p) = &a.parameters {
+            parts.push(("parameters", "", series_part(setup, &terms, p, i)));
+        }
+        for t in 1..=setup.file.horizon {
+            for (kind, name, values) in &parts {
+                w.write_record([
+                    setup.names[i].as_str(),
+                    &last.offset(t as i64).to_string(),
+                    &t.to_string(),
+                    &units,
+                    kind,
+                    name,
+                    &values[t - 1].to_string(),
+                ])
+                .map_err(err)?;
+            }
+        }
+    }
+    w.flush().map_err(|error| ReportError::Io {
+        path: path.to_path_buf(),
+        error,
+    })
+}

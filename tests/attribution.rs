@@ -1,0 +1,139 @@
+//! Attribution with corridors, drivers and parameter uncertainty (the adverse demo): the
+//! parts add up to the total exactly, the total is the conditional mean shift within Monte
+//! Carlo error, and nothing depends on the number of threads. The exact values of the split
+//! are checked against numpy in `reference_pins.rs`.
+
+use std::path::Path;
+
+use tiltyard::attribution::{Attribution, attribute};
+use tiltyard::run::{RunOptions, run};
+use tiltyard::scenario::{self, Setup};
+
+/// Additivity: the parts are sums of the same per-draw terms, so they add up to rounding.
+const ADDS_UP: f64 = 1e-9;
+/// Monte Carlo checks: 4 standard errors (ALGORITHMS §11.4).
+const MC_SE: f64 = 4.0;
+
+fn adverse(draws: usize, reweight: bool) -> Setup {
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("scenarios-demo/adverse.ron");
+    let mut file = scenario::read(&path).unwrap();
+    file.draws = draws;
+    file.reweight = reweight;
+    Setup::new(file, &path).unwrap()
+}
+
+fn assert_adds_up(a: &Attribution) {
+    let scale = a.total.iter().fold(1.0f64, |m, v| m.max(v.abs()));
+    for cell in 0..a.total.len() {
+        let shocks: f64 = a.by_shock.iter().map(|p| p[cell]).sum();
+        let conditions: f64 = a.by_condition.iter().map(|p| p[cell]).sum();
+        let params = a.parameters.as_ref().map_or(0.0, |p| p[cell]);
+        assert!(
+            (shocks + params - a.total[cell]).abs() < ADDS_UP * scale,
+            "cell {cell}: shocks {shocks} + parameters {params} vs total {}",
+            a.total[cell]
+        );
+        assert!(
+            (conditions + params - a.total[cell]).abs() < ADDS_UP * scale,
+            "cell {cell}: conditions {conditions} + parameters {params} vs total {}",
+            a.total[cell]
+        );
+    }
+}
+
+#[test]
+fn parts_add_up_and_the_total_is_the_mean_shift() {
+    let mut setup = adverse(400, false);
+    let out = run(&mut setup, &RunOptions::default()).unwrap();
+    let a = out.attribution.as_ref().unwrap();
+    assert_adds_up(a);
+    assert_eq!(a.draws, out.posterior_draws);
+    assert!(a.parameters.is_none());
+    // Every condition moves something, and so do the drivers' shocks; a shock that does not
+    // drive, has no condition on it and is not needed is not moved (its mean stays 0).
+    assert!(
+        a.by_condition
+            .iter()
+            .all(|p| p.iter().any(|v| v.abs() > 1e-6))
+    );
+    let moved = |j: usize| a.by_shock[j].iter().any(|v| v.abs() > 1e-9);
+    for (j, name) in setup.names.iter().enumerate() {
+        let drives = setup.file.drivers.as_ref().unwrap().contains(name);
+        assert_eq!(moved(j), drives, "shock {name}");
+    }
+    // The total averages Δ_θ = W(E[z] − 𝒢μ_θ) over the draws. Each path was made from an
+    // unconditional one, y = y* + W(t − 𝒢y*), so with one path per draw
+    // y − y* − Δ_θ = −W𝒢(y* − μ_θ): Monte Carlo noise with mean zero, independent across
+    // draws. The paths' mean shift differs from the total by its average: within 4 standard
+    // errors of zero, the standard error from the residuals themselves.
+    assert_eq!(setup.file.paths_per_draw, 1);
+    let paths = &out.paths;
+    assert_eq!(paths.parts.len(), paths.conditional.len());
+    let count = paths.conditional.len() as f64;
+    for cell in 0..a.total.len() {
+        let residuals: Vec<f64> = (0..paths.conditional.len())
+            .map(|k| {
+                let part = &paths.parts[k];
+                assert_eq!(part.theta, paths.sources[k]);
+                let delta: f64 = part.by_condition.row(cell).sum();
+                paths.conditional[k][cell] - paths.unconditional[k][cell] - delta
+            })
+            .collect();
+        let mean = residuals.iter().sum::<f64>() / count;
+        let var = residuals.iter().map(|r| (r - mean).powi(2)).sum::<f64>() / (count - 1.0);
+        let se = (var / count).sqrt();
+        let shift = paths
+            .conditional
+            .iter()
+            .zip(&paths.unconditional)
+            .map(|(y, u)| y[cell] - u[cell])
+            .sum::<f64>()
+            / count;
+        assert!(
+            (shift - a.total[cell]).abs() <= MC_SE * se + 1e-9,
+            "cell {cell}: paths' mean shift {shift} vs attribution total {} (se {se:e})",
+            a.total[cell]
+        );
+    }
+}
+
+#[test]
+fn reweighted_draws_have_a_parameters_part_and_still_add_up() {
+    let mut setup = adverse(120, true);
+    let out = run(&mut setup, &RunOptions::default()).unwrap();
+    let a = out.attribution.as_ref().unwrap();
+    assert!(a.parameters.is_some());
+    assert_adds_up(a);
+}
+
+#[test]
+fn the_split_does_not_depend_on_the_threads() {
+    let split = |threads: usize| {
+        let pool = rayon::ThreadPoolBuilder::new()
+            .num_threads(threads)
+            .build()
+            .unwrap();
+        pool.install(|| {
+            let mut setup = adverse(100, false);
+            run(&mut setup, &RunOptions::default())
+                .unwrap()
+                .attribution
+                .unwrap()
+        })
+    };
+    assert_eq!(split(1), split(2));
+}
+
+#[test]
+fn attribution_matches_its_parts_recomputed_from_scratch() {
+    // The parts the run kept, attributed again outside the run, give the run's result.
+    let mut setup = adverse(60, false);
+    let out = run(&mut setup, &RunOptions::default()).unwrap();
+    let cond = setup.conditions().unwrap();
+    let model = tiltyard::pipeline::Model::new(&setup).unwrap();
+    let set = model
+        .draw(&setup, 60, &std::sync::atomic::AtomicBool::new(false))
+        .unwrap();
+    let again = attribute(&set.thetas, &cond, &out.paths.parts, None).unwrap();
+    assert_eq!(&again, out.attribution.as_ref().unwrap());
+}
