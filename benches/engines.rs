@@ -499,22 +499,27 @@ fn main() {
             cell(ratio(label, other), 1)
         );
     }
-    // The rare corridor: naive rejection against the main engine, per path.
-    let main = measure("run:rare.ron:main:2:all");
-    let rejection = measure("run:rare.ron:rejection:2:all");
-    if let (Some(tm), Some(tr), Some(props), Some(paths)) = (
-        num(&main, "secs"),
-        num(&rejection, "secs"),
-        num(&rejection, "proposals"),
-        num(&rejection, "paths"),
-    ) {
-        println!(
-            "rare corridor (S model, probability ≈ {:.1e} by rejection's acceptance): 2,000 paths main {tm:.2} s, rejection {tr:.1} s: {:.0}×",
-            paths / props,
-            tr / tm
-        );
-    } else {
-        println!("rare corridor: {main:?} {rejection:?}");
+    // Rare corridors: naive rejection against the main engine, per path (rejection's cost
+    // grows as 1/probability: at about 1e-4 it draws 40 paths, scaled to 2,000).
+    for (file, paths) in [("rare.ron", 2000), ("rare-deep.ron", 40)] {
+        let main = measure(&format!("run:{file}:main:2:all:2000"));
+        let rejection = measure(&format!("run:{file}:rejection:2:all:{paths}"));
+        if let (Some(tm), Some(tr), Some(props), Some(kept)) = (
+            num(&main, "secs"),
+            num(&rejection, "secs"),
+            num(&rejection, "proposals"),
+            num(&rejection, "paths"),
+        ) {
+            let tr = tr * 2000.0 / paths as f64;
+            println!(
+                "{file} (S model, probability ≈ {:.1e} by rejection's acceptance): 2,000 paths main {tm:.2} s, rejection {tr:.1} s{}: {:.0}×",
+                kept / props,
+                if paths < 2000 { " (from 40)" } else { "" },
+                tr / tm
+            );
+        } else {
+            println!("{file}: {main:?} {rejection:?}");
+        }
     }
     let roots = measure("roots:l-estimated.ron");
     if let (Some(r), Some(d)) = (num(&roots, "root_ms"), num(&roots, "draw_ms")) {

@@ -16,8 +16,8 @@ fixed coefficients:
     M     20      4     20       5 pins, corridors on 3 series over all 20 periods
     L     40      4     20       3 pins, one corridor over all 20 periods
 
-plus rare.ron (the S model with a corridor of probability about 1e-3, for the comparison with
-naive rejection). The fixed coefficients are a ridge estimate (numpy least squares on the
+plus rare.ron and rare-deep.ron (the S model with a corridor of probability about 1e-3 and
+1e-4, for the comparison with naive rejection). The fixed coefficients are a ridge estimate (numpy least squares on the
 augmented system, shrunk towards random walks) on the same data: a stand-in for coefficients a
 team already has.
 
@@ -272,6 +272,10 @@ def main():
     b, sigma = ridge(y, p)
     (OUT / "rare.ron").write_text(scenario("rare corridor", 8, 12, pins3[:1], rare,
                                            fixed_ron(b, sigma, 8, p), "fixed coefficients"))
+    deep = [f'(series: "policy_rate", from: "{quarter(1)}", to: "{quarter(8)}", '
+            f'lower: {i_rate - 0.25:.2f}, upper: {i_rate + 0.25:.2f})']
+    (OUT / "rare-deep.ron").write_text(scenario("rarer corridor", 8, 12, pins3[:1], deep,
+                                                fixed_ron(b, sigma, 8, p), "fixed coefficients"))
 
 
 if __name__ == "__main__":

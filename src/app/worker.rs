@@ -251,9 +251,17 @@ fn process(
         send(Message::Results(g, Arc::new(r)));
         Ok(())
     };
+    // Fixed coefficients draw all their paths here: the first PREVIEW_PATHS of them are
+    // summarised first, and all of them once the checks are out.
     let first = invalid.is_empty().then(|| {
-        preview(&setup, &mut model.preview, &conditions, job)
-            .and_then(|paths| publish(model, &paths, false))
+        preview(&setup, &mut model.preview, &conditions, job).and_then(|paths| {
+            if paths.conditional.len() > PREVIEW_PATHS {
+                publish(model, &paths.first(PREVIEW_PATHS), false)?;
+            } else {
+                publish(model, &paths, false)?;
+            }
+            Ok(paths)
+        })
     });
     if cancelled() {
         return Ok(());
@@ -267,7 +275,7 @@ fn process(
         send(Message::State(g, EngineState::Clashing));
         // Something to look at when the window has no earlier fans (it keeps those if it has):
         // the forecast without the conditions.
-        if !matches!(first, Some(Ok(())))
+        if !matches!(first, Some(Ok(_)))
             && let Ok(paths) = preview(&setup, &mut model.preview, &Conditions::default(), job)
         {
             publish(model, &paths, true).map_err(text)?;
@@ -278,7 +286,13 @@ fn process(
         // (Invalid conditions always clash: `None` does not get here.)
         None | Some(Err(crate::forecast::ForecastError::Cancelled)) => Ok(()),
         Some(Err(e)) => Err(e.to_string()),
-        Some(Ok(())) if fixed => {
+        Some(Ok(paths)) if fixed => {
+            if paths.conditional.len() > PREVIEW_PATHS {
+                let Some(model) = cache.as_ref() else {
+                    return Err("no model".into());
+                };
+                publish(model, &paths, false).map_err(text)?;
+            }
             send(Message::State(
                 g,
                 EngineState::Done {
@@ -289,7 +303,7 @@ fn process(
             ));
             Ok(())
         }
-        Some(Ok(())) => {
+        Some(Ok(_)) => {
             let Some(model) = cache.as_mut() else {
                 return Err("no model".into());
             };

@@ -291,8 +291,9 @@ impl PathSet {
 
     /// Set aside every θ (fixed coefficients: every path) with a path, conditional or not,
     /// that `ok` rejects — for example one that overflows in display units — as `NotFinite`.
-    pub fn keep_only(&mut self, ok: impl Fn(&[f64]) -> bool) {
+    pub fn keep_only(&mut self, ok: impl Fn(&[f64]) -> bool + Sync) {
         let bad: Vec<bool> = (0..self.conditional.len())
+            .into_par_iter()
             .map(|k| !(ok(&self.conditional[k]) && ok(&self.unconditional[k])))
             .collect();
         if !bad.contains(&true) {
@@ -342,6 +343,22 @@ impl PathSet {
         retain_by(&mut self.unconditional, &drop);
         retain_by(&mut self.sources, &drop);
         self.failures.sort_by_key(|f| f.index);
+    }
+
+    /// The first `k` paths (fixed coefficients: a first summary before all of them), with
+    /// what was measured over all of them.
+    pub fn first(&self, k: usize) -> PathSet {
+        let k = k.min(self.conditional.len());
+        PathSet {
+            conditional: self.conditional[..k].to_vec(),
+            unconditional: self.unconditional[..k].to_vec(),
+            sources: self.sources[..k].to_vec(),
+            log_weights: self.log_weights.clone(),
+            notes: self.notes.clone(),
+            failures: self.failures.clone(),
+            parts: self.parts.clone(),
+            ..*self
+        }
     }
 
     /// Share of the attempts set aside.
