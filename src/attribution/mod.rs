@@ -195,16 +195,26 @@ pub fn attribute(
     })
 }
 
+/// Shocks whose conditional means are all below this share of the largest one are left out
+/// of the recursion (non-drivers: zero up to the rounding of `M⁻¹Δ`).
+const NEGLIGIBLE: f64 = 1e-13;
+
 /// The part of every shock in a mean shift `Δ` (N): `ε̄ = M⁻¹Δ`, then
 /// `C_t = Σ_l B_l C_{t−l} + L diag(ε̄_t)`; column `j` of the result (N × n) is shock `j`'s part.
+/// Only the shocks that move are carried through the recursion (with drivers, a few).
 pub fn by_shock(theta: &Theta, delta: &[f64]) -> Result<DMatrix<f64>, ForecastError> {
     let (n, h, p) = (theta.n(), theta.h, theta.p());
     let eps = theta.shocks_from_departures(&DMatrix::from_column_slice(delta.len(), 1, delta))?;
+    let largest = eps.amax();
+    let moving: Vec<usize> = (0..n)
+        .filter(|&j| (0..h).any(|t| eps[(t * n + j, 0)].abs() > NEGLIGIBLE * largest))
+        .collect();
+    let impact = theta.impact.select_columns(&moving);
     let mut c: Vec<DMatrix<f64>> = Vec::with_capacity(h);
     for t in 0..h {
-        let mut ct = theta.impact.clone();
-        for j in 0..n {
-            ct.column_mut(j).scale_mut(eps[(t * n + j, 0)]);
+        let mut ct = impact.clone();
+        for (k, &j) in moving.iter().enumerate() {
+            ct.column_mut(k).scale_mut(eps[(t * n + j, 0)]);
         }
         for l in 1..=p.min(t) {
             ct.gemm(1.0, &theta.lags[l - 1], &c[t - l], 1.0);
@@ -213,7 +223,9 @@ pub fn by_shock(theta: &Theta, delta: &[f64]) -> Result<DMatrix<f64>, ForecastEr
     }
     let mut out = DMatrix::zeros(n * h, n);
     for (t, ct) in c.iter().enumerate() {
-        out.rows_mut(t * n, n).copy_from(ct);
+        for (k, &j) in moving.iter().enumerate() {
+            out.view_mut((t * n, j), (n, 1)).copy_from(&ct.column(k));
+        }
     }
     Ok(out)
 }
