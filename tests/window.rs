@@ -820,3 +820,47 @@ fn new_asks_about_unsaved_changes_first() {
     settle(&mut h);
     assert!(h.state().checks.is_some());
 }
+
+/// "Where it comes from" shows the headless run's attribution (the same draws, split the same
+/// way, to the last digit), by shock and by condition, each condition keyed by its colour.
+#[test]
+fn the_window_splits_the_scenario_as_the_headless_run_does() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = demo_copy(&dir);
+    let mut setup = scenario::load(&path).unwrap();
+    let out = tiltyard::run::run(&mut setup, &Default::default()).unwrap();
+    let mut h = harness(&path);
+    settle(&mut h);
+    let (_, sources) = h
+        .state()
+        .sources
+        .clone()
+        .expect("the split came with the draws");
+    assert_eq!(Some(&sources.attribution), out.attribution.as_ref());
+    h.get_by_label("Where it comes from").click();
+    h.run_steps(2);
+    assert!(h.state().sources_view.open);
+    h.get_by_label("total").hover();
+    // The shock list on the left, and the table's row.
+    assert!(h.query_all_by_label("unemployment shock").count() >= 2);
+    // No condition is keyed while the split is by shock; by condition, each is.
+    let pin = tiltyard::app::chart::CondRef::Pin(0);
+    assert!(tiltyard::app::sources::colour_of(h.state(), pin).is_none());
+    h.get_by_label("by condition").click();
+    h.run_steps(2);
+    assert!(h.state().sources_view.by_condition);
+    assert_eq!(
+        tiltyard::app::sources::colour_of(h.state(), pin),
+        Some(tiltyard::app::sources::condition_colour(0))
+    );
+    // The chart's legend and the table's row.
+    assert_eq!(
+        h.query_all_by_label("credit_spread level at 2026Q3 = 3.5")
+            .count(),
+        2
+    );
+    // Back to the charts.
+    h.get_by_label("Series paths").click();
+    h.run_steps(2);
+    assert!(!h.state().sources_view.open);
+}

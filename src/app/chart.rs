@@ -182,7 +182,7 @@ pub fn tidy(x: f64) -> f64 {
 /// Value grid steps of 1, 2 or 5 times a power of ten (three levels, the finest at least the
 /// plot's smallest step, each a multiple of the one before so that labels stay evenly spaced),
 /// so that every chart gets a few labelled values.
-fn steps_125(input: egui_plot::GridInput) -> [f64; 3] {
+pub fn steps_125(input: egui_plot::GridInput) -> [f64; 3] {
     // 1 → 2 → 10, 2 → 10, 5 → 10.
     let next = |s: f64| {
         let p = 10f64.powf(s.log10().floor());

@@ -105,6 +105,10 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     };
     let (page_names, pages) = app.grid.page_of(&names);
     controls(ui, app, pal, pages);
+    if app.sources_view.open {
+        super::sources::show(ui, app, pal);
+        return;
+    }
     let Some(results) = app.results.clone() else {
         ui.centered_and_justified(|ui| {
             ui.label("The fans appear here as soon as the engine has the first draws.");
@@ -203,8 +207,26 @@ fn controls(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette, pages: usiz
     // Wrapped when the panel is narrow; the page label has a fixed width, so the row keeps
     // its height as pages turn.
     ui.horizontal_wrapped(|ui| {
-        ui.selectable_value(&mut app.view, Subject::Series, "Series paths");
-        ui.selectable_value(&mut app.view, Subject::Shock, "Structural shocks");
+        let open = app.sources_view.open;
+        for (subject, label) in [
+            (Subject::Series, "Series paths"),
+            (Subject::Shock, "Structural shocks"),
+        ] {
+            if ui.selectable_label(!open && app.view == subject, label).clicked() {
+                app.view = subject;
+                app.sources_view.open = false;
+            }
+        }
+        if ui
+            .selectable_label(open, "Where it comes from")
+            .on_hover_text("The scenario's move away from the unconditional forecast, split by structural shock or by condition")
+            .clicked()
+        {
+            app.sources_view.open = true;
+        }
+        if open {
+            return;
+        }
         ui.separator();
         let find = ui
             .add(
@@ -254,6 +276,9 @@ fn controls(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette, pages: usiz
             app.grid.conditioned_first(&app.doc.file);
         }
     });
+    if app.sources_view.open {
+        return;
+    }
     let (up, down) = ui.input(|i| {
         (
             i.key_pressed(egui::Key::PageUp),

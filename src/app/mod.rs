@@ -20,6 +20,7 @@ pub mod grid;
 pub mod palette;
 pub mod panels;
 pub mod settings;
+pub mod sources;
 pub mod table;
 pub mod worker;
 
@@ -33,7 +34,7 @@ use std::time::{Duration, Instant};
 use chart::{ChartAction, ChartMemory, CondRef};
 use document::Document;
 use files::{Answer, Chores, Dialogs, PathPicker, Purpose};
-use worker::{EngineState, Job, Message, Results, Subject};
+use worker::{EngineState, Job, Message, Results, Sources, Subject};
 
 use crate::checks::{CheckReport, Severity};
 use crate::scenario::{Bound, CorridorSpec, PinSpec, ScenarioFile};
@@ -77,6 +78,10 @@ pub struct TiltyardApp {
     job_started: Instant,
     // What the worker said for the current generation (results are kept until replaced).
     pub results: Option<Arc<Results>>,
+    /// The last attribution, and the generation it belongs to (older ones are shown as such).
+    pub sources: Option<(u64, Arc<Sources>)>,
+    /// The attribution view in place of the chart grid, and what it shows.
+    pub sources_view: sources::SourcesView,
     pub checks: Option<Box<CheckReport>>,
     /// How many pins and corridors the scenario had when it was checked (the findings name
     /// conditions by position, so they colour nothing once the lists change).
@@ -164,6 +169,8 @@ impl TiltyardApp {
             sent: None,
             job_started: Instant::now(),
             results: None,
+            sources: None,
+            sources_view: sources::SourcesView::default(),
             checks: None,
             checked: (0, 0),
             state: EngineState::Idle,
@@ -262,6 +269,7 @@ impl TiltyardApp {
                     self.first_update.get_or_insert(self.job_started.elapsed());
                     self.results = Some(r);
                 }
+                Message::Sources(g, s) if g == self.generation => self.sources = Some((g, s)),
                 Message::Failed(g, text) if g == self.generation => self.engine_error = Some(text),
                 _ => {}
             }

@@ -100,7 +100,7 @@ fn row_frame(
         None => ui.visuals().widgets.noninteractive.bg_stroke.color,
     };
     let width = if app.selected == Some(cref) { 2.0 } else { 1.0 };
-    egui::Frame::group(ui.style())
+    let frame = egui::Frame::group(ui.style())
         .stroke(egui::Stroke::new(width, stroke_colour))
         .show(ui, |ui| {
             body(ui);
@@ -111,6 +111,12 @@ fn row_frame(
             };
             ui.label(RichText::new(word).small().color(stroke_colour));
         });
+    // The split by condition is on show: the condition's colour there, as a strip on the left.
+    if let Some(colour) = super::sources::colour_of(app, cref) {
+        let r = frame.response.rect;
+        let strip = egui::Rect::from_min_max(r.left_top(), egui::pos2(r.left() + 4.0, r.bottom()));
+        ui.painter().rect_filled(strip, 2.0, colour);
+    }
 }
 
 fn gesture(r: &egui::Response, edits: &mut Vec<Edit>) {

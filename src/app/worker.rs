@@ -15,6 +15,7 @@ use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::mpsc::{Receiver, Sender};
 use std::time::Instant;
 
+use crate::attribution::{Attribution, attribute};
 use crate::checks::CheckReport;
 use crate::dataset::Period;
 use crate::forecast::{
@@ -131,7 +132,36 @@ pub enum Message {
     Model(u64, String),
     Checks(u64, Box<CheckReport>),
     Results(u64, Arc<Results>),
+    /// Where the scenario comes from, once all its draws are in.
+    Sources(u64, Arc<Sources>),
     Failed(u64, String),
+}
+
+/// The attribution of the scenario's mean shift, with how each series shows it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Sources {
+    pub attribution: Attribution,
+    /// Per series: the terms and the name of its units for the split
+    /// ([`crate::report::attribution::linear_units`]).
+    pub units: Vec<(Vec<(usize, f64)>, String)>,
+    /// The shocks in identification order (the split by shock depends on it).
+    pub ordering: Vec<String>,
+}
+
+impl Sources {
+    fn new(setup: &Setup, attribution: Attribution) -> Sources {
+        Sources {
+            units: (0..setup.n())
+                .map(|i| crate::report::attribution::linear_units(setup, i))
+                .collect(),
+            ordering: setup
+                .ordering
+                .iter()
+                .map(|&i| setup.names[i].clone())
+                .collect(),
+            attribution,
+        }
+    }
 }
 
 /// Model-level work kept between jobs.
@@ -287,12 +317,15 @@ fn process(
         None | Some(Err(crate::forecast::ForecastError::Cancelled)) => Ok(()),
         Some(Err(e)) => Err(e.to_string()),
         Some(Ok(paths)) if fixed => {
+            let Some(model) = cache.as_ref() else {
+                return Err("no model".into());
+            };
             if paths.conditional.len() > PREVIEW_PATHS {
-                let Some(model) = cache.as_ref() else {
-                    return Err("no model".into());
-                };
                 publish(model, &paths, false).map_err(text)?;
             }
+            let central = std::slice::from_ref(&model.model.central);
+            let split = attribute(central, &conditions, &paths.parts, None).map_err(text)?;
+            send(Message::Sources(g, Arc::new(Sources::new(&setup, split))));
             send(Message::State(
                 g,
                 EngineState::Done {
@@ -448,6 +481,12 @@ fn posterior(
         }
     }
     let all = all.within(file.checks.max_failed_share).map_err(text)?;
+    // The attribution weights each draw as the fans do (by the scenario's probability when
+    // reweighting).
+    let weights = (file.reweight && all.log_weights.len() == all.parts.len())
+        .then(|| crate::forecast::normalise(&all.log_weights).0);
+    let split = attribute(&set.thetas, conditions, &all.parts, weights.as_deref()).map_err(text)?;
+    send(Message::Sources(g, Arc::new(Sources::new(setup, split))));
     send(Message::State(
         g,
         EngineState::Done {

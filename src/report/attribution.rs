@@ -43,9 +43,10 @@ pub fn linear_units(setup: &Setup, i: usize) -> (Vec<(usize, f64)>, String) {
     }
 }
 
-/// Series `i` of a stacked model-unit part at horizons 1…h, in its [`linear_units`].
-pub fn series_part(setup: &Setup, terms: &[(usize, f64)], part: &[f64], i: usize) -> Vec<f64> {
-    let (n, h) = (setup.n(), setup.file.horizon);
+/// Series `i` of a stacked model-unit part (`n` series) at horizons 1…h, in its
+/// [`linear_units`] (`terms`).
+pub fn series_part(n: usize, terms: &[(usize, f64)], part: &[f64], i: usize) -> Vec<f64> {
+    let h = part.len() / n.max(1);
     (1..=h)
         .map(|t| {
             terms
@@ -71,23 +72,19 @@ pub fn write_attribution(path: &Path, setup: &Setup, a: &Attribution) -> Result<
         "series", "period", "horizon", "units", "kind", "part", "value",
     ])
     .map_err(err)?;
-    let last = setup.last_period();
-    for i in 0..setup.n() {
+    let (last, n) = (setup.last_period(), setup.n());
+    for i in 0..n {
         let (terms, units) = linear_units(setup, i);
         let mut parts: Vec<(&str, &str, Vec<f64>)> =
-            vec![("total", "", series_part(setup, &terms, &a.total, i))];
+            vec![("total", "", series_part(n, &terms, &a.total, i))];
         for (j, shock) in a.by_shock.iter().enumerate() {
-            parts.push((
-                "shock",
-                &setup.names[j],
-                series_part(setup, &terms, shock, i),
-            ));
+            parts.push(("shock", &setup.names[j], series_part(n, &terms, shock, i)));
         }
         for ((label, _), part) in a.conditions.iter().zip(&a.by_condition) {
-            parts.push(("condition", label, series_part(setup, &terms, part, i)));
+            parts.push(("condition", label, series_part(n, &terms, part, i)));
         }
         if let Some(p) = &a.parameters {
-            parts.push(("parameters", "", series_part(setup, &terms, p, i)));
+            parts.push(("parameters", "", series_part(n, &terms, p, i)));
         }
         for t in 1..=setup.file.horizon {
             for (kind, name, values) in &parts {

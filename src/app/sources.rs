@@ -1,0 +1,313 @@
+//! Where the scenario comes from: for one series, the conditional mean minus the
+//! unconditional mean by period, split by structural shock or by condition (stacked bars, the
+//! total as a line), and the same numbers as a table.
+//!
+//! The split is the engine's ([`crate::attribution`]), averaged over the posterior draws; a
+//! series is shown in its display units where they are linear in the model (else in levels),
+//! so the parts add up to the total in every period.
+
+use egui::{Color32, RichText};
+use egui_plot::{Bar, BarChart, GridMark, Legend, Line, Plot};
+
+use super::TiltyardApp;
+use super::palette::Palette;
+use super::worker::Sources;
+use crate::report::attribution::series_part;
+
+/// Parts drawn one by one; the rest are summed into one bar ("other shocks").
+const SHOWN_PARTS: usize = 8;
+
+/// What the attribution view shows.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct SourcesView {
+    /// In place of the chart grid.
+    pub open: bool,
+    /// The series shown (by name; the first conditioned series when none was chosen).
+    pub series: Option<String>,
+    /// Split by condition rather than by shock.
+    pub by_condition: bool,
+}
+
+/// Colours of the parts, in order: the project's own qualitative set, readable on light and
+/// dark backgrounds.
+const PART_COLOURS: [Color32; 9] = [
+    Color32::from_rgb(46, 134, 171),
+    Color32::from_rgb(222, 143, 5),
+    Color32::from_rgb(2, 158, 115),
+    Color32::from_rgb(213, 94, 0),
+    Color32::from_rgb(204, 120, 188),
+    Color32::from_rgb(118, 104, 188),
+    Color32::from_rgb(160, 160, 60),
+    Color32::from_rgb(86, 180, 233),
+    Color32::from_rgb(140, 86, 75),
+];
+
+/// The colour of the `k`-th condition (pins first, then corridors), also used in the table.
+pub fn condition_colour(k: usize) -> Color32 {
+    PART_COLOURS[k % PART_COLOURS.len()]
+}
+
+/// The colour of a condition in the split by condition, when that split is on show.
+pub fn colour_of(app: &TiltyardApp, cref: super::chart::CondRef) -> Option<Color32> {
+    let (_, sources) = app.sources.as_ref()?;
+    if !(app.sources_view.open && app.sources_view.by_condition) {
+        return None;
+    }
+    let field = cref.field();
+    sources
+        .attribution
+        .conditions
+        .iter()
+        .position(|(_, f)| *f == field)
+        .map(condition_colour)
+}
+
+/// A value for the table: two decimals, and no "-0.00".
+fn cell(v: f64) -> String {
+    if v.abs() < 0.005 {
+        "0.00".into()
+    } else {
+        format!("{v:.2}")
+    }
+}
+
+/// One part of the chosen series, by period.
+struct Part {
+    name: String,
+    values: Vec<f64>,
+    colour: Color32,
+}
+
+/// The parts of series `i`, largest first (by their mean absolute size), the smallest summed
+/// into one part when there are more than [`SHOWN_PARTS`].
+fn parts(
+    sources: &Sources,
+    names: &[String],
+    i: usize,
+    by_condition: bool,
+    pal: &Palette,
+) -> Vec<Part> {
+    let a = &sources.attribution;
+    let terms = &sources.units[i].0;
+    let mut list: Vec<Part> = if by_condition {
+        a.conditions
+            .iter()
+            .zip(&a.by_condition)
+            .enumerate()
+            .map(|(k, ((label, _), part))| Part {
+                name: label.clone(),
+                values: series_part(a.n, terms, part, i),
+                colour: condition_colour(k),
+            })
+            .collect()
+    } else {
+        let mut shocks: Vec<Part> = a
+            .by_shock
+            .iter()
+            .enumerate()
+            .map(|(j, part)| Part {
+                name: format!("{} shock", names[j]),
+                values: series_part(a.n, terms, part, i),
+                colour: Color32::TRANSPARENT,
+            })
+            .collect();
+        let size = |p: &Part| p.values.iter().map(|v| v.abs()).sum::<f64>();
+        shocks.retain(|p| size(p) > 0.0);
+        shocks.sort_by(|x, y| size(y).total_cmp(&size(x)));
+        if shocks.len() > SHOWN_PARTS {
+            let rest = shocks.split_off(SHOWN_PARTS - 1);
+            let mut other = vec![0.0; rest[0].values.len()];
+            for p in &rest {
+                other.iter_mut().zip(&p.values).for_each(|(o, v)| *o += v);
+            }
+            shocks.push(Part {
+                name: format!("{} other shocks", rest.len()),
+                values: other,
+                colour: pal.muted,
+            });
+        }
+        for (k, p) in shocks.iter_mut().enumerate() {
+            if p.colour == Color32::TRANSPARENT {
+                p.colour = PART_COLOURS[k % PART_COLOURS.len()];
+            }
+        }
+        shocks
+    };
+    if let Some(p) = &a.parameters {
+        list.push(Part {
+            name: "reweighting of the parameters".into(),
+            values: series_part(a.n, terms, p, i),
+            colour: pal.muted,
+        });
+    }
+    list
+}
+
+/// The view: choices in one row, the chart, the table.
+pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
+    let names: Vec<String> = app.doc.file.series.iter().map(|s| s.name.clone()).collect();
+    let Some((generation, sources)) = app.sources.clone() else {
+        ui.label(
+            RichText::new(
+                "The split appears here once the engine has all the posterior draws of the scenario.",
+            )
+            .color(pal.muted),
+        );
+        return;
+    };
+    if names.len() != sources.units.len() {
+        ui.label(
+            RichText::new("The series changed: the split is being made again.").color(pal.muted),
+        );
+        return;
+    }
+    let outdated = generation != app.generation() || app.busy();
+    let view = &mut app.sources_view;
+    let first = app.grid.order.first().cloned().unwrap_or_default();
+    let chosen = view
+        .series
+        .clone()
+        .filter(|s| names.contains(s))
+        .unwrap_or(first);
+    let i = names.iter().position(|n| *n == chosen).unwrap_or(0);
+    ui.horizontal_wrapped(|ui| {
+        egui::ComboBox::from_id_salt("sources series")
+            .selected_text(&names[i])
+            .show_ui(ui, |ui| {
+                for name in &names {
+                    if ui.selectable_label(*name == names[i], name).clicked() {
+                        view.series = Some(name.clone());
+                    }
+                }
+            })
+            .response
+            .accessible_name("series to split");
+        ui.selectable_value(&mut view.by_condition, false, "by structural shock");
+        ui.selectable_value(&mut view.by_condition, true, "by condition");
+        ui.label(RichText::new(format!("in {}", sources.units[i].1)).color(pal.muted));
+    });
+    let note = if view.by_condition {
+        "Each pin's and corridor's share of the move away from the unconditional forecast (the shift is linear in the conditions' offsets, so the shares add up)."
+            .to_string()
+    } else {
+        format!(
+            "The split by shock depends on the identification ordering, here {} (first to last). Change it in Model settings.",
+            sources.ordering.join(", ")
+        )
+    };
+    ui.add(egui::Label::new(RichText::new(note).small().color(pal.muted)).wrap());
+    if outdated {
+        ui.label(
+            RichText::new(
+                "From before the last edit; the split is made again once all draws are in.",
+            )
+            .small()
+            .color(pal.strain),
+        );
+    }
+    let by_condition = view.by_condition;
+    let list = parts(&sources, &names, i, by_condition, pal);
+    let a = &sources.attribution;
+    let total = series_part(a.n, &sources.units[i].0, &a.total, i);
+    let labels: Vec<String> = match &app.results {
+        Some(r) => (1..=a.h)
+            .map(|t| r.label(t as f64).unwrap_or("").to_string())
+            .collect(),
+        None => (1..=a.h).map(|t| format!("+{t}")).collect(),
+    };
+    chart(ui, &list, &total, &labels, pal);
+    table(ui, &list, &total, &labels, pal);
+}
+
+fn chart(ui: &mut egui::Ui, list: &[Part], total: &[f64], labels: &[String], pal: &Palette) {
+    let axis_labels = labels.to_vec();
+    let height = (ui.available_height() * 0.55).clamp(220.0, 520.0);
+    Plot::new("sources chart")
+        .height(height)
+        .legend(Legend::default().position(egui_plot::Corner::LeftTop))
+        .allow_drag(false)
+        .allow_zoom(false)
+        .allow_scroll(false)
+        .allow_boxed_zoom(false)
+        .show_grid([false, true])
+        .y_axis_min_width(44.0)
+        .y_grid_spacer(egui_plot::uniform_grid_spacer(super::chart::steps_125))
+        .x_grid_spacer(egui_plot::uniform_grid_spacer(|_| [1.0, 2.0, 4.0]))
+        .x_axis_formatter(move |mark: GridMark, _| {
+            let k = mark.value.round();
+            if (mark.value - k).abs() > 1e-9 || k < 1.0 {
+                return String::new();
+            }
+            axis_labels.get(k as usize - 1).cloned().unwrap_or_default()
+        })
+        .show(ui, |pui| {
+            let mut drawn: Vec<BarChart> = Vec::new();
+            for p in list {
+                let bars = p
+                    .values
+                    .iter()
+                    .enumerate()
+                    .map(|(t, &v)| Bar::new((t + 1) as f64, v).width(0.7).fill(p.colour))
+                    .collect();
+                let chart = BarChart::new(p.name.clone(), bars).color(p.colour);
+                let below: Vec<&BarChart> = drawn.iter().collect();
+                let chart = chart.stack_on(&below);
+                drawn.push(chart);
+            }
+            for c in drawn {
+                pui.bar_chart(c);
+            }
+            pui.line(
+                Line::new(
+                    "total: conditional minus unconditional mean",
+                    total
+                        .iter()
+                        .enumerate()
+                        .map(|(t, &v)| [(t + 1) as f64, v])
+                        .collect::<Vec<_>>(),
+                )
+                .color(pal.history)
+                .width(2.0),
+            );
+        });
+}
+
+fn table(ui: &mut egui::Ui, list: &[Part], total: &[f64], labels: &[String], pal: &Palette) {
+    egui::ScrollArea::both()
+        .id_salt("sources table")
+        .show(ui, |ui| {
+            egui::Grid::new("sources grid")
+                .striped(true)
+                .min_col_width(52.0)
+                .show(ui, |ui| {
+                    ui.label("");
+                    for l in labels {
+                        ui.label(RichText::new(l).small().strong());
+                    }
+                    ui.end_row();
+                    ui.label(RichText::new("total").strong());
+                    for v in total {
+                        ui.label(RichText::new(cell(*v)).strong());
+                    }
+                    ui.end_row();
+                    for p in list {
+                        ui.horizontal(|ui| {
+                            let (rect, _) = ui
+                                .allocate_exact_size(egui::vec2(10.0, 10.0), egui::Sense::hover());
+                            ui.painter().rect_filled(rect, 2.0, p.colour);
+                            ui.label(&p.name);
+                        });
+                        for v in &p.values {
+                            let text = cell(*v);
+                            let colour = if v.abs() < 0.005 {
+                                pal.muted
+                            } else {
+                                ui.visuals().text_color()
+                            };
+                            ui.label(RichText::new(text).color(colour));
+                        }
+                        ui.end_row();
+                    }
+                });
+        });
+}
