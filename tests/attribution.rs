@@ -137,3 +137,50 @@ fn attribution_matches_its_parts_recomputed_from_scratch() {
     let again = attribute(&set.thetas, &cond, &out.paths.parts, None).unwrap();
     assert_eq!(&again, out.attribution.as_ref().unwrap());
 }
+
+fn baseline_one_pin(drivers: Option<Vec<String>>) -> Setup {
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("scenarios-demo/baseline.ron");
+    let mut file = scenario::read(&path).unwrap();
+    file.draws = 80;
+    file.pins.truncate(1);
+    file.drivers = drivers;
+    Setup::new(file, &path).unwrap()
+}
+
+fn largest(v: &[f64]) -> f64 {
+    v.iter().fold(0.0f64, |m, x| m.max(x.abs()))
+}
+
+/// One pin, one driver: that shock carries all of the mean shift, the others none.
+#[test]
+fn one_driver_carries_all_of_a_one_pin_scenario() {
+    let mut setup = baseline_one_pin(Some(vec!["policy_rate".into()]));
+    let out = run(&mut setup, &RunOptions::default()).unwrap();
+    let a = out.attribution.unwrap();
+    let j = setup.names.iter().position(|n| n == "policy_rate").unwrap();
+    let scale = largest(&a.total);
+    assert!(scale > 1e-3, "the pin moves the forecast");
+    for (k, part) in a.by_shock.iter().enumerate() {
+        let gap: Vec<f64> = if k == j {
+            part.iter().zip(&a.total).map(|(p, t)| p - t).collect()
+        } else {
+            part.clone()
+        };
+        assert!(largest(&gap) < ADDS_UP * scale, "shock {k}");
+    }
+}
+
+/// One pin: it carries all of the split by condition.
+#[test]
+fn a_single_pin_carries_all_of_the_split_by_condition() {
+    let mut setup = baseline_one_pin(None);
+    let out = run(&mut setup, &RunOptions::default()).unwrap();
+    let a = out.attribution.unwrap();
+    assert_eq!(a.by_condition.len(), 1);
+    let gap: Vec<f64> = a.by_condition[0]
+        .iter()
+        .zip(&a.total)
+        .map(|(p, t)| p - t)
+        .collect();
+    assert!(largest(&gap) < ADDS_UP * largest(&a.total));
+}
