@@ -8,7 +8,8 @@ use clap::{Parser, Subcommand};
 
 use tiltyard::crosscheck::EngineKind;
 use tiltyard::report::{
-    CAUTION, check_text, write_about, write_attribution, write_checks_json, write_draws, write_fans,
+    CAUTION, check_text, write_about, write_attribution, write_checks_json, write_draws,
+    write_fans, write_summary,
 };
 use tiltyard::run::{RunError, RunOptions, check, run, summary};
 
@@ -229,7 +230,12 @@ fn run_command(
     create(&out)?;
     write_fans(&out.join("fans.csv"), &outcome.fans)?;
     write_checks_json(&out.join("checks.json"), &outcome.checks)?;
-    let mut wrote = vec![out.join("fans.csv"), out.join("checks.json")];
+    write_summary(&out.join("summary.csv"), &outcome.summary)?;
+    let mut wrote = vec![
+        out.join("fans.csv"),
+        out.join("summary.csv"),
+        out.join("checks.json"),
+    ];
     if let Some(a) = &outcome.attribution {
         write_attribution(&out.join("attribution.csv"), &setup, a)?;
         wrote.push(out.join("attribution.csv"));

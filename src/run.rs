@@ -13,7 +13,7 @@ use crate::model::FitSummary;
 use crate::pipeline::{
     DRAWS_RECHECKED, Model, PipelineError, check_central, check_draws, read_conditions,
 };
-use crate::report::{FanRow, Kind, check_text, displayable, fans};
+use crate::report::{FanRow, Kind, Stat, check_text, displayable, fans, statistics};
 use crate::scenario::{ModelSpec, ScenarioError, Setup};
 
 /// Every path must meet every pin to this relative error (ALGORITHMS §11.4).
@@ -70,6 +70,8 @@ pub struct RunOutcome {
     pub engine: EngineKind,
     /// The departure from the unconditional forecast by shock and by condition (main engine).
     pub attribution: Option<Attribution>,
+    /// Peaks, troughs, changes and calendar-year averages with their bands.
+    pub summary: Vec<Stat>,
 }
 
 /// Check a loaded scenario: every invalid condition is a clash naming its field; the rest are
@@ -149,6 +151,12 @@ pub fn run(setup: &mut Setup, options: &RunOptions) -> Result<RunOutcome, RunErr
         Kind::Conditional,
     );
     rows.extend(fans(setup, &paths.unconditional, None, Kind::Unconditional));
+    let stats = statistics(
+        setup,
+        &paths.conditional,
+        &paths.unconditional,
+        weights.as_deref(),
+    );
     Ok(RunOutcome {
         fans: rows,
         posterior_draws: if model.is_fixed() {
@@ -164,6 +172,7 @@ pub fn run(setup: &mut Setup, options: &RunOptions) -> Result<RunOutcome, RunErr
         effective_draws,
         engine: options.engine,
         attribution,
+        summary: stats,
     })
 }
 

@@ -1,16 +1,19 @@
 //! Tables written by the headless commands: `fans.csv`, `draws.csv`, `attribution.csv`,
+//! `summary.csv`,
 //! `about.txt` (what was run, and the caution every forecast export carries) and
 //! `checks.json`.
 
 pub mod attribution;
 pub mod checks;
 pub mod fans;
+pub mod summary;
 
 use std::path::Path;
 
 pub use attribution::write_attribution;
 pub use checks::{check_text, write_checks_json};
 pub use fans::{FanRow, Kind, QUANTILES, displayable, fans, quantiles, weighted};
+pub use summary::{Stat, statistics, write_summary};
 
 use crate::scenario::Setup;
 
