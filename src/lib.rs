@@ -6,6 +6,7 @@
 pub mod app;
 pub mod attribution;
 pub mod checks;
+pub mod compare;
 pub mod crosscheck;
 pub mod dataset;
 pub mod forecast;

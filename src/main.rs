@@ -6,6 +6,7 @@ use std::process::ExitCode;
 use anyhow::Context;
 use clap::{Parser, Subcommand};
 
+use tiltyard::compare::{changes_text, compare, write_compare};
 use tiltyard::crosscheck::EngineKind;
 use tiltyard::report::{
     CAUTION, check_text, write_about, write_attribution, write_checks_json, write_draws,
@@ -61,6 +62,27 @@ enum Command {
         /// With --engine rejection: proposals tried for one path before giving up.
         #[arg(long, default_value_t = 1_000_000)]
         proposal_cap: usize,
+    },
+    /// Compare two scenarios on the same series: their conditions side by side, and by series
+    /// and period the second's fan against the first's and the difference (compare.csv,
+    /// compare-summary.csv, compare.txt).
+    Compare {
+        /// The first scenario (for example the baseline).
+        first: PathBuf,
+        /// The second scenario (for example the adverse one).
+        second: PathBuf,
+        /// Posterior draws (paths, for fixed coefficients) of both; overrides the files.
+        #[arg(long)]
+        draws: Option<usize>,
+        /// Random seed of both; overrides the files.
+        #[arg(long)]
+        seed: Option<u64>,
+        /// Worker threads (default: all cores). Results do not depend on it.
+        #[arg(long)]
+        threads: Option<usize>,
+        /// Output folder.
+        #[arg(long, default_value = "out")]
+        out: PathBuf,
     },
     /// Check a scenario: clashes, strain, the conditions to blame and the plausibility;
     /// prints the report and writes checks.json. Exit status 2 when the conditions clash.
@@ -134,6 +156,23 @@ fn main() -> ExitCode {
             seed,
             out,
         }) => check_command(scenario, seed, out),
+        Some(Command::Compare {
+            first,
+            second,
+            draws,
+            seed,
+            threads,
+            out,
+        }) => compare_command(
+            [first, second],
+            RunOptions {
+                draws,
+                seed,
+                ..RunOptions::default()
+            },
+            threads,
+            out,
+        ),
         None => window(cli.scenario),
     };
     match result {
@@ -249,6 +288,52 @@ fn run_command(
     println!("{text}");
     let wrote: Vec<String> = wrote.iter().map(|p| p.display().to_string()).collect();
     println!("wrote      {}", wrote.join(", "));
+    println!("\n{CAUTION}");
+    Ok(Outcome::Done)
+}
+
+fn compare_command(
+    files: [PathBuf; 2],
+    options: RunOptions,
+    threads: Option<usize>,
+    out: PathBuf,
+) -> anyhow::Result<Outcome> {
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(threads.unwrap_or(0))
+        .build()
+        .context("cannot start worker threads")?;
+    let mut runs = Vec::new();
+    for file in &files {
+        let mut setup = tiltyard::scenario::load(file)?;
+        match pool.install(|| run(&mut setup, &options)) {
+            Ok(outcome) => runs.push((setup, outcome)),
+            Err(RunError::Clash(report)) => {
+                println!("scenario   {} ({})", setup.file.name, file.display());
+                println!("{}", check_text(&report));
+                println!(
+                    "nothing compared: the conditions of {} clash",
+                    file.display()
+                );
+                return Ok(Outcome::Clash);
+            }
+            Err(e) => return Err(anyhow::Error::new(e).context(format!("{}", file.display()))),
+        }
+    }
+    let [(a, run_a), (b, run_b)] =
+        <[_; 2]>::try_from(runs).map_err(|_| anyhow::anyhow!("two scenarios were run"))?;
+    let comparison = compare(&a, &run_a, &b, &run_b)?;
+    create(&out)?;
+    write_compare(&out.join("compare.csv"), &comparison)?;
+    write_summary(&out.join("compare-summary.csv"), &comparison.statistics)?;
+    let text = changes_text(&comparison);
+    write_about(&out.join("compare.txt"), &text)?;
+    println!("{text}");
+    println!(
+        "wrote      {}, {}, {}",
+        out.join("compare.csv").display(),
+        out.join("compare-summary.csv").display(),
+        out.join("compare.txt").display()
+    );
     println!("\n{CAUTION}");
     Ok(Outcome::Done)
 }

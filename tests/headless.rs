@@ -259,3 +259,45 @@ fn the_demo_runs_at_a_horizon_of_400() {
     assert_eq!(numbers.len(), 10 * 400 * 2 * 8);
     assert!(numbers.iter().all(|v| v.is_finite()));
 }
+
+/// `compare` writes its three files (the text with the caution) and exits 2 when either
+/// scenario clashes.
+#[test]
+fn compare_writes_its_tables_and_refuses_a_clash() {
+    let out = tempfile::tempdir().unwrap();
+    let done = tiltyard()
+        .args([
+            "compare",
+            &demo("baseline.ron"),
+            &demo("adverse.ron"),
+            "--draws",
+            "40",
+            "--seed",
+            "3",
+            "--out",
+        ])
+        .arg(out.path())
+        .output()
+        .unwrap();
+    let stdout = String::from_utf8_lossy(&done.stdout);
+    assert!(done.status.success(), "{stdout}");
+    assert!(stdout.contains("paired"), "{stdout}");
+    let table = std::fs::read_to_string(out.path().join("compare.csv")).unwrap();
+    assert_eq!(table.lines().count(), 1 + 10 * 12);
+    assert!(out.path().join("compare-summary.csv").exists());
+    let text = std::fs::read_to_string(out.path().join("compare.txt")).unwrap();
+    assert!(text.contains("added") && text.contains("not predictions or advice"));
+    let clash = tiltyard()
+        .args([
+            "compare",
+            &demo("baseline.ron"),
+            &demo("clash.ron"),
+            "--draws",
+            "40",
+            "--out",
+        ])
+        .arg(out.path())
+        .output()
+        .unwrap();
+    assert_eq!(clash.status.code(), Some(2));
+}
