@@ -28,6 +28,9 @@ struct Cli {
     command: Option<Command>,
     /// A scenario file to open in the window.
     scenario: Option<PathBuf>,
+    /// A second scenario on the same series to compare it with, in the window.
+    #[arg(long)]
+    compare: Option<PathBuf>,
 }
 
 #[derive(Subcommand)]
@@ -173,7 +176,7 @@ fn main() -> ExitCode {
             threads,
             out,
         ),
-        None => window(cli.scenario),
+        None => window(cli.scenario, cli.compare),
     };
     match result {
         Ok(Outcome::Done) => ExitCode::SUCCESS,
@@ -196,9 +199,9 @@ fn demo_scenario() -> PathBuf {
 }
 
 #[cfg(feature = "gui")]
-fn window(scenario: Option<PathBuf>) -> anyhow::Result<Outcome> {
+fn window(scenario: Option<PathBuf>, compare: Option<PathBuf>) -> anyhow::Result<Outcome> {
     let path = scenario.unwrap_or_else(demo_scenario);
-    tiltyard::app::run_window(path).map_err(|e| {
+    tiltyard::app::run_window(path, compare).map_err(|e| {
         anyhow::anyhow!(
             "cannot open the window ({e}). Without a display, use the headless commands: tiltyard run SCENARIO, tiltyard check SCENARIO (see tiltyard --help)"
         )
@@ -207,7 +210,7 @@ fn window(scenario: Option<PathBuf>) -> anyhow::Result<Outcome> {
 }
 
 #[cfg(not(feature = "gui"))]
-fn window(scenario: Option<PathBuf>) -> anyhow::Result<Outcome> {
+fn window(scenario: Option<PathBuf>, _compare: Option<PathBuf>) -> anyhow::Result<Outcome> {
     let path = scenario.unwrap_or_else(demo_scenario);
     anyhow::bail!(
         "this build has no window (built without the gui feature); run {} headless with: tiltyard run {}",

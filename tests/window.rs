@@ -839,7 +839,7 @@ fn the_window_splits_the_scenario_as_the_headless_run_does() {
     assert_eq!(Some(&sources.attribution), out.attribution.as_ref());
     h.get_by_label("Where it comes from").click();
     h.run_steps(2);
-    assert!(h.state().sources_view.open);
+    assert_eq!(h.state().pane, tiltyard::app::grid::Pane::Sources);
     h.get_by_label("total").hover();
     // The shock list on the left, and the table's row.
     assert!(h.query_all_by_label("unemployment shock").count() >= 2);
@@ -862,5 +862,67 @@ fn the_window_splits_the_scenario_as_the_headless_run_does() {
     // Back to the charts.
     h.get_by_label("Series paths").click();
     h.run_steps(2);
-    assert!(!h.state().sources_view.open);
+    assert_eq!(h.state().pane, tiltyard::app::grid::Pane::Charts);
+}
+
+/// A second scenario on the same series is drawn beside the document, its conditions are set
+/// beside the document's, and the differences are tabled; one on other series is refused
+/// with a notice.
+#[test]
+fn a_second_scenario_is_compared_in_the_window() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = demo_copy(&dir);
+    let mut h = harness(&path);
+    settle(&mut h);
+    let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("scenarios-demo");
+    let mut other = scenario::read(&root.join("baseline.ron")).unwrap();
+    other.dataset = root.join("economy.csv").display().to_string();
+    other.draws = 60;
+    let mut fewer = other.clone();
+    fewer.series.pop();
+    h.state_mut().compare_with(root.join("fewer.ron"), fewer);
+    assert!(h.state().second.is_none());
+    assert!(
+        h.state()
+            .notice
+            .as_deref()
+            .unwrap_or("")
+            .contains("cannot compare")
+    );
+    h.state_mut().compare_with(root.join("baseline.ron"), other);
+    let start = Instant::now();
+    while !matches!(
+        h.state().second.as_ref().map(|s| &s.state),
+        Some(EngineState::Done { .. })
+    ) {
+        assert!(
+            start.elapsed() < Duration::from_secs(120),
+            "the second scenario did not finish"
+        );
+        h.step();
+        std::thread::sleep(Duration::from_millis(20));
+    }
+    h.run_steps(2);
+    assert!(h.get_by_label("Compared with").rect().width() > 0.0);
+    // The document's pins are only here; the baseline's are only there.
+    assert!(
+        h.query_all_by_label_contains("only here: pin on credit_spread")
+            .count()
+            == 1
+    );
+    assert!(
+        h.query_all_by_label_contains("only there: pin on policy_rate at 2026Q4")
+            .count()
+            == 1
+    );
+    h.get_by_label("Difference").click();
+    h.run_steps(2);
+    assert_eq!(h.state().pane, tiltyard::app::grid::Pane::Difference);
+    h.get_by_label("second: median").hover();
+    // The credit spread is pinned at 3.5 in 2026Q3 here: its median there is 3.50.
+    assert!(h.query_all_by_label("3.50").count() >= 1);
+    h.get_by_label("stop comparing").click();
+    h.run_steps(2);
+    assert!(h.state().second.is_none());
+    assert_eq!(h.state().pane, tiltyard::app::grid::Pane::Charts);
 }

@@ -138,6 +138,8 @@ pub struct ChartInput<'a> {
     pub palette: &'a Palette,
     /// Values snap to readable steps (Shift inverts this while held).
     pub snapping: bool,
+    /// The same series in a second scenario, drawn beside this one's fans.
+    pub second: Option<&'a SeriesView>,
 }
 
 /// Pixels within which a pointer picks a handle.
@@ -452,6 +454,25 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
             .color(fan_colour)
             .width(2.0),
         );
+        if let Some(other) = input.second {
+            // The second scenario: its median, and its 90% band as two thin lines.
+            let line = |name: &str, k: usize, width: f32| {
+                Line::new(
+                    name.to_string(),
+                    other
+                        .conditional
+                        .iter()
+                        .map(|f| [f.x, f.q[k]])
+                        .collect::<Vec<_>>(),
+                )
+                .color(pal.second)
+                .width(width)
+                .allow_hover(false)
+            };
+            pui.line(line("second scenario 5%", 0, 1.0));
+            pui.line(line("second scenario 95%", 6, 1.0));
+            pui.line(line("second scenario median", 3, 2.0));
+        }
         pui.line(
             Line::new(
                 "history",

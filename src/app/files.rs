@@ -53,6 +53,8 @@ pub enum Purpose {
     Open,
     SaveAs,
     NewFromData,
+    /// A second scenario to compare the document with.
+    Compare,
 }
 
 /// A dialog's answer, with what was read from the picked file.
@@ -65,6 +67,8 @@ pub enum Answer {
     SaveAs(PathBuf),
     /// A new scenario on a dataset (or why the dataset cannot be used).
     NewFromData(PathBuf, Box<Result<ScenarioFile, String>>),
+    /// A scenario to compare with, read (or why not).
+    Compare(PathBuf, Box<Result<ScenarioFile, String>>),
 }
 
 /// Unsaved edits found in a recovery file: the scenario they make (or why it cannot be read).
@@ -178,6 +182,10 @@ impl Dialogs {
                 Purpose::NewFromData => picker.dataset(&start).map(|p| {
                     let file = scenario_for(&p);
                     Answer::NewFromData(p, Box::new(file))
+                }),
+                Purpose::Compare => picker.open(&start).map(|p| {
+                    let file = scenario::read(&p).map_err(|e| e.to_string());
+                    Answer::Compare(p, Box::new(file))
                 }),
             };
             let _ = tx.send(answer);

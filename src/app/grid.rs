@@ -15,6 +15,18 @@ use super::panels::{severity_colour, shock_order, units_box};
 use super::worker::{EngineState, Subject};
 use crate::scenario::ScenarioFile;
 
+/// What the centre of the window shows.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum Pane {
+    /// The chart grid (series or shocks, by `TiltyardApp::view`).
+    #[default]
+    Charts,
+    /// Where the scenario comes from.
+    Sources,
+    /// The differences from a second scenario.
+    Difference,
+}
+
 /// Charts per page offered.
 pub const PAGE_SIZES: [usize; 4] = [4, 8, 12, 24];
 
@@ -105,9 +117,13 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     };
     let (page_names, pages) = app.grid.page_of(&names);
     controls(ui, app, pal, pages);
-    if app.sources_view.open {
-        super::sources::show(ui, app, pal);
-        return;
+    if app.pane == Pane::Difference && app.second.is_none() {
+        app.pane = Pane::Charts;
+    }
+    match app.pane {
+        Pane::Sources => return super::sources::show(ui, app, pal),
+        Pane::Difference => return super::second::table(ui, app, pal),
+        Pane::Charts => {}
     }
     let Some(results) = app.results.clone() else {
         ui.centered_and_justified(|ui| {
@@ -186,6 +202,14 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
                         height,
                         palette: pal,
                         snapping: app.snapping,
+                        second: (subject == Subject::Series)
+                            .then(|| {
+                                app.second
+                                    .as_ref()
+                                    .and_then(|s| s.results.as_ref())
+                                    .and_then(|r| r.series.iter().find(|v| v.name == view.name))
+                            })
+                            .flatten(),
                     };
                     for a in chart::show(col, &input, &mut memory) {
                         actions.push((view.name.clone(), a));
@@ -207,24 +231,32 @@ fn controls(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette, pages: usiz
     // Wrapped when the panel is narrow; the page label has a fixed width, so the row keeps
     // its height as pages turn.
     ui.horizontal_wrapped(|ui| {
-        let open = app.sources_view.open;
+        let charts = app.pane == Pane::Charts;
         for (subject, label) in [
             (Subject::Series, "Series paths"),
             (Subject::Shock, "Structural shocks"),
         ] {
-            if ui.selectable_label(!open && app.view == subject, label).clicked() {
+            if ui.selectable_label(charts && app.view == subject, label).clicked() {
                 app.view = subject;
-                app.sources_view.open = false;
+                app.pane = Pane::Charts;
             }
         }
         if ui
-            .selectable_label(open, "Where it comes from")
+            .selectable_label(app.pane == Pane::Sources, "Where it comes from")
             .on_hover_text("The scenario's move away from the unconditional forecast, split by structural shock or by condition")
             .clicked()
         {
-            app.sources_view.open = true;
+            app.pane = Pane::Sources;
         }
-        if open {
+        if app.second.is_some()
+            && ui
+                .selectable_label(app.pane == Pane::Difference, "Difference")
+                .on_hover_text("This scenario against the second one, by series and period")
+                .clicked()
+        {
+            app.pane = Pane::Difference;
+        }
+        if app.pane != Pane::Charts {
             return;
         }
         ui.separator();
@@ -276,7 +308,7 @@ fn controls(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette, pages: usiz
             app.grid.conditioned_first(&app.doc.file);
         }
     });
-    if app.sources_view.open {
+    if app.pane != Pane::Charts {
         return;
     }
     let (up, down) = ui.input(|i| {
@@ -320,6 +352,15 @@ fn controls(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette, pages: usiz
                 "standardised shocks; grey: their usual N(0, 1) · drag: corridor · Ctrl+click: pin"
             }
         };
+        if let Some(second) = &app.second
+            && app.view == Subject::Series
+        {
+            ui.label(
+                RichText::new(format!("blue: {} (median, 5% and 95%) ·", second.name()))
+                    .small()
+                    .color(pal.second),
+            );
+        }
         ui.add(egui::Label::new(RichText::new(hint).small().color(pal.muted)).truncate());
     });
 }

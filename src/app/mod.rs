@@ -19,6 +19,7 @@ pub mod files;
 pub mod grid;
 pub mod palette;
 pub mod panels;
+pub mod second;
 pub mod settings;
 pub mod sources;
 pub mod table;
@@ -82,6 +83,10 @@ pub struct TiltyardApp {
     pub sources: Option<(u64, Arc<Sources>)>,
     /// The attribution view in place of the chart grid, and what it shows.
     pub sources_view: sources::SourcesView,
+    /// What the centre shows: charts, where the scenario comes from, or the differences.
+    pub pane: grid::Pane,
+    /// A second scenario shown beside the document (read-only), and its fans.
+    pub second: Option<second::Second>,
     pub checks: Option<Box<CheckReport>>,
     /// How many pins and corridors the scenario had when it was checked (the findings name
     /// conditions by position, so they colour nothing once the lists change).
@@ -171,6 +176,8 @@ impl TiltyardApp {
             results: None,
             sources: None,
             sources_view: sources::SourcesView::default(),
+            second: None,
+            pane: grid::Pane::Charts,
             checks: None,
             checked: (0, 0),
             state: EngineState::Idle,
@@ -243,8 +250,27 @@ impl TiltyardApp {
         }
     }
 
+    /// Compare the document with the scenario in `file` (at `path`): it must have the same
+    /// series; its fans are drawn on a worker of its own.
+    pub fn compare_with(&mut self, path: PathBuf, file: ScenarioFile) {
+        let names = |f: &ScenarioFile| f.series.iter().map(|s| s.name.clone()).collect::<Vec<_>>();
+        if names(&file) != names(&self.doc.file) {
+            self.notice = Some(format!(
+                "cannot compare with {}: it has the series {}, this scenario {}",
+                path.display(),
+                names(&file).join(", "),
+                names(&self.doc.file).join(", ")
+            ));
+            return;
+        }
+        self.second = Some(second::Second::start(path, file, self.wake.clone()));
+    }
+
     /// Take the worker's messages for the newest job, within a time budget.
     fn drain(&mut self) {
+        if let Some(s) = &mut self.second {
+            s.drain();
+        }
         let start = Instant::now();
         while start.elapsed() < DRAIN_BUDGET {
             let Ok(message) = self.messages.try_recv() else {
@@ -760,6 +786,10 @@ impl TiltyardApp {
                     self.take_opened(&p, file, recovery)
                 }
                 Some(Answer::NewFromData(p, file)) => self.take_new(&p, *file),
+                Some(Answer::Compare(p, file)) => match *file {
+                    Ok(file) => self.compare_with(p, file),
+                    Err(e) => self.notice = Some(format!("cannot compare: {e}")),
+                },
                 None => self.after_save_as = None,
                 Some(Answer::SaveAs(p)) => {
                     let then = self.after_save_as.take();
@@ -948,7 +978,7 @@ fn blank(path: &Path) -> ScenarioFile {
 }
 
 /// Run the window on `path` until it is closed.
-pub fn run_window(path: PathBuf) -> Result<(), String> {
+pub fn run_window(path: PathBuf, compare: Option<PathBuf>) -> Result<(), String> {
     let options = eframe::NativeOptions {
         viewport: egui::ViewportBuilder::default()
             .with_title("Tiltyard")
@@ -961,11 +991,14 @@ pub fn run_window(path: PathBuf) -> Result<(), String> {
         Box::new(move |cc| {
             let ctx = cc.egui_ctx.clone();
             let wake: Arc<dyn Fn() + Send + Sync> = Arc::new(move || ctx.request_repaint());
-            Ok(Box::new(TiltyardApp::new(
-                &path,
-                Arc::new(files::DesktopPicker),
-                wake,
-            )))
+            let mut app = TiltyardApp::new(&path, Arc::new(files::DesktopPicker), wake);
+            if let Some(other) = compare {
+                match crate::scenario::read(&other) {
+                    Ok(file) => app.compare_with(other, file),
+                    Err(e) => app.notice = Some(format!("cannot compare: {e}")),
+                }
+            }
+            Ok(Box::new(app))
         }),
     )
     .map_err(|e| e.to_string())

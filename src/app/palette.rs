@@ -1,6 +1,7 @@
 //! The window's colours, for light and dark themes. The project's own choice: a deep teal
 //! for the conditional fan, warm grey for the unconditional one and for history, burnt orange
-//! for pins, violet for corridors; red and amber only for clashes and strain.
+//! for pins, violet for corridors; red and amber only for clashes and strain; blue for the
+//! second scenario of a comparison.
 
 use egui::Color32;
 
@@ -15,6 +16,8 @@ pub struct Palette {
     pub clash: Color32,
     pub strain: Color32,
     pub ok: Color32,
+    /// The second scenario of a comparison.
+    pub second: Color32,
 }
 
 impl Palette {
@@ -30,6 +33,7 @@ impl Palette {
                 clash: Color32::from_rgb(235, 85, 70),
                 strain: Color32::from_rgb(235, 185, 60),
                 ok: Color32::from_rgb(110, 190, 120),
+                second: Color32::from_rgb(120, 155, 240),
             }
         } else {
             Palette {
@@ -42,6 +46,7 @@ impl Palette {
                 clash: Color32::from_rgb(192, 48, 36),
                 strain: Color32::from_rgb(204, 146, 20),
                 ok: Color32::from_rgb(50, 140, 70),
+                second: Color32::from_rgb(40, 80, 190),
             }
         }
     }

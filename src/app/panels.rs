@@ -53,6 +53,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp) {
         .show(ui, |ui| {
             egui::ScrollArea::vertical().show(ui, |ui| {
                 table::conditions(ui, app, &pal);
+                super::second::panel(ui, app, &pal);
                 ui.separator();
                 checks(ui, app, &pal);
             });
@@ -95,6 +96,13 @@ fn top_bar(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
         }
         if ui.button("Save as…").clicked() {
             app.pick(Purpose::SaveAs);
+        }
+        if ui
+            .button("Compare with…")
+            .on_hover_text("Draw a second scenario on the same series beside this one")
+            .clicked()
+        {
+            app.pick(Purpose::Compare);
         }
         ui.separator();
         if ui

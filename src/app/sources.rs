@@ -20,8 +20,6 @@ const SHOWN_PARTS: usize = 8;
 /// What the attribution view shows.
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct SourcesView {
-    /// In place of the chart grid.
-    pub open: bool,
     /// The series shown (by name; the first conditioned series when none was chosen).
     pub series: Option<String>,
     /// Split by condition rather than by shock.
@@ -50,7 +48,7 @@ pub fn condition_colour(k: usize) -> Color32 {
 /// The colour of a condition in the split by condition, when that split is on show.
 pub fn colour_of(app: &TiltyardApp, cref: super::chart::CondRef) -> Option<Color32> {
     let (_, sources) = app.sources.as_ref()?;
-    if !(app.sources_view.open && app.sources_view.by_condition) {
+    if !(app.pane == super::grid::Pane::Sources && app.sources_view.by_condition) {
         return None;
     }
     let field = cref.field();

@@ -1,0 +1,174 @@
+//! A second scenario beside the document, for comparison: read-only, sampled once on a worker
+//! of its own (the same engine and pipeline as the document's), its fans drawn on the same
+//! charts, its conditions set beside the document's, and a table of the differences.
+
+use std::path::PathBuf;
+use std::sync::Arc;
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::mpsc::{Receiver, Sender, channel};
+
+use egui::RichText;
+
+use super::TiltyardApp;
+use super::palette::Palette;
+use super::worker::{self, EngineState, Job, Message, Results};
+use crate::compare::{Change, condition_changes};
+use crate::scenario::ScenarioFile;
+
+/// The second scenario and what its worker has said.
+pub struct Second {
+    pub path: PathBuf,
+    pub file: ScenarioFile,
+    pub results: Option<Arc<Results>>,
+    pub state: EngineState,
+    pub error: Option<String>,
+    messages: Receiver<Message>,
+    /// Dropped with the comparison: the worker's loop ends.
+    _jobs: Sender<Job>,
+    cancel: Arc<AtomicBool>,
+}
+
+impl Second {
+    /// Start sampling the scenario in `file` on a worker of its own.
+    pub fn start(path: PathBuf, file: ScenarioFile, wake: Arc<dyn Fn() + Send + Sync>) -> Second {
+        let (jobs, job_rx) = channel();
+        let (tx, messages) = channel();
+        let wake_worker = wake.clone();
+        std::thread::spawn(move || worker::run(job_rx, tx, move || wake_worker()));
+        let cancel = Arc::new(AtomicBool::new(false));
+        let _ = jobs.send(Job {
+            generation: 1,
+            file: file.clone(),
+            path: path.clone(),
+            cancel: cancel.clone(),
+        });
+        Second {
+            path,
+            file,
+            results: None,
+            state: EngineState::Idle,
+            error: None,
+            messages,
+            _jobs: jobs,
+            cancel,
+        }
+    }
+
+    /// Take what the worker said.
+    pub fn drain(&mut self) {
+        while let Ok(m) = self.messages.try_recv() {
+            match m {
+                Message::Results(_, r) => self.results = Some(r),
+                Message::State(_, s) => self.state = s,
+                Message::Failed(_, e) => self.error = Some(e),
+                _ => {}
+            }
+        }
+    }
+
+    pub fn name(&self) -> &str {
+        &self.file.name
+    }
+}
+
+impl Drop for Second {
+    fn drop(&mut self) {
+        self.cancel.store(true, Ordering::Relaxed);
+    }
+}
+
+/// The comparison under the conditions table: the other scenario, its state, what differs
+/// in the conditions, and a way to stop comparing.
+pub fn panel(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
+    let Some(second) = &app.second else {
+        return;
+    };
+    ui.separator();
+    let mut stop = false;
+    ui.horizontal_wrapped(|ui| {
+        ui.strong("Compared with");
+        ui.label(RichText::new(second.name()).color(pal.second));
+        if ui.small_button("stop comparing").clicked() {
+            stop = true;
+        }
+    });
+    let state = match (&second.error, &second.state) {
+        (Some(e), _) => format!("cannot sample it: {e}"),
+        (None, EngineState::Clashing) => "its conditions clash: nothing to compare".into(),
+        (None, EngineState::Done { draws, .. }) => format!("{draws} posterior draws"),
+        (None, _) => "sampling…".into(),
+    };
+    ui.label(RichText::new(state).small().color(pal.muted));
+    let changes = condition_changes(&app.doc.file, &second.file);
+    if changes.is_empty() {
+        ui.label(RichText::new("The same conditions as this scenario.").small());
+    }
+    for c in changes {
+        let (word, text) = match c {
+            Change::Added(t) => ("only there", t),
+            Change::Removed(t) => ("only here", t),
+            Change::Changed { first, second } => ("here", format!("{first}\nthere: {second}")),
+        };
+        ui.label(RichText::new(format!("{word}: {text}")).small());
+    }
+    if stop {
+        app.second = None;
+    }
+}
+
+/// The differences by series and period: each scenario's median and 90% band, and the median
+/// of the second minus that of the document.
+pub fn table(ui: &mut egui::Ui, app: &TiltyardApp, pal: &Palette) {
+    let (Some(second), Some(first)) = (&app.second, &app.results) else {
+        return;
+    };
+    let Some(other) = &second.results else {
+        ui.label(RichText::new("The second scenario's fans are on their way.").color(pal.muted));
+        return;
+    };
+    ui.label(
+        RichText::new(format!(
+            "{} against {}: medians and 90% bands; the difference is of the medians (second minus this one).",
+            second.name(),
+            app.doc.file.name
+        ))
+        .small()
+        .color(pal.muted),
+    );
+    egui::ScrollArea::both()
+        .id_salt("difference table")
+        .show(ui, |ui| {
+            egui::Grid::new("difference grid")
+                .striped(true)
+                .min_col_width(60.0)
+                .show(ui, |ui| {
+                    ui.strong("series");
+                    ui.strong("units");
+                    ui.strong("period");
+                    ui.strong("this: median");
+                    ui.strong("5% … 95%");
+                    ui.strong("second: median");
+                    ui.strong("5% … 95%");
+                    ui.strong("difference");
+                    ui.end_row();
+                    for view in &first.series {
+                        let Some(o) = other.series.iter().find(|s| s.name == view.name) else {
+                            continue;
+                        };
+                        for (a, b) in view.conditional.iter().zip(&o.conditional) {
+                            ui.label(&view.name);
+                            ui.label(RichText::new(view.units.label()).small().color(pal.muted));
+                            ui.label(first.label(a.x).unwrap_or(""));
+                            ui.label(format!("{:.2}", a.q[3]));
+                            ui.label(format!("{:.2} … {:.2}", a.q[0], a.q[6]));
+                            ui.label(RichText::new(format!("{:.2}", b.q[3])).color(pal.second));
+                            ui.label(format!("{:.2} … {:.2}", b.q[0], b.q[6]));
+                            let d = b.q[3] - a.q[3];
+                            let d = if d.abs() < 0.005 { 0.0 } else { d };
+                            ui.label(RichText::new(format!("{d:+.2}")).strong());
+                            ui.end_row();
+                        }
+                    }
+                });
+        });
+}
