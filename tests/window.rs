@@ -926,3 +926,54 @@ fn a_second_scenario_is_compared_in_the_window() {
     assert!(h.state().second.is_none());
     assert_eq!(h.state().pane, tiltyard::app::grid::Pane::Charts);
 }
+
+/// The table of paths: every series and period with its median and bands, copied to the
+/// clipboard and saved (atomically, by the chores) as CSV with the caution.
+#[test]
+fn the_table_of_paths_is_copied_and_saved() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = demo_copy(&dir);
+    let target = dir.path().join("table.csv");
+    let asked = Arc::new(AtomicBool::new(false));
+    let mut h = harness_with(&path, Arc::new(SaveTo(target.clone(), asked.clone())));
+    settle(&mut h);
+    h.get_by_label("Table").click();
+    h.run_steps(2);
+    assert_eq!(h.state().pane, tiltyard::app::grid::Pane::Table);
+    h.get_by_label("unconditional median").hover();
+    let r = h.state().results.clone().unwrap();
+    let text = tiltyard::app::paths_table::csv_text(&r);
+    assert_eq!(text.lines().count(), 1 + 10 * 12 + 1);
+    assert!(text.ends_with(&format!("# {}\n", tiltyard::report::CAUTION)));
+    // The unemployment corridor's first period: its row carries the fans' median.
+    let row = text
+        .lines()
+        .find(|l| l.starts_with("unemployment,level,2027Q1,"))
+        .unwrap();
+    let view = r.series.iter().find(|s| s.name == "unemployment").unwrap();
+    let median: f64 = row.split(',').nth(3).unwrap().parse().unwrap();
+    assert_eq!(median, view.conditional[4].q[3]);
+    h.get_by_label("Copy as CSV").click();
+    h.step();
+    let copied = h
+        .output()
+        .platform_output
+        .commands
+        .iter()
+        .any(|c| matches!(c, egui::OutputCommand::CopyText(t) if *t == text));
+    assert!(copied, "the table went to the clipboard");
+    h.get_by_label("Save as CSV…").click();
+    let start = Instant::now();
+    while !target.exists() {
+        assert!(
+            start.elapsed() < Duration::from_secs(10),
+            "the table was not saved (asked: {}, notice: {:?})",
+            asked.load(std::sync::atomic::Ordering::SeqCst),
+            h.state().notice
+        );
+        h.step();
+        std::thread::sleep(Duration::from_millis(20));
+    }
+    assert!(asked.load(std::sync::atomic::Ordering::SeqCst));
+    assert_eq!(std::fs::read_to_string(&target).unwrap(), text);
+}

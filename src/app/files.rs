@@ -55,6 +55,8 @@ pub enum Purpose {
     NewFromData,
     /// A second scenario to compare the document with.
     Compare,
+    /// Where to save the table of paths.
+    ExportTable,
 }
 
 /// A dialog's answer, with what was read from the picked file.
@@ -69,6 +71,8 @@ pub enum Answer {
     NewFromData(PathBuf, Box<Result<ScenarioFile, String>>),
     /// A scenario to compare with, read (or why not).
     Compare(PathBuf, Box<Result<ScenarioFile, String>>),
+    /// Where to save the table of paths.
+    ExportTable(PathBuf),
 }
 
 /// Unsaved edits found in a recovery file: the scenario they make (or why it cannot be read).
@@ -183,6 +187,9 @@ impl Dialogs {
                     let file = scenario_for(&p);
                     Answer::NewFromData(p, Box::new(file))
                 }),
+                Purpose::ExportTable => picker
+                    .save(&start, "paths-table.csv")
+                    .map(Answer::ExportTable),
                 Purpose::Compare => picker.open(&start).map(|p| {
                     let file = scenario::read(&p).map_err(|e| e.to_string());
                     Answer::Compare(p, Box::new(file))

@@ -25,6 +25,8 @@ pub enum Pane {
     Sources,
     /// The differences from a second scenario.
     Difference,
+    /// The fans as a table.
+    Table,
 }
 
 /// Charts per page offered.
@@ -123,6 +125,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     match app.pane {
         Pane::Sources => return super::sources::show(ui, app, pal),
         Pane::Difference => return super::second::table(ui, app, pal),
+        Pane::Table => return super::paths_table::show(ui, app, pal),
         Pane::Charts => {}
     }
     let Some(results) = app.results.clone() else {
@@ -247,6 +250,13 @@ fn controls(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette, pages: usiz
             .clicked()
         {
             app.pane = Pane::Sources;
+        }
+        if ui
+            .selectable_label(app.pane == Pane::Table, "Table")
+            .on_hover_text("The fans as numbers: medians and bands by series and period")
+            .clicked()
+        {
+            app.pane = Pane::Table;
         }
         if app.second.is_some()
             && ui

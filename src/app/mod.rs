@@ -19,6 +19,7 @@ pub mod files;
 pub mod grid;
 pub mod palette;
 pub mod panels;
+pub mod paths_table;
 pub mod second;
 pub mod settings;
 pub mod sources;
@@ -786,6 +787,11 @@ impl TiltyardApp {
                     self.take_opened(&p, file, recovery)
                 }
                 Some(Answer::NewFromData(p, file)) => self.take_new(&p, *file),
+                Some(Answer::ExportTable(p)) => {
+                    if let Some(r) = &self.results {
+                        self.chores.write(p, paths_table::csv_text(r));
+                    }
+                }
                 Some(Answer::Compare(p, file)) => match *file {
                     Ok(file) => self.compare_with(p, file),
                     Err(e) => self.notice = Some(format!("cannot compare: {e}")),

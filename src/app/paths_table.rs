@@ -1,0 +1,96 @@
+//! The fans as numbers: series × period, the conditional median with its 50% and 90% bands
+//! and the unconditional median, in each series' display units; copied or saved as CSV.
+
+use egui::RichText;
+
+use super::TiltyardApp;
+use super::palette::Palette;
+use super::worker::Results;
+
+/// The table as CSV text (what is copied and saved), ending with the caution as a `#`
+/// comment line.
+pub fn csv_text(results: &Results) -> String {
+    let mut out = String::from(
+        "series,units,period,conditional_median,conditional_q25,conditional_q75,conditional_q05,conditional_q95,unconditional_median\n",
+    );
+    for view in &results.series {
+        for (c, u) in view.conditional.iter().zip(&view.unconditional) {
+            out.push_str(&format!(
+                "{},{},{},{},{},{},{},{},{}\n",
+                view.name,
+                view.units.label(),
+                results.label(c.x).unwrap_or(""),
+                c.q[3],
+                c.q[2],
+                c.q[4],
+                c.q[0],
+                c.q[6],
+                u.q[3]
+            ));
+        }
+    }
+    out.push_str(&format!("# {}\n", crate::report::CAUTION));
+    out
+}
+
+/// The table, with Copy and Save buttons.
+pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
+    let Some(results) = app.results.clone() else {
+        ui.label(
+            RichText::new("The table fills in as soon as the engine has the first draws.")
+                .color(pal.muted),
+        );
+        return;
+    };
+    ui.horizontal_wrapped(|ui| {
+        if ui
+            .button("Copy as CSV")
+            .on_hover_text("The whole table, to paste into a spreadsheet")
+            .clicked()
+        {
+            ui.ctx().copy_text(csv_text(&results));
+        }
+        if ui.button("Save as CSV…").clicked() {
+            app.pick(super::files::Purpose::ExportTable);
+        }
+        let what = if results.preview {
+            "from the posterior mean only, until the draws are in"
+        } else {
+            "medians and bands over the posterior draws"
+        };
+        ui.label(RichText::new(what).small().color(pal.muted));
+    });
+    egui::ScrollArea::both()
+        .id_salt("paths table")
+        .show(ui, |ui| {
+            egui::Grid::new("paths grid")
+                .striped(true)
+                .min_col_width(56.0)
+                .show(ui, |ui| {
+                    for head in [
+                        "series",
+                        "units",
+                        "period",
+                        "median",
+                        "50% band",
+                        "90% band",
+                        "unconditional median",
+                    ] {
+                        ui.strong(head);
+                    }
+                    ui.end_row();
+                    for view in &results.series {
+                        for (c, u) in view.conditional.iter().zip(&view.unconditional) {
+                            ui.label(&view.name);
+                            ui.label(RichText::new(view.units.label()).small().color(pal.muted));
+                            ui.label(results.label(c.x).unwrap_or(""));
+                            ui.label(RichText::new(format!("{:.2}", c.q[3])).strong());
+                            ui.label(format!("{:.2} … {:.2}", c.q[2], c.q[4]));
+                            ui.label(format!("{:.2} … {:.2}", c.q[0], c.q[6]));
+                            ui.label(RichText::new(format!("{:.2}", u.q[3])).color(pal.muted));
+                            ui.end_row();
+                        }
+                    }
+                });
+        });
+}
