@@ -184,3 +184,45 @@ fn a_single_pin_carries_all_of_the_split_by_condition() {
         .collect();
     assert!(largest(&gap) < ADDS_UP * largest(&a.total));
 }
+
+/// Leave one out with one pin: switching it off leaves the unconditional forecast, so its
+/// effect is the median of the unconditional paths drawn beside the conditional ones (the
+/// same draws and shocks) minus the conditional median.
+#[test]
+fn leaving_out_the_only_pin_gives_the_unconditional_median() {
+    use std::sync::atomic::AtomicBool;
+    use tiltyard::attribution::leave_one_out::leave_one_out;
+    use tiltyard::forecast::{Sampling, sample_paths};
+    use tiltyard::report::{Kind, fans};
+    let setup = baseline_one_pin(None);
+    let model = tiltyard::pipeline::Model::new(&setup).unwrap();
+    let cancel = AtomicBool::new(false);
+    let set = model.draw(&setup, 80, &cancel).unwrap();
+    let cond = setup.conditions().unwrap();
+    let how = Sampling {
+        paths_per_theta: 1,
+        seed: setup.file.seed,
+        reweight: false,
+        min_acceptance: setup.file.checks.min_acceptance,
+        engine: tiltyard::crosscheck::EngineKind::Main,
+    };
+    let effects = leave_one_out(&setup, &set, &cond, how, &cancel).unwrap();
+    assert_eq!(effects.len(), 1);
+    assert_eq!(effects[0].field, "pins[0]");
+    let shift = effects[0].shift.as_ref().unwrap();
+    let paths = sample_paths(&set, 0..80, &cond, how, &cancel).unwrap();
+    let with = fans(&setup, &paths.conditional, None, Kind::Conditional);
+    let without = fans(&setup, &paths.unconditional, None, Kind::Unconditional);
+    let h = setup.file.horizon;
+    let mut moved = 0.0f64;
+    for (k, (a, b)) in with.iter().zip(&without).enumerate() {
+        let want = b.quantiles[3] - a.quantiles[3];
+        let got = shift[k / h][k % h];
+        assert!(
+            (got - want).abs() < 1e-9 * (1.0 + want.abs()),
+            "{a:?}: {got} vs {want}"
+        );
+        moved = moved.max(want.abs());
+    }
+    assert!(moved > 0.01, "the pin moves the forecast");
+}

@@ -859,6 +859,22 @@ fn the_window_splits_the_scenario_as_the_headless_run_does() {
             .count(),
         2
     );
+    // Leave one out follows in the background.
+    let start = Instant::now();
+    while h.state().effects.is_none() {
+        assert!(
+            start.elapsed() < Duration::from_secs(60),
+            "no leave-one-out effects"
+        );
+        h.step();
+        std::thread::sleep(Duration::from_millis(20));
+    }
+    h.run_steps(2);
+    h.get_by_label("without credit_spread level at 2026Q3 = 3.5")
+        .hover();
+    let (_, effects) = h.state().effects.clone().unwrap();
+    assert_eq!(effects.len(), 5);
+    assert!(effects.iter().all(|e| e.shift.is_ok()));
     // Back to the charts.
     h.get_by_label("Series paths").click();
     h.run_steps(2);

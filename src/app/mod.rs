@@ -82,6 +82,8 @@ pub struct TiltyardApp {
     pub results: Option<Arc<Results>>,
     /// The last attribution, and the generation it belongs to (older ones are shown as such).
     pub sources: Option<(u64, Arc<Sources>)>,
+    /// Each condition's effect on the medians (leave one out), and its generation.
+    pub effects: Option<(u64, Arc<Vec<crate::attribution::leave_one_out::Effect>>)>,
     /// The attribution view in place of the chart grid, and what it shows.
     pub sources_view: sources::SourcesView,
     /// What the centre shows: charts, where the scenario comes from, or the differences.
@@ -176,6 +178,7 @@ impl TiltyardApp {
             job_started: Instant::now(),
             results: None,
             sources: None,
+            effects: None,
             sources_view: sources::SourcesView::default(),
             second: None,
             pane: grid::Pane::Charts,
@@ -297,6 +300,7 @@ impl TiltyardApp {
                     self.results = Some(r);
                 }
                 Message::Sources(g, s) if g == self.generation => self.sources = Some((g, s)),
+                Message::LeaveOneOut(g, e) if g == self.generation => self.effects = Some((g, e)),
                 Message::Failed(g, text) if g == self.generation => self.engine_error = Some(text),
                 _ => {}
             }

@@ -215,6 +215,64 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     };
     chart(ui, &list, &total, &labels, pal);
     table(ui, &list, &total, &labels, pal);
+    if by_condition {
+        effects(ui, app, i, &labels, pal);
+    }
+}
+
+/// Leave one out: how the chosen series' median moves when each condition is switched off.
+fn effects(ui: &mut egui::Ui, app: &TiltyardApp, i: usize, labels: &[String], pal: &Palette) {
+    ui.add_space(8.0);
+    ui.strong("If one condition were switched off");
+    let Some((generation, effects)) = &app.effects else {
+        ui.label(
+            RichText::new("Being measured in the background, after the draws…")
+                .small()
+                .color(pal.muted),
+        );
+        return;
+    };
+    let mut note = format!(
+        "How the median moves without each condition, the others kept (the first {} posterior draws, with the same draws and shocks either way). These effects need not add up: conditions interact.",
+        crate::attribution::leave_one_out::DRAWS
+    );
+    if *generation != app.generation() {
+        note.push_str(" From before the last edit.");
+    }
+    ui.add(egui::Label::new(RichText::new(note).small().color(pal.muted)).wrap());
+    egui::ScrollArea::horizontal()
+        .id_salt("effects table")
+        .show(ui, |ui| {
+            egui::Grid::new("effects grid")
+                .striped(true)
+                .min_col_width(52.0)
+                .show(ui, |ui| {
+                    ui.label("");
+                    for l in labels {
+                        ui.label(RichText::new(l).small().strong());
+                    }
+                    ui.end_row();
+                    for (k, e) in effects.iter().enumerate() {
+                        ui.horizontal(|ui| {
+                            let (rect, _) = ui
+                                .allocate_exact_size(egui::vec2(10.0, 10.0), egui::Sense::hover());
+                            ui.painter().rect_filled(rect, 2.0, condition_colour(k));
+                            ui.label(format!("without {}", e.label));
+                        });
+                        match &e.shift {
+                            Ok(shift) => {
+                                for v in shift.get(i).into_iter().flatten() {
+                                    ui.label(cell(*v));
+                                }
+                            }
+                            Err(why) => {
+                                ui.label(RichText::new(why).small().color(pal.strain));
+                            }
+                        }
+                        ui.end_row();
+                    }
+                });
+        });
 }
 
 fn chart(ui: &mut egui::Ui, list: &[Part], total: &[f64], labels: &[String], pal: &Palette) {

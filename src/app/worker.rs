@@ -15,6 +15,7 @@ use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::mpsc::{Receiver, Sender};
 use std::time::Instant;
 
+use crate::attribution::leave_one_out::{Effect, leave_one_out};
 use crate::attribution::{Attribution, attribute};
 use crate::checks::CheckReport;
 use crate::dataset::Period;
@@ -134,6 +135,8 @@ pub enum Message {
     Results(u64, Arc<Results>),
     /// Where the scenario comes from, once all its draws are in.
     Sources(u64, Arc<Sources>),
+    /// How each series' median moves when one condition is switched off (after the rest).
+    LeaveOneOut(u64, Arc<Vec<Effect>>),
     Failed(u64, String),
 }
 
@@ -334,6 +337,17 @@ fn process(
                     set_aside: 0,
                 },
             ));
+            // Fixed coefficients: the effects on up to 1,000 of the central θ's paths.
+            let paths = (setup.file.draws * setup.file.paths_per_draw).min(1000);
+            let single = ThetaSet::single(model.model.central.clone());
+            effects(
+                &setup,
+                &single,
+                &conditions,
+                sampling(&setup.file, paths),
+                job,
+                send,
+            )?;
             Ok(())
         }
         Some(Ok(_)) => {
@@ -495,6 +509,33 @@ fn posterior(
             set_aside: all.failures.len(),
         },
     ));
+    effects(
+        setup,
+        set,
+        conditions,
+        sampling(file, file.paths_per_draw),
+        job,
+        send,
+    )
+}
+
+/// Last, in the background of a finished job: each condition's effect on the medians.
+fn effects(
+    setup: &Setup,
+    set: &ThetaSet,
+    conditions: &Conditions,
+    how: Sampling,
+    job: &Job,
+    send: &dyn Fn(Message),
+) -> Result<(), String> {
+    if conditions.pins.is_empty() && conditions.corridors.is_empty() {
+        return Ok(());
+    }
+    match leave_one_out(setup, set, conditions, how, &job.cancel) {
+        Ok(e) => send(Message::LeaveOneOut(job.generation, Arc::new(e))),
+        Err(crate::forecast::ForecastError::Cancelled) => {}
+        Err(e) => return Err(e.to_string()),
+    }
     Ok(())
 }
 

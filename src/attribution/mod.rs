@@ -24,6 +24,8 @@
 //! is a part of its own ("parameters"). The split by shock depends on the identification
 //! (the ordering).
 
+pub mod leave_one_out;
+
 use nalgebra::{DMatrix, DVector};
 use rayon::prelude::*;
 
