@@ -87,6 +87,27 @@ enum Command {
         #[arg(long, default_value = "out")]
         out: PathBuf,
     },
+    /// Export a briefing pack: a chart per series, where the conditioned series' moves come
+    /// from, the tables, and briefing.html (one self-contained page to read or print).
+    Export {
+        /// The scenario file (RON).
+        scenario: PathBuf,
+        /// A second scenario on the same series to compare it with.
+        #[arg(long)]
+        compare: Option<PathBuf>,
+        /// Posterior draws (paths, for fixed coefficients); overrides the file(s).
+        #[arg(long)]
+        draws: Option<usize>,
+        /// Random seed; overrides the file(s).
+        #[arg(long)]
+        seed: Option<u64>,
+        /// Worker threads (default: all cores). Results do not depend on it.
+        #[arg(long)]
+        threads: Option<usize>,
+        /// Output folder.
+        #[arg(long, default_value = "briefing")]
+        out: PathBuf,
+    },
     /// Check a scenario: clashes, strain, the conditions to blame and the plausibility;
     /// prints the report and writes checks.json. Exit status 2 when the conditions clash.
     Check {
@@ -159,6 +180,24 @@ fn main() -> ExitCode {
             seed,
             out,
         }) => check_command(scenario, seed, out),
+        Some(Command::Export {
+            scenario,
+            compare,
+            draws,
+            seed,
+            threads,
+            out,
+        }) => export_command(
+            scenario,
+            compare,
+            RunOptions {
+                draws,
+                seed,
+                ..RunOptions::default()
+            },
+            threads,
+            out,
+        ),
         Some(Command::Compare {
             first,
             second,
@@ -305,25 +344,12 @@ fn compare_command(
         .num_threads(threads.unwrap_or(0))
         .build()
         .context("cannot start worker threads")?;
-    let mut runs = Vec::new();
-    for file in &files {
-        let mut setup = tiltyard::scenario::load(file)?;
-        match pool.install(|| run(&mut setup, &options)) {
-            Ok(outcome) => runs.push((setup, outcome)),
-            Err(RunError::Clash(report)) => {
-                println!("scenario   {} ({})", setup.file.name, file.display());
-                println!("{}", check_text(&report));
-                println!(
-                    "nothing compared: the conditions of {} clash",
-                    file.display()
-                );
-                return Ok(Outcome::Clash);
-            }
-            Err(e) => return Err(anyhow::Error::new(e).context(format!("{}", file.display()))),
-        }
-    }
-    let [(a, run_a), (b, run_b)] =
-        <[_; 2]>::try_from(runs).map_err(|_| anyhow::anyhow!("two scenarios were run"))?;
+    let Some((a, run_a)) = run_or_report(&files[0], &options, &pool)? else {
+        return Ok(Outcome::Clash);
+    };
+    let Some((b, run_b)) = run_or_report(&files[1], &options, &pool)? else {
+        return Ok(Outcome::Clash);
+    };
     let comparison = compare(&a, &run_a, &b, &run_b)?;
     create(&out)?;
     write_compare(&out.join("compare.csv"), &comparison)?;
@@ -336,6 +362,66 @@ fn compare_command(
         out.join("compare.csv").display(),
         out.join("compare-summary.csv").display(),
         out.join("compare.txt").display()
+    );
+    println!("\n{CAUTION}");
+    Ok(Outcome::Done)
+}
+
+/// Run a scenario; a clash is printed and gives `None`.
+fn run_or_report(
+    file: &Path,
+    options: &RunOptions,
+    pool: &rayon::ThreadPool,
+) -> anyhow::Result<Option<(tiltyard::scenario::Setup, tiltyard::run::RunOutcome)>> {
+    let mut setup = tiltyard::scenario::load(file)?;
+    match pool.install(|| run(&mut setup, options)) {
+        Ok(outcome) => Ok(Some((setup, outcome))),
+        Err(RunError::Clash(report)) => {
+            println!("scenario   {} ({})", setup.file.name, file.display());
+            println!("{}", check_text(&report));
+            println!(
+                "nothing written: the conditions of {} clash",
+                file.display()
+            );
+            Ok(None)
+        }
+        Err(e) => Err(anyhow::Error::new(e).context(format!("{}", file.display()))),
+    }
+}
+
+fn export_command(
+    scenario: PathBuf,
+    other: Option<PathBuf>,
+    options: RunOptions,
+    threads: Option<usize>,
+    out: PathBuf,
+) -> anyhow::Result<Outcome> {
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(threads.unwrap_or(0))
+        .build()
+        .context("cannot start worker threads")?;
+    create(&out)?;
+    let Some((setup, outcome)) = run_or_report(&scenario, &options, &pool)? else {
+        return Ok(Outcome::Clash);
+    };
+    let comparison = match &other {
+        None => None,
+        Some(file) => {
+            let Some((b, run_b)) = run_or_report(file, &options, &pool)? else {
+                return Ok(Outcome::Clash);
+            };
+            Some(compare(&setup, &outcome, &b, &run_b)?)
+        }
+    };
+    let written = pool.install(|| {
+        tiltyard::report::pack::write_pack(&out, &setup, &outcome, comparison.as_ref())
+    })?;
+    println!("scenario   {} ({})", setup.file.name, scenario.display());
+    println!(
+        "wrote      {} files in {}, to read: {}",
+        written.len(),
+        out.display(),
+        out.join("briefing.html").display()
     );
     println!("\n{CAUTION}");
     Ok(Outcome::Done)

@@ -993,3 +993,37 @@ fn the_table_of_paths_is_copied_and_saved() {
     assert!(asked.load(std::sync::atomic::Ordering::SeqCst));
     assert_eq!(std::fs::read_to_string(&target).unwrap(), text);
 }
+
+/// Export pack… writes the briefing pack of the scenario as it stands into the folder picked,
+/// off the window's thread, and says so.
+#[test]
+fn the_window_exports_the_briefing_pack() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = demo_copy(&dir);
+    let target = dir.path().join("pack");
+    let asked = Arc::new(AtomicBool::new(false));
+    let mut h = harness_with(&path, Arc::new(SaveTo(target.clone(), asked.clone())));
+    settle(&mut h);
+    h.get_by_label("Export pack…").click();
+    let start = Instant::now();
+    while !h
+        .state()
+        .notice
+        .as_deref()
+        .is_some_and(|n| n.contains("briefing pack"))
+    {
+        assert!(
+            start.elapsed() < Duration::from_secs(120),
+            "no answer from the export"
+        );
+        h.step();
+        std::thread::sleep(Duration::from_millis(20));
+    }
+    assert!(
+        h.state().notice.as_deref().unwrap().contains("written"),
+        "{:?}",
+        h.state().notice
+    );
+    assert!(target.join("briefing.html").is_file());
+    assert!(target.join("charts").join("unemployment.png").is_file());
+}

@@ -5,6 +5,7 @@
 
 use std::path::{Path, PathBuf};
 
+use crate::report::write_atomic;
 use crate::scenario::{self, ScenarioError, ScenarioFile};
 
 /// Most undo steps kept.
@@ -154,29 +155,6 @@ pub fn recovery_path(path: &Path) -> PathBuf {
     path.with_file_name(format!(".{name}.recovery"))
 }
 
-/// Write `text` to `path` so that a crash leaves either the old file or the new one: write a
-/// temporary file in the same folder, flush it to disk, then rename it over the target.
-pub fn write_atomic(path: &Path, text: &str) -> std::io::Result<()> {
-    use std::io::Write;
-    let dir = path.parent().filter(|d| !d.as_os_str().is_empty());
-    let dir = dir.unwrap_or(Path::new("."));
-    let name = path
-        .file_name()
-        .map(|n| n.to_string_lossy().into_owned())
-        .unwrap_or_else(|| "scenario".into());
-    let tmp = dir.join(format!(".{name}.{}.tmp", std::process::id()));
-    let result = (|| {
-        let mut f = std::fs::File::create(&tmp)?;
-        f.write_all(text.as_bytes())?;
-        f.sync_all()?;
-        std::fs::rename(&tmp, path)
-    })();
-    if result.is_err() {
-        let _ = std::fs::remove_file(&tmp);
-    }
-    result
-}
-
 /// Save `file`, a scenario that was at `from`, atomically to `to` (write a temporary file
 /// beside it, then rename). A relative dataset path is rewritten so that it still points at
 /// the same file from the new folder. Returns the file as written.
@@ -187,7 +165,7 @@ pub fn write_scenario(
 ) -> std::io::Result<ScenarioFile> {
     let mut file = file.clone();
     file.dataset = rebase(from, to, &file.dataset);
-    write_atomic(to, &scenario::to_text(&file))?;
+    write_atomic(to, scenario::to_text(&file).as_bytes())?;
     Ok(file)
 }
 
@@ -278,7 +256,11 @@ mod tests {
         doc.path = dir.path().join("baseline.ron");
         doc.edit(|f| f.pins[0].value = 2.6);
         assert!(doc.is_dirty());
-        write_atomic(&doc.recovery_path(), &scenario::to_text(&doc.file)).unwrap();
+        write_atomic(
+            &doc.recovery_path(),
+            scenario::to_text(&doc.file).as_bytes(),
+        )
+        .unwrap();
         let recovered = scenario::read(&doc.recovery_path()).unwrap();
         assert_eq!(recovered, doc.file);
         let path = dir.path().join("mine.ron");

@@ -57,6 +57,8 @@ pub enum Purpose {
     Compare,
     /// Where to save the table of paths.
     ExportTable,
+    /// The folder of a briefing pack.
+    ExportPack,
 }
 
 /// A dialog's answer, with what was read from the picked file.
@@ -73,6 +75,8 @@ pub enum Answer {
     Compare(PathBuf, Box<Result<ScenarioFile, String>>),
     /// Where to save the table of paths.
     ExportTable(PathBuf),
+    /// The folder of a briefing pack.
+    ExportPack(PathBuf),
 }
 
 /// Unsaved edits found in a recovery file: the scenario they make (or why it cannot be read).
@@ -187,6 +191,7 @@ impl Dialogs {
                     let file = scenario_for(&p);
                     Answer::NewFromData(p, Box::new(file))
                 }),
+                Purpose::ExportPack => picker.save(&start, "briefing").map(Answer::ExportPack),
                 Purpose::ExportTable => picker
                     .save(&start, "paths-table.csv")
                     .map(Answer::ExportTable),
@@ -255,7 +260,7 @@ impl Chores {
         std::thread::spawn(move || {
             for chore in rx {
                 let answer = match chore {
-                    Chore::Write(path, text) => super::document::write_atomic(&path, &text)
+                    Chore::Write(path, text) => crate::report::write_atomic(&path, text.as_bytes())
                         .err()
                         .map(|e| Reply::Failed(format!("cannot write {}: {e}", path.display()))),
                     Chore::Remove(path) => remove(&path).err().map(Reply::Failed),

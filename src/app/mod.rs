@@ -15,6 +15,7 @@
 
 pub mod chart;
 pub mod document;
+pub mod export;
 pub mod files;
 pub mod grid;
 pub mod palette;
@@ -88,6 +89,8 @@ pub struct TiltyardApp {
     pub sources_view: sources::SourcesView,
     /// What the centre shows: charts, where the scenario comes from, or the differences.
     pub pane: grid::Pane,
+    /// A briefing pack being written.
+    pub export: Option<export::Export>,
     /// A second scenario shown beside the document (read-only), and its fans.
     pub second: Option<second::Second>,
     pub checks: Option<Box<CheckReport>>,
@@ -181,6 +184,7 @@ impl TiltyardApp {
             effects: None,
             sources_view: sources::SourcesView::default(),
             second: None,
+            export: None,
             pane: grid::Pane::Charts,
             checks: None,
             checked: (0, 0),
@@ -274,6 +278,13 @@ impl TiltyardApp {
     fn drain(&mut self) {
         if let Some(s) = &mut self.second {
             s.drain();
+        }
+        if let Some(answer) = self.export.as_ref().and_then(|e| e.done()) {
+            self.export = None;
+            self.notice = Some(match answer {
+                Ok(text) => text,
+                Err(e) => format!("cannot write the briefing pack: {e}"),
+            });
         }
         let start = Instant::now();
         while start.elapsed() < DRAIN_BUDGET {
@@ -791,6 +802,19 @@ impl TiltyardApp {
                     self.take_opened(&p, file, recovery)
                 }
                 Some(Answer::NewFromData(p, file)) => self.take_new(&p, *file),
+                Some(Answer::ExportPack(dir)) => {
+                    let second = self
+                        .second
+                        .as_ref()
+                        .map(|s| (s.file.clone(), s.path.clone()));
+                    self.export = Some(export::Export::start(
+                        dir,
+                        self.doc.file.clone(),
+                        self.doc.path.clone(),
+                        second,
+                        self.wake.clone(),
+                    ));
+                }
                 Some(Answer::ExportTable(p)) => {
                     if let Some(r) = &self.results {
                         self.chores.write(p, paths_table::csv_text(r));

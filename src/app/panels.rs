@@ -97,6 +97,14 @@ fn top_bar(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
         if ui.button("Save as…").clicked() {
             app.pick(Purpose::SaveAs);
         }
+        let exporting = app.export.is_some();
+        if ui
+            .add_enabled(!exporting, egui::Button::new("Export pack…"))
+            .on_hover_text("Write the briefing pack (charts, tables, one page to read or print) into a folder you pick")
+            .clicked()
+        {
+            app.pick(Purpose::ExportPack);
+        }
         if ui
             .button("Compare with…")
             .on_hover_text("Draw a second scenario on the same series beside this one")
@@ -203,6 +211,13 @@ fn footer(ui: &mut egui::Ui, app: &TiltyardApp, pal: &Palette) {
                     "reweighted by the scenario: effective sample size {ess:.0}"
                 ));
             }
+            ui.separator();
+        }
+        if let Some(e) = &app.export {
+            ui.label(
+                RichText::new(format!("writing the briefing pack in {}…", e.dir.display()))
+                    .color(pal.second),
+            );
             ui.separator();
         }
         ui.label(format!("seed {}", app.doc.file.seed));

@@ -4,8 +4,10 @@
 //! `checks.json`.
 
 pub mod attribution;
+pub mod charts;
 pub mod checks;
 pub mod fans;
+pub mod pack;
 pub mod summary;
 
 use std::path::Path;
@@ -101,6 +103,29 @@ pub fn write_draws(path: &Path, setup: &Setup, paths: &[Vec<f64>]) -> Result<(),
         path: path.to_path_buf(),
         error,
     })
+}
+
+/// Write `bytes` to `path` atomically: a temporary file beside it, synced, then renamed over
+/// it, so a reader never sees a half-written file and a failed write leaves the old one.
+pub fn write_atomic(path: &Path, bytes: &[u8]) -> std::io::Result<()> {
+    use std::io::Write;
+    let dir = path.parent().filter(|d| !d.as_os_str().is_empty());
+    let dir = dir.unwrap_or(Path::new("."));
+    let name = path
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_else(|| "output".into());
+    let tmp = dir.join(format!(".{name}.{}.tmp", std::process::id()));
+    let result = (|| {
+        let mut f = std::fs::File::create(&tmp)?;
+        f.write_all(bytes)?;
+        f.sync_all()?;
+        std::fs::rename(&tmp, path)
+    })();
+    if result.is_err() {
+        let _ = std::fs::remove_file(&tmp);
+    }
+    result
 }
 
 /// `about.txt`: the run summary and the caution.

@@ -1,0 +1,77 @@
+//! The briefing pack from the window: the scenario as it stands (saved or not), and the second
+//! scenario when comparing, run through the headless pipeline on a thread of its own and
+//! written to the folder the user picks ([`crate::report::pack`]).
+
+use std::path::{Path, PathBuf};
+use std::sync::Arc;
+use std::sync::mpsc::{Receiver, channel};
+
+use crate::compare::compare;
+use crate::report::pack::write_pack;
+use crate::run::{RunError, RunOptions, run};
+use crate::scenario::{ScenarioFile, Setup};
+
+/// An export under way: its folder, and the answer to come (a summary or why it failed).
+pub struct Export {
+    pub dir: PathBuf,
+    answer: Receiver<Result<String, String>>,
+}
+
+impl Export {
+    /// Start writing the pack of `file` (at `path`; with `second` to compare) into `dir`.
+    pub fn start(
+        dir: PathBuf,
+        file: ScenarioFile,
+        path: PathBuf,
+        second: Option<(ScenarioFile, PathBuf)>,
+        wake: Arc<dyn Fn() + Send + Sync>,
+    ) -> Export {
+        let (tx, answer) = channel();
+        let to = dir.clone();
+        std::thread::spawn(move || {
+            let _ = tx.send(pack(&to, file, &path, second));
+            wake();
+        });
+        Export { dir, answer }
+    }
+
+    /// The answer, once it has come.
+    pub fn done(&self) -> Option<Result<String, String>> {
+        self.answer.try_recv().ok()
+    }
+}
+
+fn one(file: ScenarioFile, path: &Path) -> Result<(Setup, crate::run::RunOutcome), String> {
+    let mut setup = Setup::new(file, path).map_err(|e| e.to_string())?;
+    match run(&mut setup, &RunOptions::default()) {
+        Ok(out) => Ok((setup, out)),
+        Err(RunError::Clash(_)) => Err(format!(
+            "the conditions of {} clash; see the checks",
+            setup.file.name
+        )),
+        Err(e) => Err(e.to_string()),
+    }
+}
+
+fn pack(
+    dir: &Path,
+    file: ScenarioFile,
+    path: &Path,
+    second: Option<(ScenarioFile, PathBuf)>,
+) -> Result<String, String> {
+    std::fs::create_dir_all(dir).map_err(|e| format!("cannot create {}: {e}", dir.display()))?;
+    let (setup, out) = one(file, path)?;
+    let comparison = match second {
+        None => None,
+        Some((f, p)) => {
+            let (b, run_b) = one(f, &p)?;
+            Some(compare(&setup, &out, &b, &run_b).map_err(|e| e.to_string())?)
+        }
+    };
+    let written = write_pack(dir, &setup, &out, comparison.as_ref()).map_err(|e| e.to_string())?;
+    Ok(format!(
+        "briefing pack written: {} files in {} (open briefing.html)",
+        written.len(),
+        dir.display()
+    ))
+}
