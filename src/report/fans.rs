@@ -109,7 +109,7 @@ pub fn fans(setup: &Setup, paths: &[Vec<f64>], weights: Option<&[f64]>, kind: Ki
 /// Sample quantiles with linear interpolation between order statistics (position
 /// `q (P − 1)`; the default of numpy's `quantile`, Hyndman and Fan 1996 type 7).
 pub fn quantiles(values: &mut [f64]) -> [f64; 7] {
-    values.sort_by(f64::total_cmp);
+    values.sort_unstable_by(f64::total_cmp);
     let mut out = [f64::NAN; 7];
     if values.is_empty() {
         return out;

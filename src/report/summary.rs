@@ -18,6 +18,8 @@
 
 use std::path::Path;
 
+use rayon::prelude::*;
+
 use super::fans::{QUANTILES, display_path_value, quantiles, weighted};
 use super::{ReportError, csv_writer};
 use crate::dataset::Transform;
@@ -69,7 +71,14 @@ fn of_path(setup: &Setup, path: &[f64], i: usize, years: &[(i32, Vec<i64>)]) -> 
             col.len().checked_sub(1 + (-t) as usize).map(|k| col[k])
         }
     };
-    let level = |t: i64| x(t).map_or(f64::NAN, |v| transform.inverse(v));
+    // Levels in people's units from the last observation on, each computed once.
+    let levels: Vec<f64> = (0..=h as i64)
+        .map(|t| x(t).map_or(f64::NAN, |v| transform.inverse(v)))
+        .collect();
+    let level = |t: i64| match usize::try_from(t) {
+        Ok(k) => levels[k],
+        Err(_) => x(t).map_or(f64::NAN, |v| transform.inverse(v)),
+    };
     let shown: Vec<f64> = (1..=h)
         .map(|t| display_path_value(setup, path, i, t))
         .collect();
@@ -209,55 +218,59 @@ pub fn statistics(
     let years = years(setup);
     let names = names(&years);
     let last = setup.last_period();
-    let mut out = Vec::new();
-    for i in 0..setup.n() {
-        let per_path = |paths: &[Vec<f64>]| -> Vec<Vec<f64>> {
-            paths.iter().map(|p| of_path(setup, p, i, &years)).collect()
-        };
-        let cond = per_path(conditional);
-        let uncond = per_path(unconditional);
-        let dev: Vec<Vec<f64>> = cond
-            .iter()
-            .zip(&uncond)
-            .map(|(c, u)| c.iter().zip(u).map(|(a, b)| a - b).collect())
-            .collect();
-        for (kind, rows, w) in [
-            (StatKind::Conditional, &cond, weights),
-            (StatKind::Unconditional, &uncond, None),
-            (StatKind::Deviation, &dev, weights),
-        ] {
-            for (k, (statistic, year)) in names.iter().enumerate() {
-                let mut values: Vec<f64> = rows.iter().map(|r| r[k]).collect();
-                let (mean, q) = match w {
-                    Some(w) => weighted(&values, w),
-                    None => {
-                        let count = values.len().max(1) as f64;
-                        let mean = values.iter().map(|v| v / count).sum();
-                        (mean, quantiles(&mut values))
-                    }
-                };
-                let label = if statistic.ends_with("_period") && kind != StatKind::Deviation {
-                    last.offset(q[3].round() as i64).to_string()
-                } else {
-                    year.clone()
-                };
-                out.push(Stat {
-                    series: setup.names[i].clone(),
-                    statistic: statistic.clone(),
-                    label,
-                    kind,
-                    units: if kind == StatKind::Deviation && statistic.ends_with("_period") {
-                        "periods".into()
+    // One series per piece of work, gathered in series order.
+    (0..setup.n())
+        .into_par_iter()
+        .flat_map_iter(|i| {
+            let mut out = Vec::new();
+            let per_path = |paths: &[Vec<f64>]| -> Vec<Vec<f64>> {
+                paths.iter().map(|p| of_path(setup, p, i, &years)).collect()
+            };
+            let cond = per_path(conditional);
+            let uncond = per_path(unconditional);
+            let dev: Vec<Vec<f64>> = cond
+                .iter()
+                .zip(&uncond)
+                .map(|(c, u)| c.iter().zip(u).map(|(a, b)| a - b).collect())
+                .collect();
+            for (kind, rows, w) in [
+                (StatKind::Conditional, &cond, weights),
+                (StatKind::Unconditional, &uncond, None),
+                (StatKind::Deviation, &dev, weights),
+            ] {
+                for (k, (statistic, year)) in names.iter().enumerate() {
+                    let mut values: Vec<f64> = rows.iter().map(|r| r[k]).collect();
+                    let (mean, q) = match w {
+                        Some(w) => weighted(&values, w),
+                        None => {
+                            let count = values.len().max(1) as f64;
+                            let mean = values.iter().map(|v| v / count).sum();
+                            (mean, quantiles(&mut values))
+                        }
+                    };
+                    let label = if statistic.ends_with("_period") && kind != StatKind::Deviation {
+                        last.offset(q[3].round() as i64).to_string()
                     } else {
-                        units_of(setup, i, statistic)
-                    },
-                    mean,
-                    quantiles: q,
-                });
+                        year.clone()
+                    };
+                    out.push(Stat {
+                        series: setup.names[i].clone(),
+                        statistic: statistic.clone(),
+                        label,
+                        kind,
+                        units: if kind == StatKind::Deviation && statistic.ends_with("_period") {
+                            "periods".into()
+                        } else {
+                            units_of(setup, i, statistic)
+                        },
+                        mean,
+                        quantiles: q,
+                    });
+                }
             }
-        }
-    }
-    out
+            out
+        })
+        .collect()
 }
 
 /// `summary.csv`: `series,statistic,label,kind,units,mean,q05,q16,q25,q50,q75,q84,q95`.
