@@ -837,6 +837,7 @@ fn the_window_splits_the_scenario_as_the_headless_run_does() {
         .clone()
         .expect("the split came with the draws");
     assert_eq!(Some(&sources.attribution), out.attribution.as_ref());
+    assert_eq!(sources.statistics, out.summary);
     h.get_by_label("Where it comes from").click();
     h.run_steps(2);
     assert_eq!(h.state().pane, tiltyard::app::grid::Pane::Sources);

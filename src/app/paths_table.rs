@@ -63,6 +63,11 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     egui::ScrollArea::both()
         .id_salt("paths table")
         .show(ui, |ui| {
+            if let Some((_, sources)) = &app.sources {
+                statistics(ui, &sources.statistics, pal);
+                ui.add_space(10.0);
+                ui.strong("Paths by period");
+            }
             egui::Grid::new("paths grid")
                 .striped(true)
                 .min_col_width(56.0)
@@ -92,5 +97,63 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
                         }
                     }
                 });
+        });
+}
+
+/// The statistics people quote, by series: the conditional median with its 90% band, and
+/// the deviation from the unconditional forecast.
+fn statistics(ui: &mut egui::Ui, stats: &[crate::report::Stat], pal: &Palette) {
+    use crate::report::summary::StatKind;
+    ui.strong("Summary statistics");
+    ui.label(
+        RichText::new(
+            "Median and 5% … 95% over the paths; the deviation is a path's statistic minus that of the unconditional path it was made from. Calendar-year averages are in the exports.",
+        )
+        .small()
+        .color(pal.muted),
+    );
+    egui::Grid::new("statistics grid")
+        .striped(true)
+        .min_col_width(56.0)
+        .show(ui, |ui| {
+            for head in [
+                "series",
+                "statistic",
+                "units",
+                "when",
+                "under the scenario",
+                "deviation",
+            ] {
+                ui.strong(head);
+            }
+            ui.end_row();
+            let band = |q: &[f64; 7]| format!("{:.2} ({:.2} … {:.2})", q[3], q[0], q[6]);
+            for c in stats.iter().filter(|s| {
+                s.kind == StatKind::Conditional
+                    && matches!(
+                        s.statistic.as_str(),
+                        "peak" | "trough" | "peak_to_trough" | "cumulative_change"
+                    )
+            }) {
+                let find = |statistic: &str, kind: StatKind| {
+                    stats.iter().find(|s| {
+                        s.series == c.series && s.statistic == statistic && s.kind == kind
+                    })
+                };
+                let when = find(&format!("{}_period", c.statistic), StatKind::Conditional)
+                    .map(|p| p.label.clone())
+                    .unwrap_or_default();
+                ui.label(&c.series);
+                ui.label(c.statistic.replace('_', " "));
+                ui.label(RichText::new(&c.units).small().color(pal.muted));
+                ui.label(when);
+                ui.label(band(&c.quantiles));
+                ui.label(
+                    find(&c.statistic, StatKind::Deviation)
+                        .map(|d| band(&d.quantiles))
+                        .unwrap_or_default(),
+                );
+                ui.end_row();
+            }
         });
 }

@@ -149,11 +149,25 @@ pub struct Sources {
     pub units: Vec<(Vec<(usize, f64)>, String)>,
     /// The shocks in identification order (the split by shock depends on it).
     pub ordering: Vec<String>,
+    /// Peaks, troughs, changes and calendar-year averages with their bands.
+    pub statistics: Vec<crate::report::Stat>,
 }
 
 impl Sources {
-    fn new(setup: &Setup, attribution: Attribution) -> Sources {
+    /// The split of `paths`' mean shift, and their statistics (weighted by `weights`).
+    fn new(
+        setup: &Setup,
+        attribution: Attribution,
+        paths: &PathSet,
+        weights: Option<&[f64]>,
+    ) -> Sources {
         Sources {
+            statistics: crate::report::statistics(
+                setup,
+                &paths.conditional,
+                &paths.unconditional,
+                weights,
+            ),
             units: (0..setup.n())
                 .map(|i| crate::report::attribution::linear_units(setup, i))
                 .collect(),
@@ -328,7 +342,8 @@ fn process(
             }
             let central = std::slice::from_ref(&model.model.central);
             let split = attribute(central, &conditions, &paths.parts, None).map_err(text)?;
-            send(Message::Sources(g, Arc::new(Sources::new(&setup, split))));
+            let sources = Sources::new(&setup, split, &paths, None);
+            send(Message::Sources(g, Arc::new(sources)));
             send(Message::State(
                 g,
                 EngineState::Done {
@@ -500,7 +515,11 @@ fn posterior(
     let weights = (file.reweight && all.log_weights.len() == all.parts.len())
         .then(|| crate::forecast::normalise(&all.log_weights).0);
     let split = attribute(&set.thetas, conditions, &all.parts, weights.as_deref()).map_err(text)?;
-    send(Message::Sources(g, Arc::new(Sources::new(setup, split))));
+    let path_weights = crate::forecast::path_weights(&all.log_weights, file.paths_per_draw)
+        .filter(|_| file.reweight)
+        .map(|(w, _)| w);
+    let sources = Sources::new(setup, split, &all, path_weights.as_deref());
+    send(Message::Sources(g, Arc::new(sources)));
     send(Message::State(
         g,
         EngineState::Done {
