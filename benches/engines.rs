@@ -139,14 +139,19 @@ fn child_window(args: &[&str]) -> String {
     let mut first = Vec::new();
     let mut cold = (Duration::ZERO, Duration::ZERO);
     let base = f.pins[0].value;
+    // As the window does: a new job cancels the one before (which may still be measuring
+    // each condition's effect after its draws).
+    let mut cancel = Arc::new(AtomicBool::new(false));
     for g in 1..=(EDITS as u64 + 1) {
         f.pins[0].value = base + 0.01 * g as f64;
+        cancel.store(true, std::sync::atomic::Ordering::Relaxed);
+        cancel = Arc::new(AtomicBool::new(false));
         let start = Instant::now();
         jobs.send(Job {
             generation: g,
             file: f.clone(),
             path: path.clone(),
-            cancel: Arc::new(AtomicBool::new(false)),
+            cancel: cancel.clone(),
         })
         .expect("worker");
         let mut fans_at = None;
