@@ -212,9 +212,14 @@ pub fn compare(
     shown_b.display = a.display.clone();
     let b = &shown_b;
     let (pa, pb) = (&run_a.paths, &run_b.paths);
+    // The same data, and the same draws and paths kept (fixed coefficients set paths aside
+    // one by one: their indices must agree too).
+    let set_aside = |r: &RunOutcome| r.paths.failures.iter().map(|f| f.index).collect::<Vec<_>>();
     let paired = same_randomness(&a.file, &b.file)
+        && a.columns == b.columns
         && pa.conditional.len() == pb.conditional.len()
-        && pa.sources == pb.sources;
+        && pa.sources == pb.sources
+        && set_aside(run_a) == set_aside(run_b);
     let weights = |r: &RunOutcome, s: &Setup| {
         crate::forecast::path_weights(&r.paths.log_weights, s.file.paths_per_draw)
             .filter(|_| s.file.reweight)

@@ -199,8 +199,10 @@ pub fn check_draws(
     let Some(first) = failing.first() else {
         return;
     };
-    let share = failing.len() as f64 / count.max(1) as f64;
-    let clash = share > settings.max_failed_share;
+    // A clash only when the share failing is surely above what a run allows (the lower end
+    // of its 95% interval from these few draws), or when every draw failed; else a strain.
+    let clash =
+        failing.len() == count || wilson_lower(failing.len(), count) > settings.max_failed_share;
     report.findings.push(Finding {
         severity: if clash { Severity::Clash } else { Severity::Strain },
         kind: "fails_in_posterior_draws".into(),
@@ -221,4 +223,31 @@ pub fn check_draws(
     } else {
         report.status
     };
+}
+
+/// The lower end of the 95% Wilson (1927) score interval for a share of `k` out of `n`.
+fn wilson_lower(k: usize, n: usize) -> f64 {
+    if n == 0 {
+        return 0.0;
+    }
+    let (k, n, z) = (k as f64, n as f64, 1.959_963_984_540_054);
+    let p = k / n;
+    let z2 = z * z;
+    let centre = p + z2 / (2.0 * n);
+    let spread = z * (p * (1.0 - p) / n + z2 / (4.0 * n * n)).sqrt();
+    ((centre - spread) / (1.0 + z2 / n)).max(0.0)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::wilson_lower;
+
+    /// The closed form (Wilson 1927) evaluated independently with Python and scipy's normal
+    /// quantile (z = 1.959963984540054): 3 of 40 gives 0.025836025774588.
+    #[test]
+    fn wilson_lower_bound() {
+        assert!((wilson_lower(3, 40) - 0.025836025774588).abs() < 1e-12);
+        assert_eq!(wilson_lower(0, 40), 0.0);
+        assert!(wilson_lower(40, 40) > 0.9);
+    }
 }

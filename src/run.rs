@@ -10,9 +10,7 @@ use crate::checks::CheckReport;
 use crate::crosscheck::EngineKind;
 use crate::forecast::{ForecastError, PathSet, RootSummary, Sampling, path_weights, sample_paths};
 use crate::model::FitSummary;
-use crate::pipeline::{
-    DRAWS_RECHECKED, Model, PipelineError, check_central, check_draws, read_conditions,
-};
+use crate::pipeline::{Model, PipelineError, check_central, check_draws, read_conditions};
 use crate::report::{FanRow, Kind, Stat, check_text, displayable, fans, statistics};
 use crate::scenario::{ModelSpec, ScenarioError, Setup};
 
@@ -82,8 +80,9 @@ pub fn check(setup: &Setup) -> Result<CheckReport, RunError> {
     let (conditions, invalid) = read_conditions(setup);
     let mut report = check_central(setup, &model, &conditions, invalid);
     if !model.is_fixed() && !report.clashes() {
-        let count = DRAWS_RECHECKED.min(setup.file.draws);
-        let thetas = model.draw(setup, count, &AtomicBool::new(false))?;
+        // The run's own draws (the stationarity filter keeps and refuses as it would there);
+        // the first of them are re-checked.
+        let thetas = model.draw(setup, setup.file.draws, &AtomicBool::new(false))?;
         check_draws(setup, &mut report, &thetas, &conditions);
     }
     Ok(report)

@@ -95,8 +95,10 @@ fn the_demo_pack_is_complete_and_self_contained() {
         assert!(dir.join(name).is_file(), "{name} is missing");
     }
     let mut charts = 0;
-    for s in &file.series {
-        let png = dir.join("charts").join(format!("{}.png", s.name));
+    for (k, s) in file.series.iter().enumerate() {
+        let png = dir
+            .join("charts")
+            .join(format!("{:02}-{}.png", k + 1, s.name));
         let image = image::open(&png).unwrap_or_else(|e| panic!("{}: {e}", png.display()));
         assert_eq!((image.width(), image.height()), (WIDTH, HEIGHT));
         charts += 1;
@@ -109,7 +111,10 @@ fn the_demo_pack_is_complete_and_self_contained() {
         "unemployment",
         "policy_rate",
     ] {
-        let png = dir.join("charts").join(format!("sources-{s}.png"));
+        let k = file.series.iter().position(|x| x.name == s).unwrap();
+        let png = dir
+            .join("charts")
+            .join(format!("{:02}-{s}-sources.png", k + 1));
         assert_eq!(image::open(&png).unwrap().width(), WIDTH);
     }
     let html = std::fs::read_to_string(dir.join("briefing.html")).unwrap();

@@ -936,8 +936,12 @@ fn a_second_scenario_is_compared_in_the_window() {
     h.run_steps(2);
     assert_eq!(h.state().pane, tiltyard::app::grid::Pane::Difference);
     h.get_by_label("second: median").hover();
-    // The credit spread is pinned at 3.5 in 2026Q3 here: its median there is 3.50.
-    assert!(h.query_all_by_label("3.50").count() >= 1);
+    // The baseline pins the policy rate at 2.75 in 2026Q4: its median there, in the
+    // second's column, is 2.75 (the adverse scenario keeps it anywhere in [1, 3]).
+    let r = h.state().second.as_ref().unwrap().results.clone().unwrap();
+    let view = r.series.iter().find(|s| s.name == "policy_rate").unwrap();
+    assert!((view.conditional[3].q[3] - 2.75).abs() < 1e-9);
+    assert!(h.query_all_by_label("2.75").count() >= 1);
     h.get_by_label("stop comparing").click();
     h.run_steps(2);
     assert!(h.state().second.is_none());
@@ -1026,5 +1030,5 @@ fn the_window_exports_the_briefing_pack() {
         h.state().notice
     );
     assert!(target.join("briefing.html").is_file());
-    assert!(target.join("charts").join("unemployment.png").is_file());
+    assert!(target.join("charts").join("03-unemployment.png").is_file());
 }

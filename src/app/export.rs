@@ -28,16 +28,36 @@ impl Export {
     ) -> Export {
         let (tx, answer) = channel();
         let to = dir.clone();
-        std::thread::spawn(move || {
-            let _ = tx.send(pack(&to, file, &path, second));
-            wake();
-        });
+        let started = std::thread::Builder::new()
+            .name("briefing pack".into())
+            .spawn(move || {
+                // A panic is an answer too: the window must not wait for ever.
+                let result = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
+                    pack(&to, file, &path, second)
+                }))
+                .unwrap_or_else(|_| {
+                    Err("an internal error stopped it; nothing else changed".into())
+                });
+                let _ = tx.send(result);
+                wake();
+            });
+        if let Err(e) = started {
+            let (tx, rx) = channel();
+            let _ = tx.send(Err(format!("cannot start it: {e}")));
+            return Export { dir, answer: rx };
+        }
         Export { dir, answer }
     }
 
-    /// The answer, once it has come.
+    /// The answer, once it has come (a thread that vanished without one is an error).
     pub fn done(&self) -> Option<Result<String, String>> {
-        self.answer.try_recv().ok()
+        match self.answer.try_recv() {
+            Ok(answer) => Some(answer),
+            Err(std::sync::mpsc::TryRecvError::Empty) => None,
+            Err(std::sync::mpsc::TryRecvError::Disconnected) => {
+                Some(Err("it stopped without a word".into()))
+            }
+        }
     }
 }
 

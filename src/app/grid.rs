@@ -209,7 +209,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
                             .then(|| {
                                 app.second
                                     .as_ref()
-                                    .and_then(|s| s.results.as_ref())
+                                    .and_then(|s| s.comparable(&results))
                                     .and_then(|r| r.series.iter().find(|v| v.name == view.name))
                             })
                             .flatten(),

@@ -271,13 +271,37 @@ impl TiltyardApp {
             ));
             return;
         }
-        self.second = Some(second::Second::start(path, file, self.wake.clone()));
+        if file.horizon != self.doc.file.horizon {
+            self.notice = Some(format!(
+                "cannot compare with {}: its horizon is {} periods, this scenario's {}",
+                path.display(),
+                file.horizon,
+                self.doc.file.horizon
+            ));
+            return;
+        }
+        self.second = Some(second::Second::start(
+            path,
+            file,
+            &self.doc.file,
+            self.wake.clone(),
+        ));
     }
 
     /// Take the worker's messages for the newest job, within a time budget.
     fn drain(&mut self) {
         if let Some(s) = &mut self.second {
             s.drain();
+            // Shown in this scenario's units: start it again when they change.
+            if s.units_differ(&self.doc.file) {
+                let (path, file) = (s.path.clone(), s.file.clone());
+                self.second = Some(second::Second::start(
+                    path,
+                    file,
+                    &self.doc.file,
+                    self.wake.clone(),
+                ));
+            }
         }
         if let Some(answer) = self.export.as_ref().and_then(|e| e.done()) {
             self.export = None;
@@ -777,6 +801,10 @@ impl TiltyardApp {
         self.selected = None;
         self.enlarged = None;
         self.results = None;
+        self.sources = None;
+        self.effects = None;
+        self.second = None;
+        self.pane = grid::Pane::Charts;
         self.checks = None;
         self.notice = None;
         self.charts.clear();

@@ -10,25 +10,34 @@ use super::worker::Results;
 /// The table as CSV text (what is copied and saved), ending with the caution as a `#`
 /// comment line.
 pub fn csv_text(results: &Results) -> String {
-    let mut out = String::from(
-        "series,units,period,conditional_median,conditional_q25,conditional_q75,conditional_q05,conditional_q95,unconditional_median\n",
-    );
+    // Through the CSV writer, so that a series name with a comma or a quote stays one field.
+    let mut w = csv::Writer::from_writer(Vec::new());
+    let _ = w.write_record([
+        "series",
+        "units",
+        "period",
+        "conditional_median",
+        "conditional_q25",
+        "conditional_q75",
+        "conditional_q05",
+        "conditional_q95",
+        "unconditional_median",
+    ]);
     for view in &results.series {
         for (c, u) in view.conditional.iter().zip(&view.unconditional) {
-            out.push_str(&format!(
-                "{},{},{},{},{},{},{},{},{}\n",
-                view.name,
+            let mut rec = vec![
+                view.name.clone(),
                 view.units.label(),
-                results.label(c.x).unwrap_or(""),
-                c.q[3],
-                c.q[2],
-                c.q[4],
-                c.q[0],
-                c.q[6],
-                u.q[3]
-            ));
+                results.label(c.x).unwrap_or("").to_string(),
+            ];
+            rec.extend([c.q[3], c.q[2], c.q[4], c.q[0], c.q[6], u.q[3]].map(|v| v.to_string()));
+            let _ = w.write_record(&rec);
         }
     }
+    let mut out = w
+        .into_inner()
+        .map(|bytes| String::from_utf8_lossy(&bytes).into_owned())
+        .unwrap_or_default();
     out.push_str(&format!("# {}\n", crate::report::CAUTION));
     out
 }

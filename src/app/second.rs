@@ -19,6 +19,8 @@ use crate::scenario::ScenarioFile;
 pub struct Second {
     pub path: PathBuf,
     pub file: ScenarioFile,
+    /// The file as sampled: in the document's display units.
+    shown: ScenarioFile,
     pub results: Option<Arc<Results>>,
     pub state: EngineState,
     pub error: Option<String>,
@@ -29,29 +31,61 @@ pub struct Second {
 }
 
 impl Second {
-    /// Start sampling the scenario in `file` on a worker of its own.
-    pub fn start(path: PathBuf, file: ScenarioFile, wake: Arc<dyn Fn() + Send + Sync>) -> Second {
+    /// Start sampling the scenario in `file` on a worker of its own, its series shown in the
+    /// display units of `shown_as` (the document), so that both read alike.
+    pub fn start(
+        path: PathBuf,
+        file: ScenarioFile,
+        shown_as: &ScenarioFile,
+        wake: Arc<dyn Fn() + Send + Sync>,
+    ) -> Second {
+        let mut job_file = file.clone();
+        for (s, d) in job_file.series.iter_mut().zip(&shown_as.series) {
+            s.display = d.display;
+        }
         let (jobs, job_rx) = channel();
         let (tx, messages) = channel();
-        let wake_worker = wake.clone();
-        std::thread::spawn(move || worker::run(job_rx, tx, move || wake_worker()));
         let cancel = Arc::new(AtomicBool::new(false));
-        let _ = jobs.send(Job {
-            generation: 1,
-            file: file.clone(),
-            path: path.clone(),
-            cancel: cancel.clone(),
-        });
+        let started = std::thread::Builder::new()
+            .name("second scenario".into())
+            .spawn(move || worker::run(job_rx, tx, move || wake()));
+        let error = match started {
+            Ok(_) => {
+                let _ = jobs.send(Job {
+                    generation: 1,
+                    file: job_file.clone(),
+                    path: path.clone(),
+                    cancel: cancel.clone(),
+                });
+                None
+            }
+            Err(e) => Some(format!("cannot start its engine: {e}")),
+        };
         Second {
             path,
             file,
+            shown: job_file,
             results: None,
             state: EngineState::Idle,
-            error: None,
+            error,
             messages,
             _jobs: jobs,
             cancel,
         }
+    }
+
+    /// True when the document's display units are no longer those this was drawn in.
+    pub fn units_differ(&self, doc: &ScenarioFile) -> bool {
+        self.shown
+            .series
+            .iter()
+            .zip(&doc.series)
+            .any(|(a, b)| a.display != b.display)
+    }
+
+    /// Its fans, when they are on the same periods as the document's `own`.
+    pub fn comparable(&self, own: &Results) -> Option<&Arc<Results>> {
+        self.results.as_ref().filter(|r| r.last == own.last)
     }
 
     /// Take what the worker said.
@@ -92,7 +126,14 @@ pub fn panel(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
             stop = true;
         }
     });
+    let other_periods = match (&second.results, &app.results) {
+        (Some(r), Some(own)) => r.last != own.last,
+        _ => false,
+    };
     let state = match (&second.error, &second.state) {
+        (None, _) if other_periods => {
+            "its data end in another period: nothing to compare period by period".into()
+        }
         (Some(e), _) => format!("cannot sample it: {e}"),
         (None, EngineState::Clashing) => "its conditions clash: nothing to compare".into(),
         (None, EngineState::Done { draws, .. }) => format!("{draws} posterior draws"),
@@ -122,7 +163,7 @@ pub fn table(ui: &mut egui::Ui, app: &TiltyardApp, pal: &Palette) {
     let (Some(second), Some(first)) = (&app.second, &app.results) else {
         return;
     };
-    let Some(other) = &second.results else {
+    let Some(other) = second.comparable(first) else {
         ui.label(RichText::new("The second scenario's fans are on their way.").color(pal.muted));
         return;
     };

@@ -233,7 +233,7 @@ fn effects(ui: &mut egui::Ui, app: &TiltyardApp, i: usize, labels: &[String], pa
         return;
     };
     let mut note = format!(
-        "How the median moves without each condition, the others kept (the first {} posterior draws, with the same draws and shocks either way). These effects need not add up: conditions interact.",
+        "How the median moves without each condition, the others kept (on the first {} posterior draws, or up to 1,000 paths of fixed coefficients, with the same draws and shocks either way). These effects need not add up: conditions interact.",
         crate::attribution::leave_one_out::DRAWS
     );
     if *generation != app.generation() {

@@ -550,10 +550,10 @@ fn effects(
     if conditions.pins.is_empty() && conditions.corridors.is_empty() {
         return Ok(());
     }
-    match leave_one_out(setup, set, conditions, how, &job.cancel) {
-        Ok(e) => send(Message::LeaveOneOut(job.generation, Arc::new(e))),
-        Err(crate::forecast::ForecastError::Cancelled) => {}
-        Err(e) => return Err(e.to_string()),
+    // An extra after the job is done: it never turns the job into a failure (every effect
+    // carries its own error; a cancelled one just stops).
+    if let Ok(e) = leave_one_out(setup, set, conditions, how, &job.cancel) {
+        send(Message::LeaveOneOut(job.generation, Arc::new(e)));
     }
     Ok(())
 }

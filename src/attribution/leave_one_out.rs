@@ -36,6 +36,11 @@ pub fn leave_one_out(
     cancel: &AtomicBool,
 ) -> Result<Vec<Effect>, ForecastError> {
     let count = set.thetas.len().min(DRAWS);
+    // Medians of equally weighted paths: no weights to estimate.
+    let how = Sampling {
+        reweight: false,
+        ..how
+    };
     let max_failed = setup.file.checks.max_failed_share;
     let medians = |cond: &Conditions| -> Result<Vec<Vec<f64>>, ForecastError> {
         let mut paths: PathSet = sample_paths(set, 0..count, cond, how, cancel)?;
@@ -52,9 +57,14 @@ pub fn leave_one_out(
             })
             .collect())
     };
-    let all = medians(conditions)?;
-    let mut out = Vec::new();
     let total = conditions.pins.len() + conditions.corridors.len();
+    // Without a measure of the whole scenario on these draws, every effect says why.
+    let all = match medians(conditions) {
+        Ok(all) => Ok(all),
+        Err(ForecastError::Cancelled) => return Err(ForecastError::Cancelled),
+        Err(e) => Err(e.to_string()),
+    };
+    let mut out = Vec::new();
     for k in 0..total {
         let mut without = conditions.clone();
         let (label, field) = if k < conditions.pins.len() {
@@ -64,14 +74,15 @@ pub fn leave_one_out(
             let c = without.corridors.remove(k - conditions.pins.len());
             (c.label, c.field)
         };
-        let shift = match medians(&without) {
-            Ok(m) => Ok(m
+        let shift = match (&all, medians(&without)) {
+            (_, Err(ForecastError::Cancelled)) => return Err(ForecastError::Cancelled),
+            (Err(why), _) => Err(format!("the scenario itself: {why}")),
+            (_, Err(e)) => Err(e.to_string()),
+            (Ok(all), Ok(m)) => Ok(m
                 .iter()
-                .zip(&all)
+                .zip(all)
                 .map(|(a, b)| a.iter().zip(b).map(|(x, y)| x - y).collect())
                 .collect()),
-            Err(ForecastError::Cancelled) => return Err(ForecastError::Cancelled),
-            Err(e) => Err(e.to_string()),
         };
         out.push(Effect {
             label,

@@ -92,6 +92,16 @@ fn base64(bytes: &[u8]) -> String {
 
 /// A probability in plain words: "about 1 in 190,000" (from its log10).
 pub fn one_in(log10_probability: f64) -> String {
+    if !log10_probability.is_finite() {
+        return if log10_probability == f64::NEG_INFINITY {
+            "too small to tell apart from 0".into()
+        } else {
+            "not measured".into()
+        };
+    }
+    if log10_probability < -15.0 {
+        return format!("about 1 in 10^{:.0}", -log10_probability);
+    }
     if log10_probability >= -0.3 {
         return format!("about {:.0}%", 100.0 * 10f64.powf(log10_probability));
     }
@@ -171,7 +181,7 @@ pub fn write_pack(
     let mut written = Vec::new();
     let mut figures = String::new();
     for i in 0..setup.n() {
-        let path = charts.join(format!("{}.png", file_name(&setup.names[i])));
+        let path = charts.join(format!("{:02}-{}.png", i + 1, file_name(&setup.names[i])));
         series_chart(&path, setup, &out.fans, i)?;
         figures.push_str(&figure(
             &path,
@@ -205,6 +215,12 @@ pub fn write_pack(
                 }
                 parts.push((format!("{} other shocks", rest.len()), sum));
             }
+            if let Some(p) = &a.parameters {
+                parts.push((
+                    "reweighting of the parameters".into(),
+                    series_part(a.n, &terms, p, i),
+                ));
+            }
             let bars: Vec<BarPart> = parts
                 .iter()
                 .map(|(name, values)| BarPart {
@@ -213,7 +229,11 @@ pub fn write_pack(
                 })
                 .collect();
             let total = series_part(a.n, &terms, &a.total, i);
-            let path = charts.join(format!("sources-{}.png", file_name(&setup.names[i])));
+            let path = charts.join(format!(
+                "{:02}-{}-sources.png",
+                i + 1,
+                file_name(&setup.names[i])
+            ));
             let title = format!(
                 "{}: conditional minus unconditional mean, by shock",
                 setup.names[i]
@@ -507,5 +527,7 @@ mod tests {
         assert_eq!(one_in(-5.28), "about 1 in 190,000");
         assert_eq!(one_in(-2.0), "about 1 in 100");
         assert_eq!(one_in(-0.1), "about 79%");
+        assert_eq!(one_in(-50.0), "about 1 in 10^50");
+        assert_eq!(one_in(f64::NAN), "not measured");
     }
 }
