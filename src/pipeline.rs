@@ -13,18 +13,22 @@
 //!    (the drivers' rank condition, near dependence and the corridor sampler's acceptance
 //!    change from draw to draw, ALGORITHMS §9.1 item 6);
 //! 5. paths ([`crate::forecast::sample_paths`]) over the posterior draws of [`Model::draw`],
-//!    block by block, then fans and attribution.
+//!    block by block, then fans and [`summarise`]: weights, the split of the mean shift and
+//!    the statistics.
 
 use std::sync::atomic::AtomicBool;
 
 use rayon::prelude::*;
 
+use crate::attribution::{Attribution, attribute};
 use crate::checks::{CheckReport, Finding, Severity, Status, check_conditions};
 use crate::forecast::{
-    Conditions, DrawSpec, ForecastError, ParamSource, Plan, Theta, ThetaSet, build_thetas,
+    Conditions, DrawSpec, ForecastError, ParamSource, PathSet, Plan, Theta, ThetaSet, build_thetas,
+    normalise, path_weights,
     random::{Purpose, stream},
 };
 use crate::model::FitSummary;
+use crate::report::{Stat, statistics};
 use crate::scenario::{ScenarioError, Setup};
 
 /// Posterior draws re-checked one by one (ALGORITHMS §9.1 item 6).
@@ -104,6 +108,60 @@ impl Model {
             cancel,
         )?)
     }
+}
+
+/// What the paths give besides the fans: their weights (when reweighting), the split of the
+/// mean shift, and the statistics people quote.
+#[derive(Debug, Clone)]
+pub struct Summaries {
+    /// Per path, normalised (reweighting only: each θ's weight shared by its paths).
+    pub weights: Option<Vec<f64>>,
+    /// With reweighting: the effective number of posterior draws (Kish).
+    pub effective_draws: Option<f64>,
+    /// The split by shock and by condition (none from a cross-check engine, which keeps no
+    /// parts).
+    pub attribution: Option<Attribution>,
+    pub statistics: Vec<Stat>,
+}
+
+/// The summaries of `paths`, drawn under `thetas` with `paths_per_theta` paths each. With
+/// reweighting the conditional side is weighted by the scenario's probability of each θ and
+/// the unconditional side keeps `p(θ | data)` (ALGORITHMS §8.4).
+pub fn summarise(
+    setup: &Setup,
+    thetas: &[Theta],
+    conditions: &Conditions,
+    paths: &PathSet,
+    paths_per_theta: usize,
+) -> Result<Summaries, ForecastError> {
+    let (weights, effective_draws) = match path_weights(&paths.log_weights, paths_per_theta) {
+        Some((w, ess)) if setup.file.reweight => (Some(w), Some(ess)),
+        _ => (None, None),
+    };
+    // The split averages θ by θ: each θ's weight is its paths' together.
+    let theta_weights = weights.as_ref().map(|_| normalise(&paths.log_weights).0);
+    let attribution = if paths.parts.is_empty() {
+        None
+    } else {
+        Some(attribute(
+            thetas,
+            conditions,
+            &paths.parts,
+            theta_weights.as_deref(),
+        )?)
+    };
+    let statistics = statistics(
+        setup,
+        &paths.conditional,
+        &paths.unconditional,
+        weights.as_deref(),
+    );
+    Ok(Summaries {
+        weights,
+        effective_draws,
+        attribution,
+        statistics,
+    })
 }
 
 /// Errors of the pipeline's model-level steps.

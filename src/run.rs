@@ -5,13 +5,15 @@
 use std::sync::atomic::AtomicBool;
 use std::time::{Duration, Instant};
 
-use crate::attribution::{Attribution, attribute};
+use crate::attribution::Attribution;
 use crate::checks::CheckReport;
 use crate::crosscheck::EngineKind;
-use crate::forecast::{ForecastError, PathSet, RootSummary, Sampling, path_weights, sample_paths};
+use crate::forecast::{ForecastError, PathSet, RootSummary, Sampling, sample_paths};
 use crate::model::FitSummary;
-use crate::pipeline::{Model, PipelineError, check_central, check_draws, read_conditions};
-use crate::report::{FanRow, Kind, Stat, check_text, displayable, fans, statistics};
+use crate::pipeline::{
+    Model, PipelineError, check_central, check_draws, read_conditions, summarise,
+};
+use crate::report::{FanRow, Kind, Stat, check_text, displayable, fans};
 use crate::scenario::{ModelSpec, ScenarioError, Setup};
 
 /// Every path must meet every pin to this relative error (ALGORITHMS §11.4).
@@ -125,37 +127,14 @@ pub fn run(setup: &mut Setup, options: &RunOptions) -> Result<RunOutcome, RunErr
     let mut paths = sample_paths(&set, 0..set.thetas.len(), &conditions, how, &cancel)?;
     paths.keep_only(|p| displayable(setup, p));
     let paths = paths.within(file.checks.max_failed_share)?;
-    // Reweighting: each θ's weight shared by its paths; the unconditional fans keep p(θ | data).
-    let (weights, effective_draws) = match path_weights(&paths.log_weights, paths_per_theta) {
-        Some((w, ess)) if file.reweight => (Some(w), Some(ess)),
-        _ => (None, None),
-    };
-    // The attribution averages θ by θ: each θ's weight is its paths' weights together.
-    let theta_weights = weights
-        .as_ref()
-        .map(|_| crate::forecast::normalise(&paths.log_weights).0);
-    let attribution = match options.engine {
-        EngineKind::Main => Some(attribute(
-            &set.thetas,
-            &conditions,
-            &paths.parts,
-            theta_weights.as_deref(),
-        )?),
-        _ => None,
-    };
+    let summaries = summarise(setup, &set.thetas, &conditions, &paths, paths_per_theta)?;
     let mut rows = fans(
         setup,
         &paths.conditional,
-        weights.as_deref(),
+        summaries.weights.as_deref(),
         Kind::Conditional,
     );
     rows.extend(fans(setup, &paths.unconditional, None, Kind::Unconditional));
-    let stats = statistics(
-        setup,
-        &paths.conditional,
-        &paths.unconditional,
-        weights.as_deref(),
-    );
     Ok(RunOutcome {
         fans: rows,
         posterior_draws: if model.is_fixed() {
@@ -168,10 +147,10 @@ pub fn run(setup: &mut Setup, options: &RunOptions) -> Result<RunOutcome, RunErr
         elapsed: start.elapsed(),
         paths,
         checks,
-        effective_draws,
+        effective_draws: summaries.effective_draws,
         engine: options.engine,
-        attribution,
-        summary: stats,
+        attribution: summaries.attribution,
+        summary: summaries.statistics,
     })
 }
 

@@ -12,10 +12,7 @@ use egui_plot::{Bar, BarChart, GridMark, Legend, Line, Plot};
 use super::TiltyardApp;
 use super::palette::Palette;
 use super::worker::Sources;
-use crate::report::attribution::series_part;
-
-/// Parts drawn one by one; the rest are summed into one bar ("other shocks").
-const SHOWN_PARTS: usize = 8;
+use crate::report::attribution::{PART_COLOURS, series_part, shock_parts};
 
 /// What the attribution view shows.
 #[derive(Debug, Clone, Default, PartialEq)]
@@ -26,23 +23,15 @@ pub struct SourcesView {
     pub by_condition: bool,
 }
 
-/// Colours of the parts, in order: the project's own qualitative set, readable on light and
-/// dark backgrounds.
-const PART_COLOURS: [Color32; 9] = [
-    Color32::from_rgb(46, 134, 171),
-    Color32::from_rgb(222, 143, 5),
-    Color32::from_rgb(2, 158, 115),
-    Color32::from_rgb(213, 94, 0),
-    Color32::from_rgb(204, 120, 188),
-    Color32::from_rgb(118, 104, 188),
-    Color32::from_rgb(160, 160, 60),
-    Color32::from_rgb(86, 180, 233),
-    Color32::from_rgb(140, 86, 75),
-];
+/// The colour of the `k`-th part of a chart ([`PART_COLOURS`]).
+fn part_colour(k: usize) -> Color32 {
+    let (r, g, b) = PART_COLOURS[k % PART_COLOURS.len()];
+    Color32::from_rgb(r, g, b)
+}
 
 /// The colour of the `k`-th condition (pins first, then corridors), also used in the table.
 pub fn condition_colour(k: usize) -> Color32 {
-    PART_COLOURS[k % PART_COLOURS.len()]
+    part_colour(k)
 }
 
 /// The colour of a condition in the split by condition, when that split is on show.
@@ -76,8 +65,8 @@ struct Part {
     colour: Color32,
 }
 
-/// The parts of series `i`, largest first (by their mean absolute size), the smallest summed
-/// into one part when there are more than [`SHOWN_PARTS`].
+/// The parts of series `i`: by shock as [`shock_parts`] gives them, or by condition in the
+/// scenario's order (pins, then corridors).
 fn parts(
     sources: &Sources,
     names: &[String],
@@ -87,50 +76,28 @@ fn parts(
 ) -> Vec<Part> {
     let a = &sources.attribution;
     let terms = &sources.units[i].0;
-    let mut list: Vec<Part> = if by_condition {
-        a.conditions
-            .iter()
-            .zip(&a.by_condition)
+    if !by_condition {
+        return shock_parts(a, names, terms, i)
+            .into_iter()
             .enumerate()
-            .map(|(k, ((label, _), part))| Part {
-                name: label.clone(),
-                values: series_part(a.n, terms, part, i),
-                colour: condition_colour(k),
-            })
-            .collect()
-    } else {
-        let mut shocks: Vec<Part> = a
-            .by_shock
-            .iter()
-            .enumerate()
-            .map(|(j, part)| Part {
-                name: format!("{} shock", names[j]),
-                values: series_part(a.n, terms, part, i),
-                colour: Color32::TRANSPARENT,
+            .map(|(k, p)| Part {
+                colour: if p.rest { pal.muted } else { part_colour(k) },
+                name: p.name,
+                values: p.values,
             })
             .collect();
-        let size = |p: &Part| p.values.iter().map(|v| v.abs()).sum::<f64>();
-        shocks.retain(|p| size(p) > 0.0);
-        shocks.sort_by(|x, y| size(y).total_cmp(&size(x)));
-        if shocks.len() > SHOWN_PARTS {
-            let rest = shocks.split_off(SHOWN_PARTS - 1);
-            let mut other = vec![0.0; rest[0].values.len()];
-            for p in &rest {
-                other.iter_mut().zip(&p.values).for_each(|(o, v)| *o += v);
-            }
-            shocks.push(Part {
-                name: format!("{} other shocks", rest.len()),
-                values: other,
-                colour: pal.muted,
-            });
-        }
-        for (k, p) in shocks.iter_mut().enumerate() {
-            if p.colour == Color32::TRANSPARENT {
-                p.colour = PART_COLOURS[k % PART_COLOURS.len()];
-            }
-        }
-        shocks
-    };
+    }
+    let mut list: Vec<Part> = a
+        .conditions
+        .iter()
+        .zip(&a.by_condition)
+        .enumerate()
+        .map(|(k, ((label, _), part))| Part {
+            name: label.clone(),
+            values: series_part(a.n, terms, part, i),
+            colour: condition_colour(k),
+        })
+        .collect();
     if let Some(p) = &a.parameters {
         list.push(Part {
             name: "reweighting of the parameters".into(),

@@ -15,8 +15,8 @@ use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::mpsc::{Receiver, Sender};
 use std::time::Instant;
 
+use crate::attribution::Attribution;
 use crate::attribution::leave_one_out::{Effect, leave_one_out};
-use crate::attribution::{Attribution, attribute};
 use crate::checks::CheckReport;
 use crate::dataset::Period;
 use crate::forecast::{
@@ -154,20 +154,19 @@ pub struct Sources {
 }
 
 impl Sources {
-    /// The split of `paths`' mean shift, and their statistics (weighted by `weights`).
+    /// The split and the statistics of a job's paths, drawn under `thetas`
+    /// ([`crate::pipeline::summarise`]); `None` without a split (no paths kept).
     fn new(
         setup: &Setup,
-        attribution: Attribution,
+        thetas: &[Theta],
+        conditions: &Conditions,
         paths: &PathSet,
-        weights: Option<&[f64]>,
-    ) -> Sources {
-        Sources {
-            statistics: crate::report::statistics(
-                setup,
-                &paths.conditional,
-                &paths.unconditional,
-                weights,
-            ),
+        paths_per_theta: usize,
+    ) -> Result<Option<Sources>, String> {
+        let s = crate::pipeline::summarise(setup, thetas, conditions, paths, paths_per_theta)
+            .map_err(text)?;
+        Ok(s.attribution.map(|attribution| Sources {
+            statistics: s.statistics,
             units: (0..setup.n())
                 .map(|i| crate::report::attribution::linear_units(setup, i))
                 .collect(),
@@ -177,7 +176,7 @@ impl Sources {
                 .map(|&i| setup.names[i].clone())
                 .collect(),
             attribution,
-        }
+        }))
     }
 }
 
@@ -341,9 +340,10 @@ fn process(
                 publish(model, &paths, false).map_err(text)?;
             }
             let central = std::slice::from_ref(&model.model.central);
-            let split = attribute(central, &conditions, &paths.parts, None).map_err(text)?;
-            let sources = Sources::new(&setup, split, &paths, None);
-            send(Message::Sources(g, Arc::new(sources)));
+            let count = paths.attempted;
+            if let Some(sources) = Sources::new(&setup, central, &conditions, &paths, count)? {
+                send(Message::Sources(g, Arc::new(sources)));
+            }
             send(Message::State(
                 g,
                 EngineState::Done {
@@ -512,14 +512,10 @@ fn posterior(
     let all = all.within(file.checks.max_failed_share).map_err(text)?;
     // The attribution weights each draw as the fans do (by the scenario's probability when
     // reweighting).
-    let weights = (file.reweight && all.log_weights.len() == all.parts.len())
-        .then(|| crate::forecast::normalise(&all.log_weights).0);
-    let split = attribute(&set.thetas, conditions, &all.parts, weights.as_deref()).map_err(text)?;
-    let path_weights = crate::forecast::path_weights(&all.log_weights, file.paths_per_draw)
-        .filter(|_| file.reweight)
-        .map(|(w, _)| w);
-    let sources = Sources::new(setup, split, &all, path_weights.as_deref());
-    send(Message::Sources(g, Arc::new(sources)));
+    if let Some(sources) = Sources::new(setup, &set.thetas, conditions, &all, file.paths_per_draw)?
+    {
+        send(Message::Sources(g, Arc::new(sources)));
+    }
     send(Message::State(
         g,
         EngineState::Done {

@@ -106,3 +106,74 @@ pub fn write_attribution(path: &Path, setup: &Setup, a: &Attribution) -> Result<
         error,
     })
 }
+
+/// Parts drawn one by one in a chart of the split by shock; the rest are summed into one.
+pub const SHOWN_PARTS: usize = 8;
+
+/// Colours of the parts, in order (RGB): the project's own qualitative set, readable on light
+/// and dark backgrounds; the window and the pack's charts both use it.
+pub const PART_COLOURS: [(u8, u8, u8); 9] = [
+    (46, 134, 171),
+    (222, 143, 5),
+    (2, 158, 115),
+    (213, 94, 0),
+    (204, 120, 188),
+    (118, 104, 188),
+    (160, 160, 60),
+    (86, 180, 233),
+    (140, 86, 75),
+];
+
+/// One part of a series' split as charts show it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ShownPart {
+    pub name: String,
+    pub values: Vec<f64>,
+    /// The sum of the smaller shocks, or the parameters' part (drawn muted).
+    pub rest: bool,
+}
+
+/// Series `i`'s split by shock for a chart, in its linear units (`terms`): the shocks that
+/// move it, largest first (by their sum of absolute parts); beyond [`SHOWN_PARTS`] the smallest
+/// summed into one part; then, with reweighting, the parameters' part. The parts add up to
+/// the total.
+pub fn shock_parts(
+    a: &Attribution,
+    names: &[String],
+    terms: &[(usize, f64)],
+    i: usize,
+) -> Vec<ShownPart> {
+    let size = |v: &[f64]| v.iter().map(|x| x.abs()).sum::<f64>();
+    let mut parts: Vec<ShownPart> = a
+        .by_shock
+        .iter()
+        .enumerate()
+        .map(|(j, p)| ShownPart {
+            name: format!("{} shock", names[j]),
+            values: series_part(a.n, terms, p, i),
+            rest: false,
+        })
+        .filter(|p| size(&p.values) > 0.0)
+        .collect();
+    parts.sort_by(|x, y| size(&y.values).total_cmp(&size(&x.values)));
+    if parts.len() > SHOWN_PARTS {
+        let rest = parts.split_off(SHOWN_PARTS - 1);
+        let mut sum = vec![0.0; rest[0].values.len()];
+        for p in &rest {
+            sum.iter_mut().zip(&p.values).for_each(|(s, x)| *s += x);
+        }
+        parts.push(ShownPart {
+            name: format!("{} other shocks", rest.len()),
+            values: sum,
+            rest: true,
+        });
+    }
+    if let Some(p) = &a.parameters {
+        parts.push(ShownPart {
+            name: "reweighting of the parameters".into(),
+            values: series_part(a.n, terms, p, i),
+            rest: true,
+        });
+    }
+    parts
+}

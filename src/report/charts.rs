@@ -10,7 +10,7 @@ use plotters::prelude::*;
 use plotters::style::FontStyle;
 
 use super::fans::FanRow;
-use super::{Kind, ReportError};
+use super::{Kind, ReportError, replace_with};
 use crate::scenario::units::display_value;
 use crate::scenario::{Bound, Setup};
 
@@ -25,19 +25,6 @@ const MUTED: RGBColor = RGBColor(150, 142, 130);
 const HISTORY: RGBColor = RGBColor(55, 55, 58);
 const PIN: RGBColor = RGBColor(214, 118, 30);
 const CORRIDOR: RGBColor = RGBColor(112, 80, 170);
-/// The parts of an attribution chart, in order (the window's set).
-const PARTS: [RGBColor; 9] = [
-    RGBColor(46, 134, 171),
-    RGBColor(222, 143, 5),
-    RGBColor(2, 158, 115),
-    RGBColor(213, 94, 0),
-    RGBColor(204, 120, 188),
-    RGBColor(118, 104, 188),
-    RGBColor(160, 160, 60),
-    RGBColor(86, 180, 233),
-    RGBColor(140, 86, 75),
-];
-
 /// The charts' font, from the window's own (embedded: no font needs to be installed).
 fn font() {
     static ONCE: Once = Once::new();
@@ -55,28 +42,6 @@ fn drawing<E: std::fmt::Display>(path: &Path) -> impl Fn(E) -> ReportError + '_ 
         path: path.to_path_buf(),
         error: std::io::Error::other(e.to_string()),
     }
-}
-
-/// Draw into a temporary PNG beside `path`, then rename it over `path`.
-fn atomically(
-    path: &Path,
-    draw: impl FnOnce(&Path) -> Result<(), ReportError>,
-) -> Result<(), ReportError> {
-    let name = path
-        .file_name()
-        .map(|n| n.to_string_lossy().into_owned())
-        .unwrap_or_default();
-    let tmp = path.with_file_name(format!(".{name}.{}.tmp.png", std::process::id()));
-    let result = draw(&tmp).and_then(|_| {
-        std::fs::rename(&tmp, path).map_err(|error| ReportError::Io {
-            path: path.to_path_buf(),
-            error,
-        })
-    });
-    if result.is_err() {
-        let _ = std::fs::remove_file(&tmp);
-    }
-    result
 }
 
 /// The label of horizon `t` (0: the last observation).
@@ -167,7 +132,7 @@ pub fn series_chart(
     } else {
         (-1.0, 1.0)
     };
-    atomically(path, |tmp| {
+    replace_with(path, |tmp| {
         let err = drawing(tmp);
         let root = BitMapBackend::new(tmp, (WIDTH, HEIGHT)).into_drawing_area();
         root.fill(&WHITE).map_err(&err)?;
@@ -331,7 +296,7 @@ pub fn stacked_chart(
     let hi = up.iter().chain(total).fold(0.0f64, |m, v| m.max(*v));
     let lo = down.iter().chain(total).fold(0.0f64, |m, v| m.min(*v));
     let pad = ((hi - lo) * 0.1).max(1e-6);
-    atomically(path, |tmp| {
+    replace_with(path, |tmp| {
         let err = drawing(tmp);
         let root = BitMapBackend::new(tmp, (WIDTH, HEIGHT)).into_drawing_area();
         root.fill(&WHITE).map_err(&err)?;
@@ -364,7 +329,9 @@ pub fn stacked_chart(
         let mut base_up = vec![0.0f64; h];
         let mut base_down = vec![0.0f64; h];
         for (k, p) in parts.iter().enumerate() {
-            let colour = PARTS[k % PARTS.len()];
+            let (r, g, b) =
+                super::attribution::PART_COLOURS[k % super::attribution::PART_COLOURS.len()];
+            let colour = RGBColor(r, g, b);
             let bars: Vec<Rectangle<(f64, f64)>> = p
                 .values
                 .iter()

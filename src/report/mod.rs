@@ -105,27 +105,51 @@ pub fn write_draws(path: &Path, setup: &Setup, paths: &[Vec<f64>]) -> Result<(),
     })
 }
 
-/// Write `bytes` to `path` atomically: a temporary file beside it, synced, then renamed over
-/// it, so a reader never sees a half-written file and a failed write leaves the old one.
-pub fn write_atomic(path: &Path, bytes: &[u8]) -> std::io::Result<()> {
-    use std::io::Write;
-    let dir = path.parent().filter(|d| !d.as_os_str().is_empty());
-    let dir = dir.unwrap_or(Path::new("."));
+/// Make `path` anew atomically: `write` fills a temporary file beside it (with the same
+/// extension, which some writers read), which is synced to disk and renamed over `path`; a
+/// reader never sees a half-written file, and a failure leaves the old one in place.
+pub fn replace_with(
+    path: &Path,
+    write: impl FnOnce(&Path) -> Result<(), ReportError>,
+) -> Result<(), ReportError> {
+    let io = |error| ReportError::Io {
+        path: path.to_path_buf(),
+        error,
+    };
     let name = path
         .file_name()
         .map(|n| n.to_string_lossy().into_owned())
         .unwrap_or_else(|| "output".into());
-    let tmp = dir.join(format!(".{name}.{}.tmp", std::process::id()));
-    let result = (|| {
-        let mut f = std::fs::File::create(&tmp)?;
-        f.write_all(bytes)?;
-        f.sync_all()?;
-        std::fs::rename(&tmp, path)
-    })();
+    let extension = path
+        .extension()
+        .map(|e| format!(".{}", e.to_string_lossy()))
+        .unwrap_or_default();
+    let tmp = path.with_file_name(format!(".{name}.{}.tmp{extension}", std::process::id()));
+    let result = write(&tmp)
+        .and_then(|_| {
+            std::fs::File::open(&tmp)
+                .and_then(|f| f.sync_all())
+                .map_err(io)
+        })
+        .and_then(|_| std::fs::rename(&tmp, path).map_err(io));
     if result.is_err() {
         let _ = std::fs::remove_file(&tmp);
     }
     result
+}
+
+/// Write `bytes` to `path` atomically ([`replace_with`]).
+pub fn write_atomic(path: &Path, bytes: &[u8]) -> std::io::Result<()> {
+    replace_with(path, |tmp| {
+        std::fs::write(tmp, bytes).map_err(|error| ReportError::Io {
+            path: tmp.to_path_buf(),
+            error,
+        })
+    })
+    .map_err(|e| match e {
+        ReportError::Io { error, .. } => error,
+        other => std::io::Error::other(other.to_string()),
+    })
 }
 
 /// `about.txt`: the run summary and the caution.

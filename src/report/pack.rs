@@ -9,43 +9,23 @@
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 
-use super::attribution::{linear_units, series_part};
+use super::attribution::{linear_units, series_part, shock_parts};
 use super::charts::{BarPart, series_chart, stacked_chart};
 use super::summary::StatKind;
 use super::{
-    CAUTION, ReportError, write_atomic, write_attribution, write_checks_json, write_fans,
-    write_summary,
+    CAUTION, ReportError, replace_with, write_atomic, write_attribution, write_checks_json,
+    write_fans, write_summary,
 };
 use crate::checks::{Severity, Status};
 use crate::compare::{Change, Comparison, write_compare};
 use crate::run::{RunOutcome, summary};
 use crate::scenario::{Bound, CorridorSpec, PinSpec, Setup};
 
-/// Parts drawn one by one in an attribution chart; the rest are summed.
-const SHOWN_PARTS: usize = 8;
-
 fn io(path: &Path) -> impl Fn(std::io::Error) -> ReportError + '_ {
     move |error| ReportError::Io {
         path: path.to_path_buf(),
         error,
     }
-}
-
-/// Write a table through `write` into a temporary file beside `path`, then rename it.
-fn table(
-    path: &Path,
-    write: impl FnOnce(&Path) -> Result<(), ReportError>,
-) -> Result<(), ReportError> {
-    let name = path
-        .file_name()
-        .map(|n| n.to_string_lossy().into_owned())
-        .unwrap_or_default();
-    let tmp = path.with_file_name(format!(".{name}.{}.tmp", std::process::id()));
-    let result = write(&tmp).and_then(|_| std::fs::rename(&tmp, path).map_err(io(path)));
-    if result.is_err() {
-        let _ = std::fs::remove_file(&tmp);
-    }
-    result
 }
 
 /// A file name for a series (letters, digits, `-` and `_` kept).
@@ -193,39 +173,12 @@ pub fn write_pack(
     if let Some(a) = &out.attribution {
         for i in conditioned(setup) {
             let (terms, units) = linear_units(setup, i);
-            let mut parts: Vec<(String, Vec<f64>)> = a
-                .by_shock
-                .iter()
-                .enumerate()
-                .map(|(j, p)| {
-                    (
-                        format!("{} shock", setup.names[j]),
-                        series_part(a.n, &terms, p, i),
-                    )
-                })
-                .filter(|(_, v)| v.iter().any(|x| *x != 0.0))
-                .collect();
-            let size = |v: &[f64]| v.iter().map(|x| x.abs()).sum::<f64>();
-            parts.sort_by(|x, y| size(&y.1).total_cmp(&size(&x.1)));
-            if parts.len() > SHOWN_PARTS {
-                let rest = parts.split_off(SHOWN_PARTS - 1);
-                let mut sum = vec![0.0; rest[0].1.len()];
-                for (_, v) in &rest {
-                    sum.iter_mut().zip(v).for_each(|(s, x)| *s += x);
-                }
-                parts.push((format!("{} other shocks", rest.len()), sum));
-            }
-            if let Some(p) = &a.parameters {
-                parts.push((
-                    "reweighting of the parameters".into(),
-                    series_part(a.n, &terms, p, i),
-                ));
-            }
+            let parts = shock_parts(a, &setup.names, &terms, i);
             let bars: Vec<BarPart> = parts
                 .iter()
-                .map(|(name, values)| BarPart {
-                    name,
-                    values: values.clone(),
+                .map(|p| BarPart {
+                    name: &p.name,
+                    values: p.values.clone(),
                 })
                 .collect();
             let total = series_part(a.n, &terms, &a.total, i);
@@ -244,25 +197,25 @@ pub fn write_pack(
         }
     }
     let fans = dir.join("fans.csv");
-    table(&fans, |p| write_fans(p, &out.fans))?;
+    replace_with(&fans, |p| write_fans(p, &out.fans))?;
     written.push(fans);
     let stats = dir.join("summary.csv");
-    table(&stats, |p| write_summary(p, &out.summary))?;
+    replace_with(&stats, |p| write_summary(p, &out.summary))?;
     written.push(stats);
     if let Some(a) = &out.attribution {
         let path = dir.join("attribution.csv");
-        table(&path, |p| write_attribution(p, setup, a))?;
+        replace_with(&path, |p| write_attribution(p, setup, a))?;
         written.push(path);
     }
     let checks = dir.join("checks.json");
-    table(&checks, |p| write_checks_json(p, &out.checks))?;
+    replace_with(&checks, |p| write_checks_json(p, &out.checks))?;
     written.push(checks);
     if let Some(c) = compared {
         let path = dir.join("compare.csv");
-        table(&path, |p| write_compare(p, c))?;
+        replace_with(&path, |p| write_compare(p, c))?;
         written.push(path);
         let path = dir.join("compare-summary.csv");
-        table(&path, |p| write_summary(p, &c.statistics))?;
+        replace_with(&path, |p| write_summary(p, &c.statistics))?;
         written.push(path);
     }
     let html = dir.join("briefing.html");
