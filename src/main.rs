@@ -414,7 +414,7 @@ fn export_command(
         }
     };
     let written = pool.install(|| {
-        tiltyard::report::pack::write_pack(&out, &setup, &outcome, comparison.as_ref())
+        tiltyard::report::pack::write_pack(&out, &setup, &outcome, comparison.as_ref(), &|_| {})
     })?;
     println!("scenario   {} ({})", setup.file.name, scenario.display());
     println!(

@@ -936,6 +936,9 @@ fn a_second_scenario_is_compared_in_the_window() {
     h.run_steps(2);
     assert_eq!(h.state().pane, tiltyard::app::grid::Pane::Difference);
     h.get_by_label("second: median").hover();
+    // Both scenarios' statistics side by side.
+    h.get_by_label("this one").hover();
+    assert!(h.state().second.as_ref().unwrap().sources.is_some());
     // The baseline pins the policy rate at 2.75 in 2026Q4: its median there, in the
     // second's column, is 2.75 (the adverse scenario keeps it anywhere in [1, 3]).
     let r = h.state().second.as_ref().unwrap().results.clone().unwrap();

@@ -303,7 +303,7 @@ impl TiltyardApp {
                 ));
             }
         }
-        if let Some(answer) = self.export.as_ref().and_then(|e| e.done()) {
+        if let Some(answer) = self.export.as_mut().and_then(|e| e.done()) {
             self.export = None;
             self.notice = Some(match answer {
                 Ok(text) => text,

@@ -215,8 +215,12 @@ fn footer(ui: &mut egui::Ui, app: &TiltyardApp, pal: &Palette) {
         }
         if let Some(e) = &app.export {
             ui.label(
-                RichText::new(format!("writing the briefing pack in {}…", e.dir.display()))
-                    .color(pal.second),
+                RichText::new(format!(
+                    "briefing pack in {}: {}…",
+                    e.dir.display(),
+                    e.stage
+                ))
+                .color(pal.second),
             );
             ui.separator();
         }

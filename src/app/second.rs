@@ -22,6 +22,8 @@ pub struct Second {
     /// The file as sampled: in the document's display units.
     shown: ScenarioFile,
     pub results: Option<Arc<Results>>,
+    /// Its split and statistics, once all its draws are in.
+    pub sources: Option<Arc<super::worker::Sources>>,
     pub state: EngineState,
     pub error: Option<String>,
     messages: Receiver<Message>,
@@ -66,6 +68,7 @@ impl Second {
             file,
             shown: job_file,
             results: None,
+            sources: None,
             state: EngineState::Idle,
             error,
             messages,
@@ -93,6 +96,7 @@ impl Second {
         while let Ok(m) = self.messages.try_recv() {
             match m {
                 Message::Results(_, r) => self.results = Some(r),
+                Message::Sources(_, s) => self.sources = Some(s),
                 Message::State(_, s) => self.state = s,
                 Message::Failed(_, e) => self.error = Some(e),
                 _ => {}
@@ -179,6 +183,11 @@ pub fn table(ui: &mut egui::Ui, app: &TiltyardApp, pal: &Palette) {
     egui::ScrollArea::both()
         .id_salt("difference table")
         .show(ui, |ui| {
+            if let (Some((_, mine)), Some(theirs)) = (&app.sources, &second.sources) {
+                statistics(ui, &mine.statistics, &theirs.statistics, pal);
+                ui.add_space(10.0);
+                ui.strong("By period");
+            }
             egui::Grid::new("difference grid")
                 .striped(true)
                 .min_col_width(60.0)
@@ -211,5 +220,55 @@ pub fn table(ui: &mut egui::Ui, app: &TiltyardApp, pal: &Palette) {
                         }
                     }
                 });
+        });
+}
+
+/// The statistics people quote in both scenarios: medians with their 90% bands, and the
+/// difference of the medians (second minus this one).
+fn statistics(
+    ui: &mut egui::Ui,
+    mine: &[crate::report::Stat],
+    theirs: &[crate::report::Stat],
+    pal: &Palette,
+) {
+    use crate::report::summary::StatKind;
+    ui.strong("Summary statistics");
+    egui::Grid::new("compared statistics")
+        .striped(true)
+        .min_col_width(56.0)
+        .show(ui, |ui| {
+            for head in [
+                "series",
+                "statistic",
+                "units",
+                "this one",
+                "second",
+                "difference",
+            ] {
+                ui.strong(head);
+            }
+            ui.end_row();
+            let band = |q: &[f64; 7]| format!("{:.2} ({:.2} … {:.2})", q[3], q[0], q[6]);
+            let shown = ["peak", "trough", "peak_to_trough", "cumulative_change"];
+            for a in mine.iter().filter(|s| {
+                s.kind == StatKind::Conditional && shown.contains(&s.statistic.as_str())
+            }) {
+                let Some(b) = theirs.iter().find(|s| {
+                    s.kind == StatKind::Conditional
+                        && s.series == a.series
+                        && s.statistic == a.statistic
+                }) else {
+                    continue;
+                };
+                ui.label(&a.series);
+                ui.label(a.statistic.replace('_', " "));
+                ui.label(RichText::new(&a.units).small().color(pal.muted));
+                ui.label(band(&a.quantiles));
+                ui.label(RichText::new(band(&b.quantiles)).color(pal.second));
+                let d = b.quantiles[3] - a.quantiles[3];
+                let d = if d.abs() < 0.005 { 0.0 } else { d };
+                ui.label(RichText::new(format!("{d:+.2}")).strong());
+                ui.end_row();
+            }
         });
 }

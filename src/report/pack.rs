@@ -150,17 +150,27 @@ pub fn corridor_words(c: &CorridorSpec) -> String {
 }
 
 /// The files of a pack, written into `dir`; returns them in the order written.
+/// `progress` hears what is being written ("chart 3 of 14").
 pub fn write_pack(
     dir: &Path,
     setup: &Setup,
     out: &RunOutcome,
     compared: Option<&Comparison>,
+    progress: &dyn Fn(&str),
 ) -> Result<Vec<PathBuf>, ReportError> {
     let charts = dir.join("charts");
     std::fs::create_dir_all(&charts).map_err(io(&charts))?;
     let mut written = Vec::new();
     let mut figures = String::new();
+    let conditioned = conditioned(setup);
+    let count = setup.n()
+        + if out.attribution.is_some() {
+            conditioned.len()
+        } else {
+            0
+        };
     for i in 0..setup.n() {
+        progress(&format!("chart {} of {count}", i + 1));
         let path = charts.join(format!("{:02}-{}.png", i + 1, file_name(&setup.names[i])));
         series_chart(&path, setup, &out.fans, i)?;
         figures.push_str(&figure(
@@ -171,7 +181,8 @@ pub fn write_pack(
     }
     let mut sources = String::new();
     if let Some(a) = &out.attribution {
-        for i in conditioned(setup) {
+        for (k, &i) in conditioned.iter().enumerate() {
+            progress(&format!("chart {} of {count}", setup.n() + k + 1));
             let (terms, units) = linear_units(setup, i);
             let parts = shock_parts(a, &setup.names, &terms, i);
             let bars: Vec<BarPart> = parts
@@ -196,6 +207,7 @@ pub fn write_pack(
             written.push(path);
         }
     }
+    progress("tables and the page");
     let fans = dir.join("fans.csv");
     replace_with(&fans, |p| write_fans(p, &out.fans))?;
     written.push(fans);
