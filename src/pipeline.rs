@@ -181,7 +181,7 @@ pub fn read_conditions(setup: &Setup) -> (Conditions, Vec<Finding>) {
 }
 
 /// A condition that cannot be read, as a clash naming its field.
-pub fn invalid_finding(e: &ScenarioError) -> Finding {
+fn invalid_finding(e: &ScenarioError) -> Finding {
     let field = match e {
         ScenarioError::Invalid { field, .. }
         | ScenarioError::Condition { field, .. }
@@ -219,9 +219,10 @@ pub fn check_central(
 }
 
 /// Condition the first [`DRAWS_RECHECKED`] posterior draws of `thetas` one by one and add a
-/// finding when some cannot be used: a clash past `checks.max_failed_share` (a run would stop
-/// there), a strain below it (a run sets them aside). Nothing to do for fixed coefficients
-/// or a report that already clashes.
+/// finding when some cannot be used: a clash when surely more fail than
+/// `checks.max_failed_share` allows (a run would stop there) or all of them do, a strain
+/// otherwise (a run sets them aside). Nothing to do for fixed coefficients or a report that
+/// already clashes.
 pub fn check_draws(
     setup: &Setup,
     report: &mut CheckReport,
