@@ -112,7 +112,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
 /// The statistics people quote, by series: the conditional median with its 90% band, and
 /// the deviation from the unconditional forecast.
 fn statistics(ui: &mut egui::Ui, stats: &[crate::report::Stat], pal: &Palette) {
-    use crate::report::summary::StatKind;
+    use crate::report::summary::{HEADLINE, StatKind, band};
     ui.strong("Summary statistics");
     ui.label(
         RichText::new(
@@ -136,13 +136,8 @@ fn statistics(ui: &mut egui::Ui, stats: &[crate::report::Stat], pal: &Palette) {
                 ui.strong(head);
             }
             ui.end_row();
-            let band = |q: &[f64; 7]| format!("{:.2} ({:.2} … {:.2})", q[3], q[0], q[6]);
             for c in stats.iter().filter(|s| {
-                s.kind == StatKind::Conditional
-                    && matches!(
-                        s.statistic.as_str(),
-                        "peak" | "trough" | "peak_to_trough" | "cumulative_change"
-                    )
+                s.kind == StatKind::Conditional && HEADLINE.contains(&s.statistic.as_str())
             }) {
                 let find = |statistic: &str, kind: StatKind| {
                     stats.iter().find(|s| {

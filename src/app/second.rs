@@ -13,6 +13,7 @@ use super::TiltyardApp;
 use super::palette::Palette;
 use super::worker::{self, EngineState, Job, Message, Results};
 use crate::compare::{Change, condition_changes};
+use crate::report::summary::two_decimals;
 use crate::scenario::ScenarioFile;
 
 /// The second scenario and what its worker has said.
@@ -213,9 +214,8 @@ pub fn table(ui: &mut egui::Ui, app: &TiltyardApp, pal: &Palette) {
                             ui.label(format!("{:.2} … {:.2}", a.q[0], a.q[6]));
                             ui.label(RichText::new(format!("{:.2}", b.q[3])).color(pal.second));
                             ui.label(format!("{:.2} … {:.2}", b.q[0], b.q[6]));
-                            let d = b.q[3] - a.q[3];
-                            let d = if d.abs() < 0.005 { 0.0 } else { d };
-                            ui.label(RichText::new(format!("{d:+.2}")).strong());
+                            let d = two_decimals(b.q[3] - a.q[3], true);
+                            ui.label(RichText::new(d).strong());
                             ui.end_row();
                         }
                     }
@@ -231,7 +231,7 @@ fn statistics(
     theirs: &[crate::report::Stat],
     pal: &Palette,
 ) {
-    use crate::report::summary::StatKind;
+    use crate::report::summary::{HEADLINE, StatKind, band};
     ui.strong("Summary statistics");
     egui::Grid::new("compared statistics")
         .striped(true)
@@ -248,10 +248,8 @@ fn statistics(
                 ui.strong(head);
             }
             ui.end_row();
-            let band = |q: &[f64; 7]| format!("{:.2} ({:.2} … {:.2})", q[3], q[0], q[6]);
-            let shown = ["peak", "trough", "peak_to_trough", "cumulative_change"];
             for a in mine.iter().filter(|s| {
-                s.kind == StatKind::Conditional && shown.contains(&s.statistic.as_str())
+                s.kind == StatKind::Conditional && HEADLINE.contains(&s.statistic.as_str())
             }) {
                 let Some(b) = theirs.iter().find(|s| {
                     s.kind == StatKind::Conditional
@@ -265,9 +263,8 @@ fn statistics(
                 ui.label(RichText::new(&a.units).small().color(pal.muted));
                 ui.label(band(&a.quantiles));
                 ui.label(RichText::new(band(&b.quantiles)).color(pal.second));
-                let d = b.quantiles[3] - a.quantiles[3];
-                let d = if d.abs() < 0.005 { 0.0 } else { d };
-                ui.label(RichText::new(format!("{d:+.2}")).strong());
+                let d = two_decimals(b.quantiles[3] - a.quantiles[3], true);
+                ui.label(RichText::new(d).strong());
                 ui.end_row();
             }
         });

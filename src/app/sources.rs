@@ -49,13 +49,27 @@ pub fn colour_of(app: &TiltyardApp, cref: super::chart::CondRef) -> Option<Color
         .map(condition_colour)
 }
 
-/// A value for the table: two decimals, and no "-0.00".
+/// A value for the tables: two decimals, and no "-0.00".
 fn cell(v: f64) -> String {
-    if v.abs() < 0.005 {
-        "0.00".into()
-    } else {
-        format!("{v:.2}")
+    crate::report::summary::two_decimals(v, false)
+}
+
+/// The first row of a table by period: the period labels.
+fn period_header(ui: &mut egui::Ui, labels: &[String]) {
+    ui.label("");
+    for l in labels {
+        ui.label(RichText::new(l).small().strong());
     }
+    ui.end_row();
+}
+
+/// A row's head: a colour square and its name.
+fn keyed(ui: &mut egui::Ui, colour: Color32, name: &str) {
+    ui.horizontal(|ui| {
+        let (rect, _) = ui.allocate_exact_size(egui::vec2(10.0, 10.0), egui::Sense::hover());
+        ui.painter().rect_filled(rect, 2.0, colour);
+        ui.label(name);
+    });
 }
 
 /// One part of the chosen series, by period.
@@ -214,18 +228,9 @@ fn effects(ui: &mut egui::Ui, app: &TiltyardApp, i: usize, labels: &[String], pa
                 .striped(true)
                 .min_col_width(52.0)
                 .show(ui, |ui| {
-                    ui.label("");
-                    for l in labels {
-                        ui.label(RichText::new(l).small().strong());
-                    }
-                    ui.end_row();
+                    period_header(ui, labels);
                     for (k, e) in effects.iter().enumerate() {
-                        ui.horizontal(|ui| {
-                            let (rect, _) = ui
-                                .allocate_exact_size(egui::vec2(10.0, 10.0), egui::Sense::hover());
-                            ui.painter().rect_filled(rect, 2.0, condition_colour(k));
-                            ui.label(format!("without {}", e.label));
-                        });
+                        keyed(ui, condition_colour(k), &format!("without {}", e.label));
                         match &e.shift {
                             Ok(shift) => {
                                 for v in shift.get(i).into_iter().flatten() {
@@ -303,23 +308,14 @@ fn table(ui: &mut egui::Ui, list: &[Part], total: &[f64], labels: &[String], pal
                 .striped(true)
                 .min_col_width(52.0)
                 .show(ui, |ui| {
-                    ui.label("");
-                    for l in labels {
-                        ui.label(RichText::new(l).small().strong());
-                    }
-                    ui.end_row();
+                    period_header(ui, labels);
                     ui.label(RichText::new("total").strong());
                     for v in total {
                         ui.label(RichText::new(cell(*v)).strong());
                     }
                     ui.end_row();
                     for p in list {
-                        ui.horizontal(|ui| {
-                            let (rect, _) = ui
-                                .allocate_exact_size(egui::vec2(10.0, 10.0), egui::Sense::hover());
-                            ui.painter().rect_filled(rect, 2.0, p.colour);
-                            ui.label(&p.name);
-                        });
+                        keyed(ui, p.colour, &p.name);
                         for v in &p.values {
                             let text = cell(*v);
                             let colour = if v.abs() < 0.005 {

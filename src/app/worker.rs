@@ -664,14 +664,7 @@ fn results(
         .collect();
     let series = (0..setup.n())
         .map(|i| {
-            let col = &setup.columns[i];
-            let x = |s: i64| -> Option<f64> {
-                if s >= 1 {
-                    None
-                } else {
-                    col.len().checked_sub(1 + (-s) as usize).map(|k| col[k])
-                }
-            };
+            let x = crate::report::fans::model_value(setup, &[], i);
             let mut hist: Vec<(f64, f64)> = (-(history as i64)..=0)
                 .filter_map(|t| {
                     display_value(

@@ -9,7 +9,7 @@ use std::sync::Once;
 use plotters::prelude::*;
 use plotters::style::FontStyle;
 
-use super::fans::FanRow;
+use super::fans::{FanRow, model_value};
 use super::{Kind, ReportError, replace_with};
 use crate::scenario::units::display_value;
 use crate::scenario::{Bound, Setup};
@@ -66,13 +66,8 @@ pub fn series_chart(
             .collect()
     };
     let (cond, uncond) = (pick(Kind::Conditional), pick(Kind::Unconditional));
-    let col = &setup.columns[i];
-    let x = |s: i64| -> Option<f64> {
-        (s < 1)
-            .then(|| col.len().checked_sub(1 + (-s) as usize).map(|k| col[k]))
-            .flatten()
-    };
-    let first = -((HISTORY_YEARS * f).min(col.len().saturating_sub(1)) as i64);
+    let x = model_value(setup, &[], i);
+    let first = -((HISTORY_YEARS * f).min(setup.columns[i].len().saturating_sub(1)) as i64);
     let history: Vec<(f64, f64)> = (first..=0)
         .filter_map(|t| {
             display_value(setup.display[i], setup.transforms[i], f, t, &x)

@@ -40,15 +40,7 @@ pub struct FanRow {
 
 /// Value of path `path` for series `i` at horizon `t` in the series' display units.
 pub fn display_path_value(setup: &Setup, path: &[f64], i: usize, t: usize) -> f64 {
-    let n = setup.n();
-    let col = &setup.columns[i];
-    let x = |s: i64| -> Option<f64> {
-        if s >= 1 {
-            path.get((s as usize - 1) * n + i).copied()
-        } else {
-            col.len().checked_sub(1 + (-s) as usize).map(|k| col[k])
-        }
-    };
+    let x = model_value(setup, path, i);
     display_value(
         setup.display[i],
         setup.transforms[i],
@@ -57,6 +49,23 @@ pub fn display_path_value(setup: &Setup, path: &[f64], i: usize, t: usize) -> f6
         &x,
     )
     .unwrap_or(f64::NAN)
+}
+
+/// Series `i` in model units at horizon `t`: from `path` for `t ≥ 1` (none when the path is
+/// empty or ends before), from the history for `t ≤ 0` (0 is the last observation).
+pub fn model_value<'a>(
+    setup: &'a Setup,
+    path: &'a [f64],
+    i: usize,
+) -> impl Fn(i64) -> Option<f64> + 'a {
+    let (n, col) = (setup.n(), &setup.columns[i]);
+    move |t: i64| {
+        if t >= 1 {
+            path.get((t as usize - 1) * n + i).copied()
+        } else {
+            col.len().checked_sub(1 + (-t) as usize).map(|k| col[k])
+        }
+    }
 }
 
 /// True when every value of `path` is finite in every series' display units (growth of

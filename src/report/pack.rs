@@ -11,7 +11,7 @@ use std::path::{Path, PathBuf};
 
 use super::attribution::{linear_units, series_part, shock_parts};
 use super::charts::{BarPart, series_chart, stacked_chart};
-use super::summary::StatKind;
+use super::summary::{HEADLINE, StatKind, band};
 use super::{
     CAUTION, ReportError, replace_with, write_atomic, write_attribution, write_checks_json,
     write_fans, write_summary,
@@ -414,16 +414,14 @@ fn checks(h: &mut String, out: &RunOutcome) {
 
 fn statistics(h: &mut String, setup: &Setup, out: &RunOutcome) {
     h.push_str("<section><h2>Summary statistics</h2><p>Medians with 5% and 95% bands over the paths; the deviation is a conditional path's statistic minus that of the unconditional path it was made from.</p><table><tr><th>series</th><th>statistic</th><th>units</th><th>under the scenario</th><th>deviation from the unconditional</th></tr>\n");
-    let shown = ["peak", "trough", "peak_to_trough", "cumulative_change"];
     for name in &setup.names {
-        for stat in shown {
+        for stat in HEADLINE {
             let find = |kind: StatKind| {
                 out.summary
                     .iter()
                     .find(|s| &s.series == name && s.statistic == stat && s.kind == kind)
             };
             if let (Some(c), Some(d)) = (find(StatKind::Conditional), find(StatKind::Deviation)) {
-                let band = |q: &[f64; 7]| format!("{:.2} ({:.2} … {:.2})", q[3], q[0], q[6]);
                 let _ = writeln!(
                     h,
                     "<tr><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td></tr>",

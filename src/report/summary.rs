@@ -20,10 +20,28 @@ use std::path::Path;
 
 use rayon::prelude::*;
 
-use super::fans::{QUANTILES, display_path_value, quantiles, weighted};
+use super::fans::{QUANTILES, display_path_value, model_value, quantiles, weighted};
 use super::{ReportError, csv_writer};
 use crate::dataset::Transform;
 use crate::scenario::{Setup, Units};
+
+/// The statistics tables and pages show (every one is in `summary.csv`).
+pub const HEADLINE: [&str; 4] = ["peak", "trough", "peak_to_trough", "cumulative_change"];
+
+/// A median with its 90% band, as tables show it: "5.30 (2.67 … 9.35)".
+pub fn band(q: &[f64; 7]) -> String {
+    format!("{:.2} ({:.2} … {:.2})", q[3], q[0], q[6])
+}
+
+/// Two decimals, never "-0.00" (with a sign when `signed`).
+pub fn two_decimals(v: f64, signed: bool) -> String {
+    let v = if v.abs() < 0.005 { 0.0 } else { v };
+    if signed {
+        format!("{v:+.2}")
+    } else {
+        format!("{v:.2}")
+    }
+}
 
 /// Which paths a statistic summarises.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -60,17 +78,8 @@ pub struct Stat {
 /// The statistics of one path of series `i`, in a fixed order ([`names`]).
 fn of_path(setup: &Setup, path: &[f64], i: usize, years: &[(i32, Vec<i64>)]) -> Vec<f64> {
     let h = setup.file.horizon;
-    let n = setup.n();
     let transform = setup.transforms[i];
-    let col = &setup.columns[i];
-    // Model value at horizon t (≤ 0: history).
-    let x = |t: i64| -> Option<f64> {
-        if t >= 1 {
-            path.get((t as usize - 1) * n + i).copied()
-        } else {
-            col.len().checked_sub(1 + (-t) as usize).map(|k| col[k])
-        }
-    };
+    let x = model_value(setup, path, i);
     // Levels in people's units from the last observation on, each computed once.
     let levels: Vec<f64> = (0..=h as i64)
         .map(|t| x(t).map_or(f64::NAN, |v| transform.inverse(v)))
