@@ -205,29 +205,26 @@ const NEGLIGIBLE: f64 = 1e-13;
 /// `C_t = Σ_l B_l C_{t−l} + L diag(ε̄_t)`; column `j` of the result (N × n) is shock `j`'s part.
 /// Only the shocks that move are carried through the recursion (with drivers, a few).
 pub fn by_shock(theta: &Theta, delta: &[f64]) -> Result<DMatrix<f64>, ForecastError> {
-    let (n, h, p) = (theta.n(), theta.h, theta.p());
+    let (n, h) = (theta.n(), theta.h);
     let eps = theta.shocks_from_departures(&DMatrix::from_column_slice(delta.len(), 1, delta))?;
     let largest = eps.amax();
     let moving: Vec<usize> = (0..n)
         .filter(|&j| (0..h).any(|t| eps[(t * n + j, 0)].abs() > NEGLIGIBLE * largest))
         .collect();
+    // The recursion is the VAR's own: X_t = L diag(ε̄_t) over the moving shocks, then H⁻¹.
     let impact = theta.impact.select_columns(&moving);
-    let mut c: Vec<DMatrix<f64>> = Vec::with_capacity(h);
+    let mut x = DMatrix::zeros(n * h, moving.len());
     for t in 0..h {
-        let mut ct = impact.clone();
+        let mut xt = x.rows_mut(t * n, n);
+        xt.copy_from(&impact);
         for (k, &j) in moving.iter().enumerate() {
-            ct.column_mut(k).scale_mut(eps[(t * n + j, 0)]);
+            xt.column_mut(k).scale_mut(eps[(t * n + j, 0)]);
         }
-        for l in 1..=p.min(t) {
-            ct.gemm(1.0, &theta.lags[l - 1], &c[t - l], 1.0);
-        }
-        c.push(ct);
     }
+    theta.forward_in_place(&mut x);
     let mut out = DMatrix::zeros(n * h, n);
-    for (t, ct) in c.iter().enumerate() {
-        for (k, &j) in moving.iter().enumerate() {
-            out.view_mut((t * n, j), (n, 1)).copy_from(&ct.column(k));
-        }
+    for (k, &j) in moving.iter().enumerate() {
+        out.set_column(j, &x.column(k));
     }
     Ok(out)
 }

@@ -157,18 +157,21 @@ pub fn build_thetas(
         }
         ParamSource::Posterior(post) => post,
     };
-    let draw = |i: usize| post.draw(&mut stream(spec.seed, Purpose::Parameters, i as u64));
+    let draw = |i: usize| {
+        post.draw(&mut stream(spec.seed, Purpose::Parameters, i as u64))
+            .map_err(|_| ForecastError::Singular("the posterior draw of Σ".into()).in_draw(i))
+    };
     let Some(limit) = spec.below else {
         let thetas = (0..spec.count)
             .into_par_iter()
-            .map(|i| make(i, draw(i)))
+            .map(|i| make(i, draw(i)?))
             .collect::<Vec<_>>()
             .into_iter()
             .collect::<Result<Vec<_>, _>>()?;
         let measured = (0..spec.count.min(ROOT_SAMPLE))
             .into_par_iter()
-            .map(|i| draw(i).spectral_radius())
-            .collect();
+            .map(|i| Ok(draw(i)?.spectral_radius()))
+            .collect::<Result<_, ForecastError>>()?;
         return Ok(ThetaSet {
             thetas,
             fixed: false,
@@ -191,7 +194,7 @@ pub fn build_thetas(
         let block = (tried..end)
             .into_par_iter()
             .map(|i| {
-                let p = draw(i);
+                let p = draw(i)?;
                 let root = p.spectral_radius();
                 let theta = (root < limit).then(|| make(i, p)).transpose()?;
                 Ok((root, theta))

@@ -90,34 +90,44 @@ impl Theta {
             .ok_or(ForecastError::Singular("the impact matrix L".into()))
     }
 
+    /// `[B_p … B_1]` (n × pn), the lags side by side oldest first, or their transposes
+    /// `[B_1' … B_p']`: the recursions' sum over lags is then one matrix product with the
+    /// block of neighbouring periods, which lie next to each other in the stacked rows.
+    fn lags_side_by_side(&self, transposed: bool) -> DMatrix<f64> {
+        let (n, p) = (self.n(), self.p());
+        let mut out = DMatrix::zeros(n, n * p);
+        for (j, b) in self.lags.iter().enumerate() {
+            if transposed {
+                out.view_mut((0, j * n), (n, n)).tr_copy_from(b);
+            } else {
+                out.view_mut((0, (p - 1 - j) * n), (n, n)).copy_from(b);
+            }
+        }
+        out
+    }
+
     /// `X ← H⁻¹ X` for `N × k` blocks: `x_t += Σ_{j=1}^{min(p,t−1)} B_j x_{t−j}`, `t = 1 … h`.
     pub fn forward_in_place(&self, x: &mut DMatrix<f64>) {
-        let n = self.n();
+        let (n, p) = (self.n(), self.p());
+        let lags = self.lags_side_by_side(false);
         for t in 1..self.h {
-            for (j, b) in self.lags.iter().enumerate() {
-                let Some(s) = t.checked_sub(j + 1) else { break };
-                let (mut now, past) = x.rows_range_pair_mut(t * n..(t + 1) * n, s * n..(s + 1) * n);
-                now.gemm(1.0, b, &past, 1.0);
-            }
+            let m = p.min(t);
+            let (mut now, past) = x.rows_range_pair_mut(t * n..(t + 1) * n, (t - m) * n..t * n);
+            now.gemm(1.0, &lags.columns((p - m) * n, m * n), &past, 1.0);
         }
     }
 
     /// `X ← H⁻ᵀ X` for `N × k` blocks: `x_t += Σ_{j=1}^{min(p,h−t)} B_j' x_{t+j}`, `t = h … 1`.
     pub fn backward_in_place(&self, x: &mut DMatrix<f64>) {
-        let n = self.n();
-        // `B_j'` made once: a product with a transposed copy runs as a matrix product, where
-        // a transposed product would run as dot products.
-        let lags_t: Vec<DMatrix<f64>> = self.lags.iter().map(|b| b.transpose()).collect();
+        let (n, p) = (self.n(), self.p());
+        // A product with transposed copies runs as a matrix product, where a transposed
+        // product would run as dot products.
+        let lags_t = self.lags_side_by_side(true);
         for t in (0..self.h.saturating_sub(1)).rev() {
-            for (j, bt) in lags_t.iter().enumerate() {
-                let s = t + j + 1;
-                if s >= self.h {
-                    break;
-                }
-                let (mut now, future) =
-                    x.rows_range_pair_mut(t * n..(t + 1) * n, s * n..(s + 1) * n);
-                now.gemm(1.0, bt, &future, 1.0);
-            }
+            let m = p.min(self.h - 1 - t);
+            let (mut now, future) =
+                x.rows_range_pair_mut(t * n..(t + 1) * n, (t + 1) * n..(t + 1 + m) * n);
+            now.gemm(1.0, &lags_t.columns(0, m * n), &future, 1.0);
         }
     }
 

@@ -23,6 +23,9 @@ pub struct Posterior {
     pub b_bar: DMatrix<f64>,
     /// Upper-triangular `R_x` with `Ω̄ = R_x⁻¹ R_x⁻ᵀ`.
     pub r_x: DMatrix<f64>,
+    /// `R_x⁻¹` (upper triangular), formed once: a draw multiplies by it (a matrix product
+    /// runs many times faster than the triangular solve it replaces).
+    r_x_inv: DMatrix<f64>,
     pub s_bar: DMatrix<f64>,
     /// `F_S = chol(S̄)` (lower).
     pub s_bar_chol: DMatrix<f64>,
@@ -60,8 +63,10 @@ impl Posterior {
             .sum::<f64>()
     }
 
-    /// One exact draw of `(B, Σ)`.
-    pub fn draw<R: Rng + ?Sized>(&self, rng: &mut R) -> Params {
+    /// One exact draw of `(B, Σ)`: `Σ = Λ Λ'` with `Λ' = A⁻¹ F_S'` (Bartlett's `A`, lower
+    /// triangular), `B = B̄ + R_x⁻¹ Z Λ'`. An error only when `A` is singular, which has
+    /// probability zero (a χ² draw of exactly zero).
+    pub fn draw<R: Rng + ?Sized>(&self, rng: &mut R) -> Result<Params, ModelError> {
         let n = self.n();
         let k = self.b_bar.nrows();
         let mut a = DMatrix::zeros(n, n);
@@ -69,25 +74,26 @@ impl Posterior {
             // ν̄ − i > n − 1 − i ≥ 0, checked when the posterior was built.
             let chi = ChiSquared::new(self.nu_bar - i as f64)
                 .map(|d| d.sample(rng))
-                .unwrap_or(0.0);
+                .map_err(|_| ModelError::BadSetting {
+                    field: "posterior degrees of freedom".into(),
+                    why: format!("{} is too small for {n} series", self.nu_bar),
+                })?;
             a[(i, i)] = chi.sqrt();
             for j in 0..i {
                 a[(i, j)] = StandardNormal.sample(rng);
             }
         }
-        // Λ' = A⁻¹ F_S'.
         let lambda_t = a
             .solve_lower_triangular(&self.s_bar_chol.transpose())
-            .unwrap_or_else(|| DMatrix::zeros(n, n));
+            .filter(|l| l.iter().all(|v| v.is_finite()))
+            .ok_or_else(|| ModelError::SigmaNotPositiveDefinite {
+                what: "a posterior draw of Σ (its Bartlett factor is singular)".into(),
+            })?;
         let mut sigma = lambda_t.transpose() * &lambda_t;
         symmetrise(&mut sigma);
         let z = DMatrix::from_fn(k, n, |_, _| StandardNormal.sample(rng));
-        let zl = z * &lambda_t;
-        let shift = self
-            .r_x
-            .solve_upper_triangular(&zl)
-            .unwrap_or_else(|| DMatrix::zeros(k, n));
-        Params::from_stacked(&(&self.b_bar + shift), sigma)
+        let shift = &self.r_x_inv * (z * &lambda_t);
+        Ok(Params::from_stacked(&(&self.b_bar + shift), sigma))
     }
 }
 
@@ -184,9 +190,14 @@ fn finish(
             what: "the posterior scale matrix S̄ (too few observations for the model size?)".into(),
         })?
         .l();
+    let r_x_inv = r_x
+        .solve_upper_triangular(&DMatrix::identity(r_x.nrows(), r_x.nrows()))
+        .filter(|m| m.iter().all(|v| v.is_finite()))
+        .ok_or(ModelError::Collinear)?;
     Ok(Posterior {
         b_bar,
         r_x,
+        r_x_inv,
         s_bar,
         s_bar_chol,
         nu_bar,
@@ -224,7 +235,7 @@ mod tests {
         });
         let post = flat(&y, &x).unwrap();
         let draws = 20_000;
-        let samples: Vec<Params> = (0..draws).map(|_| post.draw(&mut rng)).collect();
+        let samples: Vec<Params> = (0..draws).map(|_| post.draw(&mut rng).unwrap()).collect();
         let sigma_mean = &post.s_bar / (post.nu_bar - n as f64 - 1.0);
         let omega = {
             let rinv = post.r_x.clone().try_inverse().unwrap();
