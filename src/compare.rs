@@ -69,6 +69,8 @@ pub struct Comparison {
     pub rows: Vec<DiffRow>,
     /// Path-by-path difference of every statistic (second minus first), when paired.
     pub statistics: Vec<Stat>,
+    /// What the comparison's files name: both scenarios and both runs.
+    pub stamp: crate::report::Stamp,
 }
 
 /// The 5%, 50% and 95% quantiles.
@@ -275,6 +277,10 @@ pub fn compare(
         conditions: condition_changes(&a.file, &b.file),
         rows,
         statistics,
+        stamp: crate::report::Stamp {
+            scenario: format!("{} against {}", run_b.stamp.scenario, run_a.stamp.scenario),
+            run: format!("{} against {}", run_b.stamp.run, run_a.stamp.run),
+        },
     })
 }
 
@@ -309,48 +315,41 @@ pub fn changes_text(c: &Comparison) -> String {
 /// (the last three empty when the paths are not paired).
 pub fn write_compare(
     path: &std::path::Path,
+    stamp: &crate::report::Stamp,
     c: &Comparison,
 ) -> Result<(), crate::report::ReportError> {
-    let err = |error| crate::report::ReportError::Csv {
-        path: path.to_path_buf(),
-        error,
-    };
-    let io = |error| crate::report::ReportError::Io {
-        path: path.to_path_buf(),
-        error,
-    };
-    let mut w = csv::Writer::from_path(path).map_err(err)?;
-    w.write_record([
-        "series",
-        "period",
-        "horizon",
-        "units",
-        "first_q05",
-        "first_q50",
-        "first_q95",
-        "second_q05",
-        "second_q50",
-        "second_q95",
-        "median_difference",
-        "difference_q05",
-        "difference_q50",
-        "difference_q95",
-    ])
-    .map_err(err)?;
-    for r in &c.rows {
-        let mut rec = vec![
-            r.series.clone(),
-            r.period.clone(),
-            r.horizon.to_string(),
-            r.units.clone(),
-        ];
-        rec.extend(r.first.iter().chain(&r.second).map(|v| v.to_string()));
-        rec.push(r.median_difference.to_string());
-        match r.difference {
-            Some(d) => rec.extend(d.iter().map(|v| v.to_string())),
-            None => rec.extend(["".to_string(), "".into(), "".into()]),
+    crate::report::write_csv(path, stamp, |w| {
+        w.write_record([
+            "series",
+            "period",
+            "horizon",
+            "units",
+            "first_q05",
+            "first_q50",
+            "first_q95",
+            "second_q05",
+            "second_q50",
+            "second_q95",
+            "median_difference",
+            "difference_q05",
+            "difference_q50",
+            "difference_q95",
+        ])?;
+        for r in &c.rows {
+            let mut rec = vec![
+                r.series.clone(),
+                r.period.clone(),
+                r.horizon.to_string(),
+                r.units.clone(),
+            ];
+            rec.extend(r.first.iter().chain(&r.second).map(|v| v.to_string()));
+            rec.push(r.median_difference.to_string());
+            match r.difference {
+                Some(d) => rec.extend(d.iter().map(|v| v.to_string())),
+                None => rec.extend(["".to_string(), "".into(), "".into()]),
+            }
+            w.write_record(&rec)?;
         }
-        w.write_record(&rec).map_err(err)?;
-    }
-    w.flush().map_err(io)
+        Ok(())
+    })
 }

@@ -9,8 +9,8 @@ use clap::{Parser, Subcommand};
 use tiltyard::compare::{changes_text, compare, write_compare};
 use tiltyard::crosscheck::EngineKind;
 use tiltyard::report::{
-    CAUTION, check_text, write_about, write_attribution, write_checks_json, write_draws,
-    write_fans, write_summary,
+    CAUTION, COMMAND_FILES, Outputs, Stamp, check_text, write_about, write_attribution,
+    write_checks_json, write_draws, write_fans, write_summary,
 };
 use tiltyard::run::{RunError, RunOptions, check, run, summary};
 
@@ -48,7 +48,8 @@ enum Command {
         /// Random seed; overrides the file.
         #[arg(long)]
         seed: Option<u64>,
-        /// Worker threads (default: all cores). Results do not depend on it.
+        /// Worker threads: 0 or absent for one per core, at most the machine's cores.
+        /// Results do not depend on it.
         #[arg(long)]
         threads: Option<usize>,
         /// Output folder.
@@ -80,7 +81,8 @@ enum Command {
         /// Random seed of both; overrides the files.
         #[arg(long)]
         seed: Option<u64>,
-        /// Worker threads (default: all cores). Results do not depend on it.
+        /// Worker threads: 0 or absent for one per core, at most the machine's cores.
+        /// Results do not depend on it.
         #[arg(long)]
         threads: Option<usize>,
         /// Output folder.
@@ -101,7 +103,8 @@ enum Command {
         /// Random seed; overrides the file(s).
         #[arg(long)]
         seed: Option<u64>,
-        /// Worker threads (default: all cores). Results do not depend on it.
+        /// Worker threads: 0 or absent for one per core, at most the machine's cores.
+        /// Results do not depend on it.
         #[arg(long)]
         threads: Option<usize>,
         /// Output folder.
@@ -258,21 +261,53 @@ fn window(scenario: Option<PathBuf>, _compare: Option<PathBuf>) -> anyhow::Resul
     )
 }
 
-fn create(out: &Path) -> anyhow::Result<()> {
-    std::fs::create_dir_all(out).with_context(|| format!("cannot create {}", out.display()))
+/// The worker pool: `--threads N`, 0 or absent for one per core. More threads than cores
+/// only slow the run down (and a huge count would exhaust the machine), so N is capped at
+/// the machine's cores, with a note.
+fn pool(threads: Option<usize>) -> anyhow::Result<rayon::ThreadPool> {
+    let cores = std::thread::available_parallelism().map_or(1, |n| n.get());
+    let wanted = threads.filter(|&t| t > 0).unwrap_or(cores);
+    if wanted > cores {
+        eprintln!(
+            "note: --threads {wanted} is more than this machine's {cores} cores; using {cores}"
+        );
+    }
+    rayon::ThreadPoolBuilder::new()
+        .num_threads(wanted.min(cores))
+        .build()
+        .context("cannot start worker threads")
+}
+
+/// Print what a command wrote and the stale files it removed.
+fn wrote(outputs: &Outputs) -> anyhow::Result<()> {
+    let removed = outputs.remove_stale(COMMAND_FILES)?;
+    let wrote: Vec<String> = outputs
+        .written()
+        .iter()
+        .map(|p| p.display().to_string())
+        .collect();
+    println!("wrote      {}", wrote.join(", "));
+    if !removed.is_empty() {
+        println!(
+            "removed    {} (an earlier run's, not rewritten by this one)",
+            removed.join(", ")
+        );
+    }
+    Ok(())
 }
 
 fn check_command(scenario: PathBuf, seed: Option<u64>, out: PathBuf) -> anyhow::Result<Outcome> {
     let mut setup = tiltyard::scenario::load(&scenario)?;
+    let mut outputs = Outputs::prepare(&out)?;
     if let Some(s) = seed {
         setup.file.seed = s;
     }
+    let stamp = Stamp::new(&setup.file.name, &scenario);
     let report = check(&setup)?;
-    create(&out)?;
-    write_checks_json(&out.join("checks.json"), &report)?;
+    outputs.write("checks.json", |p| write_checks_json(p, &stamp, &report))?;
     println!("scenario   {} ({})", setup.file.name, scenario.display());
     println!("{}", check_text(&report));
-    println!("wrote      {}", out.join("checks.json").display());
+    wrote(&outputs)?;
     println!("\n{CAUTION}");
     Ok(if report.clashes() {
         Outcome::Clash
@@ -288,48 +323,42 @@ fn run_command(
     out: PathBuf,
     keep_draws: bool,
 ) -> anyhow::Result<Outcome> {
-    let pool = rayon::ThreadPoolBuilder::new()
-        .num_threads(threads.unwrap_or(0))
-        .build()
-        .context("cannot start worker threads")?;
+    let pool = pool(threads)?;
     let mut setup = tiltyard::scenario::load(&scenario)?;
+    let mut outputs = Outputs::prepare(&out)?;
     let outcome = match pool.install(|| run(&mut setup, &options)) {
         Ok(outcome) => outcome,
         Err(RunError::Clash(report)) => {
-            create(&out)?;
-            write_checks_json(&out.join("checks.json"), &report)?;
+            let stamp = Stamp::new(&setup.file.name, &scenario);
+            outputs.write("checks.json", |p| write_checks_json(p, &stamp, &report))?;
             println!("scenario   {} ({})", setup.file.name, scenario.display());
             println!("{}", check_text(&report));
-            println!(
-                "nothing sampled: the conditions clash (report in {})",
-                out.join("checks.json").display()
-            );
+            println!("nothing sampled: the conditions clash");
+            wrote(&outputs)?;
             return Ok(Outcome::Clash);
         }
         Err(e) => return Err(e.into()),
     };
-    create(&out)?;
-    write_fans(&out.join("fans.csv"), &outcome.fans)?;
-    write_checks_json(&out.join("checks.json"), &outcome.checks)?;
-    write_summary(&out.join("summary.csv"), &outcome.summary)?;
-    let mut wrote = vec![
-        out.join("fans.csv"),
-        out.join("summary.csv"),
-        out.join("checks.json"),
-    ];
+    let stamp = &outcome.stamp;
+    outputs.write("fans.csv", |p| write_fans(p, stamp, &outcome.fans))?;
+    outputs.write("summary.csv", |p| write_summary(p, stamp, &outcome.summary))?;
+    outputs.write("checks.json", |p| {
+        write_checks_json(p, stamp, &outcome.checks)
+    })?;
     if let Some(a) = &outcome.attribution {
-        write_attribution(&out.join("attribution.csv"), &setup, a)?;
-        wrote.push(out.join("attribution.csv"));
+        outputs.write("attribution.csv", |p| {
+            write_attribution(p, stamp, &setup, a)
+        })?;
     }
     if keep_draws {
-        write_draws(&out.join("draws.csv"), &setup, &outcome.paths.conditional)?;
-        wrote.push(out.join("draws.csv"));
+        outputs.write("draws.csv", |p| {
+            write_draws(p, stamp, &setup, &outcome.paths.conditional)
+        })?;
     }
     let text = summary(&setup, &outcome);
-    write_about(&out.join("about.txt"), &text)?;
+    outputs.write("about.txt", |p| write_about(p, stamp, &text))?;
     println!("{text}");
-    let wrote: Vec<String> = wrote.iter().map(|p| p.display().to_string()).collect();
-    println!("wrote      {}", wrote.join(", "));
+    wrote(&outputs)?;
     println!("\n{CAUTION}");
     Ok(Outcome::Done)
 }
@@ -340,10 +369,8 @@ fn compare_command(
     threads: Option<usize>,
     out: PathBuf,
 ) -> anyhow::Result<Outcome> {
-    let pool = rayon::ThreadPoolBuilder::new()
-        .num_threads(threads.unwrap_or(0))
-        .build()
-        .context("cannot start worker threads")?;
+    let pool = pool(threads)?;
+    let mut outputs = Outputs::prepare(&out)?;
     let Some((a, run_a)) = run_or_report(&files[0], &options, &pool)? else {
         return Ok(Outcome::Clash);
     };
@@ -351,18 +378,15 @@ fn compare_command(
         return Ok(Outcome::Clash);
     };
     let comparison = compare(&a, &run_a, &b, &run_b)?;
-    create(&out)?;
-    write_compare(&out.join("compare.csv"), &comparison)?;
-    write_summary(&out.join("compare-summary.csv"), &comparison.statistics)?;
+    let stamp = &comparison.stamp;
+    outputs.write("compare.csv", |p| write_compare(p, stamp, &comparison))?;
+    outputs.write("compare-summary.csv", |p| {
+        write_summary(p, stamp, &comparison.statistics)
+    })?;
     let text = changes_text(&comparison);
-    write_about(&out.join("compare.txt"), &text)?;
+    outputs.write("compare.txt", |p| write_about(p, stamp, &text))?;
     println!("{text}");
-    println!(
-        "wrote      {}, {}, {}",
-        out.join("compare.csv").display(),
-        out.join("compare-summary.csv").display(),
-        out.join("compare.txt").display()
-    );
+    wrote(&outputs)?;
     println!("\n{CAUTION}");
     Ok(Outcome::Done)
 }
@@ -396,11 +420,8 @@ fn export_command(
     threads: Option<usize>,
     out: PathBuf,
 ) -> anyhow::Result<Outcome> {
-    let pool = rayon::ThreadPoolBuilder::new()
-        .num_threads(threads.unwrap_or(0))
-        .build()
-        .context("cannot start worker threads")?;
-    create(&out)?;
+    let pool = pool(threads)?;
+    Outputs::prepare(&out)?;
     let Some((setup, outcome)) = run_or_report(&scenario, &options, &pool)? else {
         return Ok(Outcome::Clash);
     };

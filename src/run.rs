@@ -13,7 +13,7 @@ use crate::model::FitSummary;
 use crate::pipeline::{
     Model, PipelineError, check_central, check_draws, read_conditions, summarise,
 };
-use crate::report::{FanRow, Kind, Stat, check_text, displayable, fans};
+use crate::report::{FanRow, Kind, Stamp, Stat, check_text, displayable, fans};
 use crate::scenario::{ModelSpec, ScenarioError, Setup};
 
 /// Every path must meet every pin to this relative error (ALGORITHMS §11.4).
@@ -72,6 +72,8 @@ pub struct RunOutcome {
     pub attribution: Option<Attribution>,
     /// Peaks, troughs, changes and calendar-year averages with their bands.
     pub summary: Vec<Stat>,
+    /// The scenario and run its files name.
+    pub stamp: Stamp,
 }
 
 /// Check a loaded scenario: every invalid condition is a clash naming its field; the rest are
@@ -93,6 +95,7 @@ pub fn check(setup: &Setup) -> Result<CheckReport, RunError> {
 /// Run a loaded scenario (options override the file's draws, seed and paths per draw).
 pub fn run(setup: &mut Setup, options: &RunOptions) -> Result<RunOutcome, RunError> {
     let start = Instant::now();
+    let stamp = Stamp::new(&setup.file.name, &setup.path);
     if let Some(d) = options.draws {
         setup.file.draws = d;
     }
@@ -151,6 +154,7 @@ pub fn run(setup: &mut Setup, options: &RunOptions) -> Result<RunOutcome, RunErr
         engine: options.engine,
         attribution: summaries.attribution,
         summary: summaries.statistics,
+        stamp,
     })
 }
 

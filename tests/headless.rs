@@ -45,6 +45,13 @@ fn run_writes_fans_and_draws_for_the_demo() {
     );
     let fans = std::fs::read_to_string(out.path().join("fans.csv")).unwrap();
     let mut lines = fans.lines();
+    // The first line names the scenario and the run, with the caution.
+    let stamp = lines.next().unwrap();
+    assert!(
+        stamp.starts_with("# ") && stamp.contains("baseline.ron") && stamp.contains(" · run "),
+        "{stamp}"
+    );
+    assert!(stamp.contains("not predictions or advice"), "{stamp}");
     assert_eq!(
         lines.next().unwrap(),
         "series,period,horizon,kind,units,mean,q05,q16,q25,q50,q75,q84,q95"
@@ -74,10 +81,78 @@ fn run_writes_fans_and_draws_for_the_demo() {
         assert!((q - pin).abs() < 1e-9 * (1.0 + pin.abs()), "{row:?}");
     }
     let draws = std::fs::read_to_string(out.path().join("draws.csv")).unwrap();
-    assert!(draws.starts_with("draw,series,period,value\n"));
-    assert_eq!(draws.lines().count(), 1 + 80 * 12 * 10);
+    assert!(draws.starts_with(&format!("{stamp}\ndraw,series,period,value\n")));
+    assert_eq!(draws.lines().count(), 2 + 80 * 12 * 10);
+    let run_id = stamp
+        .split(" · run ")
+        .nth(1)
+        .unwrap()
+        .split(' ')
+        .next()
+        .unwrap();
     let about = std::fs::read_to_string(out.path().join("about.txt")).unwrap();
-    assert!(about.contains("not predictions or advice"));
+    assert!(about.contains("not predictions or advice") && about.contains(run_id));
+    let checks = std::fs::read_to_string(out.path().join("checks.json")).unwrap();
+    assert!(
+        checks.contains(&format!("\"run\": \"{run_id}\"")),
+        "{checks}"
+    );
+}
+
+/// A folder holds one command's files: a run without `--keep-draws` removes an earlier
+/// `draws.csv`, a clashing run removes the earlier fans beside its clash report, and no
+/// temporary file is left behind.
+#[test]
+fn a_run_removes_the_files_of_an_earlier_one() {
+    let out = tempfile::tempdir().unwrap();
+    let run = |scenario: &str, extra: &[&str]| {
+        tiltyard()
+            .args(["run", scenario, "--draws", "20", "--out"])
+            .arg(out.path())
+            .args(extra)
+            .output()
+            .unwrap()
+    };
+    assert!(
+        run(&demo("baseline.ron"), &["--keep-draws"])
+            .status
+            .success()
+    );
+    assert!(out.path().join("draws.csv").exists());
+    let done = run(&demo("baseline.ron"), &[]);
+    assert!(done.status.success());
+    assert!(!out.path().join("draws.csv").exists());
+    assert!(String::from_utf8_lossy(&done.stdout).contains("removed    draws.csv"));
+    let done = run(&demo("clash.ron"), &[]);
+    assert_eq!(
+        done.status.code(),
+        Some(2),
+        "{}",
+        String::from_utf8_lossy(&done.stderr)
+    );
+    let names: Vec<String> = std::fs::read_dir(out.path())
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .collect();
+    assert_eq!(names, vec!["checks.json".to_string()], "{names:?}");
+}
+
+/// An output folder that cannot be written is refused before any sampling.
+#[test]
+fn an_unwritable_output_folder_is_refused_first() {
+    let dir = tempfile::tempdir().unwrap();
+    let blocked = dir.path().join("a-file");
+    std::fs::write(&blocked, "not a folder").unwrap();
+    let done = tiltyard()
+        .args(["run", &demo("adverse.ron"), "--draws", "100000", "--out"])
+        .arg(blocked.join("out"))
+        .output()
+        .unwrap();
+    assert!(!done.status.success());
+    let err = String::from_utf8_lossy(&done.stderr);
+    assert!(err.contains("a-file"), "{err}");
+    // 100,000 draws of the demo take minutes: the test would time out had they been made.
+    assert!(!String::from_utf8_lossy(&done.stdout).contains("forecast "));
 }
 
 #[test]
@@ -253,7 +328,7 @@ fn the_demo_runs_at_a_horizon_of_400() {
     let fans = std::fs::read_to_string(out.join("fans.csv")).unwrap();
     let numbers: Vec<f64> = fans
         .lines()
-        .skip(1)
+        .skip(2)
         .flat_map(|l| l.split(',').skip(5).map(|v| v.parse::<f64>().unwrap()))
         .collect();
     assert_eq!(numbers.len(), 10 * 400 * 2 * 8);
@@ -283,7 +358,7 @@ fn compare_writes_its_tables_and_refuses_a_clash() {
     assert!(done.status.success(), "{stdout}");
     assert!(stdout.contains("paired"), "{stdout}");
     let table = std::fs::read_to_string(out.path().join("compare.csv")).unwrap();
-    assert_eq!(table.lines().count(), 1 + 10 * 12);
+    assert_eq!(table.lines().count(), 2 + 10 * 12);
     assert!(out.path().join("compare-summary.csv").exists());
     let text = std::fs::read_to_string(out.path().join("compare.txt")).unwrap();
     assert!(text.contains("added") && text.contains("not predictions or advice"));

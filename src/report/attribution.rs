@@ -9,7 +9,7 @@
 
 use std::path::Path;
 
-use super::{ReportError, csv_writer};
+use super::{ReportError, Stamp, write_csv};
 use crate::attribution::Attribution;
 use crate::dataset::Transform;
 use crate::scenario::{Setup, Units};
@@ -62,48 +62,45 @@ pub fn series_part(n: usize, terms: &[(usize, f64)], part: &[f64], i: usize) -> 
 /// (conditional minus unconditional mean), `shock` (a structural shock, named after the
 /// series it is ordered with), `condition` (a pin or corridor, by its label) or `parameters`
 /// (reweighting of the posterior draws).
-pub fn write_attribution(path: &Path, setup: &Setup, a: &Attribution) -> Result<(), ReportError> {
-    let err = |error| ReportError::Csv {
-        path: path.to_path_buf(),
-        error,
-    };
-    let mut w = csv_writer(path)?;
-    w.write_record([
-        "series", "period", "horizon", "units", "kind", "part", "value",
-    ])
-    .map_err(err)?;
-    let (last, n) = (setup.last_period(), setup.n());
-    for i in 0..n {
-        let (terms, units) = linear_units(setup, i);
-        let mut parts: Vec<(&str, &str, Vec<f64>)> =
-            vec![("total", "", series_part(n, &terms, &a.total, i))];
-        for (j, shock) in a.by_shock.iter().enumerate() {
-            parts.push(("shock", &setup.names[j], series_part(n, &terms, shock, i)));
-        }
-        for ((label, _), part) in a.conditions.iter().zip(&a.by_condition) {
-            parts.push(("condition", label, series_part(n, &terms, part, i)));
-        }
-        if let Some(p) = &a.parameters {
-            parts.push(("parameters", "", series_part(n, &terms, p, i)));
-        }
-        for t in 1..=setup.file.horizon {
-            for (kind, name, values) in &parts {
-                w.write_record([
-                    setup.names[i].as_str(),
-                    &last.offset(t as i64).to_string(),
-                    &t.to_string(),
-                    &units,
-                    kind,
-                    name,
-                    &values[t - 1].to_string(),
-                ])
-                .map_err(err)?;
+pub fn write_attribution(
+    path: &Path,
+    stamp: &Stamp,
+    setup: &Setup,
+    a: &Attribution,
+) -> Result<(), ReportError> {
+    write_csv(path, stamp, |w| {
+        w.write_record([
+            "series", "period", "horizon", "units", "kind", "part", "value",
+        ])?;
+        let (last, n) = (setup.last_period(), setup.n());
+        for i in 0..n {
+            let (terms, units) = linear_units(setup, i);
+            let mut parts: Vec<(&str, &str, Vec<f64>)> =
+                vec![("total", "", series_part(n, &terms, &a.total, i))];
+            for (j, shock) in a.by_shock.iter().enumerate() {
+                parts.push(("shock", &setup.names[j], series_part(n, &terms, shock, i)));
+            }
+            for ((label, _), part) in a.conditions.iter().zip(&a.by_condition) {
+                parts.push(("condition", label, series_part(n, &terms, part, i)));
+            }
+            if let Some(p) = &a.parameters {
+                parts.push(("parameters", "", series_part(n, &terms, p, i)));
+            }
+            for t in 1..=setup.file.horizon {
+                for (kind, name, values) in &parts {
+                    w.write_record([
+                        setup.names[i].as_str(),
+                        &last.offset(t as i64).to_string(),
+                        &t.to_string(),
+                        &units,
+                        kind,
+                        name,
+                        &values[t - 1].to_string(),
+                    ])?;
+                }
             }
         }
-    }
-    w.flush().map_err(|error| ReportError::Io {
-        path: path.to_path_buf(),
-        error,
+        Ok(())
     })
 }
 

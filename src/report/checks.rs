@@ -2,7 +2,7 @@
 
 use std::path::Path;
 
-use super::{CAUTION, ReportError};
+use super::{CAUTION, ReportError, Stamp};
 use crate::checks::{CheckReport, Severity, Status};
 
 /// The report as indented lines under a `checks` heading.
@@ -105,24 +105,29 @@ pub fn check_text(report: &CheckReport) -> String {
     s.join("\n")
 }
 
-/// `checks.json`: the report, with the caution.
-pub fn write_checks_json(path: &Path, report: &CheckReport) -> Result<(), ReportError> {
+/// `checks.json`: the report, with its scenario, run and the caution.
+pub fn write_checks_json(
+    path: &Path,
+    stamp: &Stamp,
+    report: &CheckReport,
+) -> Result<(), ReportError> {
     #[derive(serde::Serialize)]
     struct Export<'a> {
+        #[serde(flatten)]
+        stamp: &'a Stamp,
         #[serde(flatten)]
         report: &'a CheckReport,
         caution: &'static str,
     }
+    let io = |error| ReportError::Io {
+        path: path.to_path_buf(),
+        error,
+    };
     let text = serde_json::to_string_pretty(&Export {
+        stamp,
         report,
         caution: CAUTION,
     })
-    .map_err(|e| ReportError::Io {
-        path: path.to_path_buf(),
-        error: std::io::Error::other(e),
-    })?;
-    std::fs::write(path, text + "\n").map_err(|error| ReportError::Io {
-        path: path.to_path_buf(),
-        error,
-    })
+    .map_err(|e| io(std::io::Error::other(e)))?;
+    super::write_atomic(path, (text + "\n").as_bytes()).map_err(io)
 }

@@ -1,20 +1,23 @@
 //! Tables written by the headless commands: `fans.csv`, `draws.csv`, `attribution.csv`,
-//! `summary.csv`,
-//! `about.txt` (what was run, and the caution every forecast export carries) and
-//! `checks.json`.
+//! `summary.csv`, `about.txt` (what was run, and the caution every forecast export carries)
+//! and `checks.json`. Every file is written atomically and names its scenario and run
+//! ([`stamp`]).
 
 pub mod attribution;
 pub mod charts;
 pub mod checks;
 pub mod fans;
 pub mod pack;
+pub mod stamp;
 pub mod summary;
 
+use std::io::Write;
 use std::path::Path;
 
 pub use attribution::write_attribution;
 pub use checks::{check_text, write_checks_json};
 pub use fans::{FanRow, Kind, QUANTILES, displayable, fans, quantiles, weighted};
+pub use stamp::{COMMAND_FILES, Outputs, Stamp};
 pub use summary::{Stat, statistics, write_summary};
 
 use crate::scenario::Setup;
@@ -38,70 +41,76 @@ pub enum ReportError {
     },
 }
 
-fn csv_writer(path: &Path) -> Result<csv::Writer<std::fs::File>, ReportError> {
-    csv::Writer::from_path(path).map_err(|error| ReportError::Csv {
-        path: path.to_path_buf(),
-        error,
+/// Write a CSV table atomically ([`replace_with`]), opened by the stamp's comment line;
+/// `fill` writes the header and the records.
+pub fn write_csv(
+    path: &Path,
+    stamp: &Stamp,
+    fill: impl FnOnce(&mut csv::Writer<std::fs::File>) -> csv::Result<()>,
+) -> Result<(), ReportError> {
+    replace_with(path, |tmp| {
+        let io = |error| ReportError::Io {
+            path: path.to_path_buf(),
+            error,
+        };
+        let mut file = std::fs::File::create(tmp).map_err(io)?;
+        writeln!(file, "{}", stamp.csv_line()).map_err(io)?;
+        let mut w = csv::Writer::from_writer(file);
+        fill(&mut w).map_err(|error| ReportError::Csv {
+            path: path.to_path_buf(),
+            error,
+        })?;
+        w.flush().map_err(io)
     })
 }
 
 /// `fans.csv`: `series,period,horizon,kind,units,mean,q05,q16,q25,q50,q75,q84,q95`.
-pub fn write_fans(path: &Path, rows: &[FanRow]) -> Result<(), ReportError> {
-    let err = |error| ReportError::Csv {
-        path: path.to_path_buf(),
-        error,
-    };
-    let mut w = csv_writer(path)?;
-    w.write_record([
-        "series", "period", "horizon", "kind", "units", "mean", "q05", "q16", "q25", "q50", "q75",
-        "q84", "q95",
-    ])
-    .map_err(err)?;
-    for r in rows {
-        let mut rec = vec![
-            r.series.clone(),
-            r.period.to_string(),
-            r.horizon.to_string(),
-            r.kind.label().to_string(),
-            r.units.label(),
-            r.mean.to_string(),
-        ];
-        rec.extend(r.quantiles.iter().map(|q| q.to_string()));
-        w.write_record(&rec).map_err(err)?;
-    }
-    w.flush().map_err(|error| ReportError::Io {
-        path: path.to_path_buf(),
-        error,
+pub fn write_fans(path: &Path, stamp: &Stamp, rows: &[FanRow]) -> Result<(), ReportError> {
+    write_csv(path, stamp, |w| {
+        w.write_record([
+            "series", "period", "horizon", "kind", "units", "mean", "q05", "q16", "q25", "q50",
+            "q75", "q84", "q95",
+        ])?;
+        for r in rows {
+            let mut rec = vec![
+                r.series.clone(),
+                r.period.to_string(),
+                r.horizon.to_string(),
+                r.kind.label().to_string(),
+                r.units.label(),
+                r.mean.to_string(),
+            ];
+            rec.extend(r.quantiles.iter().map(|q| q.to_string()));
+            w.write_record(&rec)?;
+        }
+        Ok(())
     })
 }
 
 /// `draws.csv`: `draw,series,period,value`, values in each series' display units.
-pub fn write_draws(path: &Path, setup: &Setup, paths: &[Vec<f64>]) -> Result<(), ReportError> {
-    let err = |error| ReportError::Csv {
-        path: path.to_path_buf(),
-        error,
-    };
-    let mut w = csv_writer(path)?;
-    w.write_record(["draw", "series", "period", "value"])
-        .map_err(err)?;
-    let last = setup.last_period();
-    for (d, path_values) in paths.iter().enumerate() {
-        for t in 1..=setup.file.horizon {
-            for i in 0..setup.n() {
-                let v = fans::display_path_value(setup, path_values, i, t);
-                w.write_record([
-                    d.to_string(),
-                    setup.names[i].clone(),
-                    last.offset(t as i64).to_string(),
-                    v.to_string(),
-                ])
-                .map_err(err)?;
+pub fn write_draws(
+    path: &Path,
+    stamp: &Stamp,
+    setup: &Setup,
+    paths: &[Vec<f64>],
+) -> Result<(), ReportError> {
+    write_csv(path, stamp, |w| {
+        w.write_record(["draw", "series", "period", "value"])?;
+        let last = setup.last_period();
+        for (d, path_values) in paths.iter().enumerate() {
+            for t in 1..=setup.file.horizon {
+                for i in 0..setup.n() {
+                    let v = fans::display_path_value(setup, path_values, i, t);
+                    w.write_record([
+                        d.to_string(),
+                        setup.names[i].clone(),
+                        last.offset(t as i64).to_string(),
+                        v.to_string(),
+                    ])?;
+                }
             }
         }
-    }
-    w.flush().map_err(|error| ReportError::Io {
-        path: path.to_path_buf(),
-        error,
+        Ok(())
     })
 }
 
@@ -152,9 +161,10 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> std::io::Result<()> {
     })
 }
 
-/// `about.txt`: the run summary and the caution.
-pub fn write_about(path: &Path, summary: &str) -> Result<(), ReportError> {
-    std::fs::write(path, format!("{summary}\n\n{CAUTION}\n")).map_err(|error| ReportError::Io {
+/// `about.txt`: the run summary (its first line names the scenario), the run and the caution.
+pub fn write_about(path: &Path, stamp: &Stamp, summary: &str) -> Result<(), ReportError> {
+    let text = format!("{summary}\nrun        {}\n\n{CAUTION}\n", stamp.run);
+    write_atomic(path, text.as_bytes()).map_err(|error| ReportError::Io {
         path: path.to_path_buf(),
         error,
     })

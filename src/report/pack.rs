@@ -13,8 +13,8 @@ use super::attribution::{linear_units, series_part, shock_parts};
 use super::charts::{BarPart, series_chart, stacked_chart};
 use super::summary::{HEADLINE, StatKind, band};
 use super::{
-    CAUTION, ReportError, replace_with, write_atomic, write_attribution, write_checks_json,
-    write_fans, write_summary,
+    CAUTION, ReportError, write_atomic, write_attribution, write_checks_json, write_fans,
+    write_summary,
 };
 use crate::checks::{Severity, Status};
 use crate::compare::{Change, Comparison, write_compare};
@@ -209,32 +209,50 @@ pub fn write_pack(
     }
     progress("tables and the page");
     let fans = dir.join("fans.csv");
-    replace_with(&fans, |p| write_fans(p, &out.fans))?;
+    write_fans(&fans, &out.stamp, &out.fans)?;
     written.push(fans);
     let stats = dir.join("summary.csv");
-    replace_with(&stats, |p| write_summary(p, &out.summary))?;
+    write_summary(&stats, &out.stamp, &out.summary)?;
     written.push(stats);
     if let Some(a) = &out.attribution {
         let path = dir.join("attribution.csv");
-        replace_with(&path, |p| write_attribution(p, setup, a))?;
+        write_attribution(&path, &out.stamp, setup, a)?;
         written.push(path);
     }
     let checks = dir.join("checks.json");
-    replace_with(&checks, |p| write_checks_json(p, &out.checks))?;
+    write_checks_json(&checks, &out.stamp, &out.checks)?;
     written.push(checks);
     if let Some(c) = compared {
         let path = dir.join("compare.csv");
-        replace_with(&path, |p| write_compare(p, c))?;
+        write_compare(&path, &c.stamp, c)?;
         written.push(path);
         let path = dir.join("compare-summary.csv");
-        replace_with(&path, |p| write_summary(p, &c.statistics))?;
+        write_summary(&path, &c.stamp, &c.statistics)?;
         written.push(path);
     }
     let html = dir.join("briefing.html");
     let page = page(setup, out, compared, &figures, &sources);
     write_atomic(&html, page.as_bytes()).map_err(io(&html))?;
     written.push(html);
+    remove_stale(dir, &charts, &written)?;
     Ok(written)
+}
+
+/// Remove what an earlier pack left that this one did not write: its charts (series since
+/// removed or renamed) and its tables (a comparison, an attribution), so that the folder
+/// holds one pack.
+fn remove_stale(dir: &Path, charts: &Path, written: &[PathBuf]) -> Result<(), ReportError> {
+    let old_charts = std::fs::read_dir(charts)
+        .map_err(io(charts))?
+        .filter_map(|e| e.ok().map(|e| e.path()))
+        .filter(|p| p.extension().is_some_and(|e| e == "png"));
+    let old_tables = crate::report::COMMAND_FILES.iter().map(|n| dir.join(n));
+    for path in old_charts.chain(old_tables) {
+        if path.exists() && !written.contains(&path) {
+            std::fs::remove_file(&path).map_err(io(&path))?;
+        }
+    }
+    Ok(())
 }
 
 /// Series with an active pin or corridor, in the scenario's order.

@@ -21,7 +21,7 @@ use std::path::Path;
 use rayon::prelude::*;
 
 use super::fans::{QUANTILES, display_path_value, model_value, quantiles, weighted};
-use super::{ReportError, csv_writer};
+use super::{ReportError, Stamp, write_csv};
 use crate::dataset::Transform;
 use crate::scenario::{Setup, Units};
 
@@ -283,36 +283,30 @@ pub fn statistics(
 }
 
 /// `summary.csv`: `series,statistic,label,kind,units,mean,q05,q16,q25,q50,q75,q84,q95`.
-pub fn write_summary(path: &Path, stats: &[Stat]) -> Result<(), ReportError> {
-    let err = |error| ReportError::Csv {
-        path: path.to_path_buf(),
-        error,
-    };
-    let mut w = csv_writer(path)?;
-    let mut head = vec![
-        "series".to_string(),
-        "statistic".into(),
-        "label".into(),
-        "kind".into(),
-        "units".into(),
-        "mean".into(),
-    ];
-    head.extend(QUANTILES.iter().map(|q| format!("q{:02.0}", 100.0 * q)));
-    w.write_record(&head).map_err(err)?;
-    for s in stats {
-        let mut rec = vec![
-            s.series.clone(),
-            s.statistic.clone(),
-            s.label.clone(),
-            s.kind.label().to_string(),
-            s.units.clone(),
-            s.mean.to_string(),
+pub fn write_summary(path: &Path, stamp: &Stamp, stats: &[Stat]) -> Result<(), ReportError> {
+    write_csv(path, stamp, |w| {
+        let mut head = vec![
+            "series".to_string(),
+            "statistic".into(),
+            "label".into(),
+            "kind".into(),
+            "units".into(),
+            "mean".into(),
         ];
-        rec.extend(s.quantiles.iter().map(|q| q.to_string()));
-        w.write_record(&rec).map_err(err)?;
-    }
-    w.flush().map_err(|error| ReportError::Io {
-        path: path.to_path_buf(),
-        error,
+        head.extend(QUANTILES.iter().map(|q| format!("q{:02.0}", 100.0 * q)));
+        w.write_record(&head)?;
+        for s in stats {
+            let mut rec = vec![
+                s.series.clone(),
+                s.statistic.clone(),
+                s.label.clone(),
+                s.kind.label().to_string(),
+                s.units.clone(),
+                s.mean.to_string(),
+            ];
+            rec.extend(s.quantiles.iter().map(|q| q.to_string()));
+            w.write_record(&rec)?;
+        }
+        Ok(())
     })
 }
