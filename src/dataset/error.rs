@@ -26,16 +26,25 @@ pub enum DatasetError {
     )]
     Empty { file: String },
     #[error(
-        "{file}, line {line}: the header has only the date column; add at least one series column"
+        "{file}, line {line}: the header has only the date column; {}",
+        match separator {
+            Some(c) => format!("the columns look separated by {} — save the file with commas between columns (CSV)", separator_name(*c)),
+            None => "add at least one series column".into(),
+        }
     )]
-    NoSeries { file: String, line: u64 },
+    NoSeries {
+        file: String,
+        line: u64,
+        /// Another separator seen in the only column.
+        separator: Option<char>,
+    },
     #[error("{file}, line {line}, column {column}: the series name is empty")]
     EmptyName {
         file: String,
         line: u64,
         column: usize,
     },
-    #[error("{file}, line {line}: series name {name:?} is used by more than one column ({})", join_columns(.columns))]
+    #[error("{file}, line {line}: series name {} is used by more than one column ({})", quoted(.name), join_columns(.columns))]
     DuplicateName {
         file: String,
         line: u64,
@@ -58,8 +67,8 @@ pub enum DatasetError {
         error: PeriodError,
     },
     #[error(
-        "{file}, line {line}: date {text:?} is {}, but line {first_line} has {} ({first_text:?}); use one date style throughout",
-        .style.describe(), .first_style.describe()
+        "{file}, line {line}: date {} is {}, but line {first_line} has {} ({}); use one date style throughout",
+        quoted(.text), .style.describe(), .first_style.describe(), quoted(.first_text)
     )]
     MixedDateStyles {
         file: String,
@@ -71,7 +80,8 @@ pub enum DatasetError {
         first_style: LabelStyle,
     },
     #[error(
-        "{file}, line {line}: cannot tell the frequency from the dates {first_text:?} (line {first_line}) and {text:?}; consecutive ISO dates must be one month apart (monthly data) or three months apart (quarterly data)"
+        "{file}, line {line}: cannot tell the frequency from the dates {} (line {first_line}) and {}; consecutive ISO dates must be one month apart (monthly data) or three months apart (quarterly data)",
+        quoted(.first_text), quoted(.text)
     )]
     UnclearFrequency {
         file: String,
@@ -95,6 +105,16 @@ pub enum DatasetError {
         first_line: u64,
     },
     #[error(
+        "{file}, line {line}: {period} comes after {after} (line {after_line}): the dates are out of order; sort the rows by date"
+    )]
+    Unsorted {
+        file: String,
+        line: u64,
+        period: Period,
+        after_line: u64,
+        after: Period,
+    },
+    #[error(
         "{file}, line {line}: {period} comes after {previous}; dates must run forward one period per row"
     )]
     OutOfOrder {
@@ -103,7 +123,7 @@ pub enum DatasetError {
         period: Period,
         previous: Period,
     },
-    #[error("{file}, line {line}, column {column} ({series}): {text:?} is not a number")]
+    #[error("{file}, line {line}, column {column} ({}): {} is not a number", short(.series), quoted(.text))]
     NotANumber {
         file: String,
         line: u64,
@@ -111,7 +131,7 @@ pub enum DatasetError {
         series: String,
         text: String,
     },
-    #[error("{file}, line {line}, column {column} ({series}): {text:?} is too large a number")]
+    #[error("{file}, line {line}, column {column} ({}): {} is too large a number", short(.series), quoted(.text))]
     OutOfRange {
         file: String,
         line: u64,
@@ -188,6 +208,39 @@ fn join_columns(columns: &[usize]) -> String {
         [] => String::new(),
         [one] => format!("column {one}"),
         [init @ .., last] => format!("columns {} and {last}", init.join(", ")),
+    }
+}
+
+/// `text` in quotes for a message, cut to its first 40 characters when longer (a 5 MB cell
+/// is not echoed whole).
+pub fn quoted(text: &str) -> String {
+    let (head, rest) = cut(text);
+    format!("{head:?}{rest}")
+}
+
+/// `text` for a message without quotes (a series name), cut like [`quoted`].
+pub fn short(text: &str) -> String {
+    let (head, rest) = cut(text);
+    format!("{head}{rest}")
+}
+
+fn cut(text: &str) -> (&str, String) {
+    const SHOWN: usize = 40;
+    match text.char_indices().nth(SHOWN) {
+        None => (text, String::new()),
+        Some((at, _)) => (
+            &text[..at],
+            format!("… ({} characters)", text.chars().count()),
+        ),
+    }
+}
+
+/// A separator as people name it.
+fn separator_name(c: char) -> &'static str {
+    match c {
+        ';' => "semicolons (;)",
+        '\t' => "tabs",
+        _ => "vertical bars (|)",
     }
 }
 

@@ -23,7 +23,7 @@ mod tests;
 
 use std::path::{Path, PathBuf};
 
-pub use error::DatasetError;
+pub use error::{DatasetError, quoted, short};
 pub use period::{Frequency, LabelStyle, Period, PeriodError};
 pub use transform::Transform;
 

@@ -6,6 +6,7 @@
 //! `2004M07`) and ISO dates (`2004-07-01`), which map to the quarter or month
 //! containing them.
 
+use super::error::quoted;
 use std::fmt;
 
 use serde::{Deserialize, Serialize};
@@ -176,15 +177,15 @@ impl LabelStyle {
 pub enum PeriodError {
     #[error("the date is empty (expected a label like 2004Q3, 2004-07 or 2004-07-01)")]
     Empty,
-    #[error("{text:?} is not a quarter (expected like 2004Q3)")]
+    #[error("{} is not a quarter (expected like 2004Q3)", quoted(.text))]
     BadQuarter { text: String },
-    #[error("{text:?} is not a month (expected like 2004-07 or 2004M07)")]
+    #[error("{} is not a month (expected like 2004-07 or 2004M07)", quoted(.text))]
     BadMonth { text: String },
-    #[error("{text:?} is not a calendar date (expected like 2004-07-01)")]
+    #[error("{} is not a calendar date (expected like 2004-07-01)", quoted(.text))]
     BadDate { text: String },
-    #[error("{text:?} is not a date label (expected like 2004Q3, 2004-07 or 2004-07-01)")]
+    #[error("{} is not a date label (expected like 2004Q3, 2004-07 or 2004-07-01)", quoted(.text))]
     Unrecognised { text: String },
-    #[error("{text:?} is {}, but the data are {freq} (expected like {})", .style.describe(), .freq.example())]
+    #[error("{} is {}, but the data are {freq} (expected like {})", quoted(.text), .style.describe(), .freq.example())]
     WrongFrequency {
         text: String,
         style: LabelStyle,

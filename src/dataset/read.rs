@@ -134,9 +134,12 @@ fn parse_header(file: &str, line: u64, header: &StringRecord) -> Result<Vec<Stri
         return Err(DatasetError::Empty { file: file.into() });
     }
     if cells.len() < 2 {
+        // A file saved with another separator reads as one column: name the separator.
+        let separator = [';', '\t', '|'].into_iter().find(|c| cells[0].contains(*c));
         return Err(DatasetError::NoSeries {
             file: file.into(),
             line,
+            separator,
         });
     }
     let names: Vec<String> = cells[1..].iter().map(|c| c.to_string()).collect();
@@ -147,19 +150,18 @@ fn parse_header(file: &str, line: u64, header: &StringRecord) -> Result<Vec<Stri
             column: j + 2,
         });
     }
+    // Columns by name, in one pass (a header of 200,000 columns takes a moment, not minutes).
+    let mut seen: std::collections::HashMap<&str, Vec<usize>> = Default::default();
     for (j, name) in names.iter().enumerate() {
-        let columns: Vec<usize> = (j..names.len())
-            .filter(|&k| names[k] == *name)
-            .map(|k| k + 2)
-            .collect();
-        if columns.len() > 1 {
-            return Err(DatasetError::DuplicateName {
-                file: file.into(),
-                line,
-                name: name.clone(),
-                columns,
-            });
-        }
+        seen.entry(name.as_str()).or_default().push(j + 2);
+    }
+    if let Some(name) = names.iter().find(|n| seen[n.as_str()].len() > 1) {
+        return Err(DatasetError::DuplicateName {
+            file: file.into(),
+            line,
+            name: name.clone(),
+            columns: seen[name.as_str()].clone(),
+        });
     }
     Ok(names)
 }

@@ -125,6 +125,20 @@ fn check_consecutive(file: &str, rows: &[Row], periods: &[Period]) -> Result<(),
                 first_line,
             });
         } else if step > 1 {
+            // A "missing" period that appears further down: the rows are out of order.
+            let later = rows
+                .iter()
+                .zip(periods)
+                .find(|(_, p)| p.periods_since(&previous) > 0 && period.periods_since(p) > 0);
+            if let Some((later_row, &later_period)) = later {
+                return Err(DatasetError::Unsorted {
+                    file,
+                    line: later_row.line,
+                    period: later_period,
+                    after_line: line,
+                    after: period,
+                });
+            }
             return Err(DatasetError::DateGap {
                 file,
                 line,

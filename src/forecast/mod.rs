@@ -85,7 +85,7 @@ pub enum ForecastError {
         draw: Option<usize>,
     },
     #[error(
-        "the paths overflow{}: the parameters are explosive over this horizon. Shorten the horizon, or keep only stationary draws (largest_root: below(1.0))",
+        "the paths overflow{}: their values leave the range of numbers, in the model's units or in a series' display units (explosive parameters over this horizon, or conditions far outside the data's range)",
         at_draw(*draw)
     )]
     NotFinite { draw: Option<usize> },
@@ -152,7 +152,7 @@ fn not_stationary(
 fn remedy(e: &ForecastError) -> &'static str {
     match e {
         ForecastError::NotFinite { .. } => {
-            "Shorten the horizon, or keep only stationary draws (largest_root: below(1.0))"
+            "Check the conditions' values and units, shorten the horizon, or keep only stationary draws (largest_root: below(1.0))"
         }
         ForecastError::TooImprobable { .. } => {
             "Widen the corridors or move them towards the forecast"

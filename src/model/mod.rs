@@ -97,6 +97,10 @@ impl Default for MinnesotaSettings {
     }
 }
 
+/// Largest lag decay accepted: `4^(2·10) ≈ 10¹²`, a prior variance ratio beyond which the
+/// longer lags are pinned at zero for any data.
+const MAX_LAG_DECAY: f64 = 10.0;
+
 impl MinnesotaSettings {
     /// Reject values the prior cannot use, naming the field.
     pub fn validate(&self) -> Result<(), ModelError> {
@@ -114,8 +118,11 @@ impl MinnesotaSettings {
         {
             return bad("tightness", "must be a positive number or auto");
         }
-        if !self.lag_decay.is_finite() || self.lag_decay < 0.0 {
-            return bad("lag_decay", "must be a number ≥ 0");
+        if !(0.0..=MAX_LAG_DECAY).contains(&self.lag_decay) {
+            return bad(
+                "lag_decay",
+                "must be a number from 0 to 10 (common practice: 1 or 2; beyond 10 the prior of the longer lags is zero to machine precision)",
+            );
         }
         if !(self.intercept_scale.is_finite() && self.intercept_scale > 0.0) {
             return bad("intercept_scale", "must be a positive number");

@@ -129,13 +129,15 @@ pub fn conjugate(
 /// Flat-prior (OLS) posterior: `IW(Ê'Ê, T − k)` around `B̂`.
 pub fn flat(y: &DMatrix<f64>, x: &DMatrix<f64>) -> Result<Posterior, ModelError> {
     let (t, k, n) = (x.nrows(), x.ncols(), y.ncols());
-    if t < k + n {
+    // ν̄ = T − k degrees of freedom; the posterior mean of Σ, S̄/(ν̄ − n − 1), which the checks
+    // use, exists only when ν̄ > n + 1: T ≥ k + n + 2.
+    let needed = k + n + 2;
+    if t < needed {
         return Err(ModelError::TooFewObservations {
             rows: t,
-            needed: k + n,
+            needed,
             why: format!(
-                "the flat prior needs at least k + n = {} + {} usable rows",
-                k, n
+                "the flat prior needs at least k + n + 2 = {k} + {n} + 2 usable rows (k = 1 + lags × series coefficients per equation, and more than n + 1 degrees of freedom left for the mean of Σ to exist); use a Minnesota prior, fewer lags or fewer series"
             ),
         });
     }
@@ -147,20 +149,40 @@ pub fn flat(y: &DMatrix<f64>, x: &DMatrix<f64>) -> Result<Posterior, ModelError>
 /// Coefficients, the triangular factor `R` of `X = QR`, and residuals.
 type LeastSquares = (DMatrix<f64>, DMatrix<f64>, DMatrix<f64>);
 
+/// Least squares by Householder QR of `X` with its columns scaled to unit length first
+/// (`X = X̃ D`), so that collinearity is judged on each column's own scale: a regressor near
+/// 1e-9 beside one near 1e12 is not collinear. `R = R̃ D` is the factor of `X` itself.
 fn least_squares(x: &DMatrix<f64>, y: &DMatrix<f64>) -> Result<LeastSquares, ModelError> {
-    let qr = x.clone().qr();
-    let r = qr.r();
-    let scale = r.diagonal().amax();
-    if r.diagonal()
+    let norms: Vec<f64> = x.column_iter().map(|c| c.norm()).collect();
+    if norms.iter().any(|&d| !(d.is_finite() && d > 0.0)) {
+        return Err(ModelError::Collinear);
+    }
+    let mut scaled = x.clone();
+    for (mut col, d) in scaled.column_iter_mut().zip(&norms) {
+        col.unscale_mut(*d);
+    }
+    let qr = scaled.qr();
+    let r_scaled = qr.r();
+    // Unit columns: |R̃_ii| is column i's distance from the span of those before it, relative
+    // to its own length; below 1e-13 it is a copy of them to rounding.
+    if r_scaled
+        .diagonal()
         .iter()
-        .any(|d| d.abs() <= 1e-13 * scale || d.is_nan())
+        .any(|d| d.abs() <= 1e-13 || d.is_nan())
     {
         return Err(ModelError::Collinear);
     }
     let qty = qr.q().transpose() * y;
-    let b = r
+    let mut b = r_scaled
         .solve_upper_triangular(&qty)
         .ok_or(ModelError::Collinear)?;
+    for (mut row, d) in b.row_iter_mut().zip(&norms) {
+        row.unscale_mut(*d);
+    }
+    let mut r = r_scaled;
+    for (mut col, d) in r.column_iter_mut().zip(&norms) {
+        col.scale_mut(*d);
+    }
     let resid = y - x * &b;
     Ok((b, r, resid))
 }

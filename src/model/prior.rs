@@ -113,7 +113,9 @@ impl MinnesotaPrior {
 }
 
 /// `s_i²` of an AR(1) with intercept fitted to each series over the regression rows,
-/// floored at `1e-8 · max(1, |mean|)` squared. Returns the scales and the series floored.
+/// floored at `(1e-8 · max |y_i|)²`, relative to the series' own size (a series that is
+/// identically zero: `1e-16`). Returns the scales and the series floored (constant over the
+/// rows to eight digits).
 pub fn residual_scales(reg: &Regression) -> (Vec<f64>, Vec<usize>) {
     let t = reg.t();
     let mut floored = Vec::new();
@@ -135,7 +137,8 @@ pub fn residual_scales(reg: &Regression) -> (Vec<f64>, Vec<usize>) {
                 .map(|(a, b)| (b - my - slope * (a - mx)).powi(2))
                 .sum();
             let s2 = ssr / (t as f64 - 2.0);
-            let floor = (1e-8 * my.abs().max(1.0)).powi(2);
+            let size = y.amax();
+            let floor = (1e-8 * if size > 0.0 { size } else { 1.0 }).powi(2);
             if s2.is_nan() || s2 <= floor {
                 floored.push(i);
                 floor

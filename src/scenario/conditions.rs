@@ -78,7 +78,7 @@ impl Setup {
                     ScenarioError::UnknownSeries {
                         field: format!("{field}.series"),
                         name: name.clone(),
-                        known: self.names.join(", "),
+                        known: super::listing(&self.names),
                     }
                 })?;
                 Ok((About::Series(i), format!("{name} {}", units.label())))

@@ -54,7 +54,7 @@ pub enum ScenarioError {
     },
     #[error(
         "too few observations: the estimation window {window} has {rows} periods, but {lags} lags need at least {} (lags + 3)",
-        lags + 3
+        lags.saturating_add(3)
     )]
     TooFewObservations {
         rows: usize,
@@ -67,20 +67,69 @@ pub enum ScenarioError {
     Model(ModelError),
 }
 
+/// Names for a message: all of them when few, else the first twelve and how many more.
+pub fn listing(names: &[String]) -> String {
+    const SHOWN: usize = 12;
+    let shown: Vec<String> = names
+        .iter()
+        .take(SHOWN)
+        .map(|n| crate::dataset::short(n))
+        .collect();
+    match names.len().saturating_sub(SHOWN) {
+        0 => shown.join(", "),
+        more => format!("{} and {more} more", shown.join(", ")),
+    }
+}
+
 fn ron_options() -> ron::Options {
     ron::Options::default().with_default_extension(ron::extensions::Extensions::IMPLICIT_SOME)
 }
 
 /// Parse scenario text; `path` is used in messages only.
 pub fn parse(text: &str, path: &Path) -> Result<ScenarioFile, ScenarioError> {
-    ron_options()
-        .from_str(text)
-        .map_err(|e| ScenarioError::Syntax {
+    ron_options().from_str(text).map_err(|e| {
+        let (line, column) = (e.span.start.line, e.span.start.col);
+        // The parser notices a string left open only where the next quote closes it: name the
+        // earlier line whose quotes do not pair up.
+        let open = text
+            .lines()
+            .take(line.saturating_sub(1))
+            .position(unpaired_quote)
+            .map(|i| {
+                format!(
+                    " (line {} has a string that is not closed: a \" is missing)",
+                    i + 1
+                )
+            })
+            .unwrap_or_default();
+        ScenarioError::Syntax {
             path: path.to_path_buf(),
-            line: e.span.start.line,
-            column: e.span.start.col,
-            message: plain_names(&e.code.to_string()),
-        })
+            line,
+            column,
+            message: format!("{}{open}", plain_names(&e.code.to_string())),
+        }
+    })
+}
+
+/// True when a line (outside its `//` comment) has an odd number of unescaped quotes.
+fn unpaired_quote(line: &str) -> bool {
+    let mut quotes = 0;
+    let mut chars = line.chars().peekable();
+    let mut inside = false;
+    while let Some(c) = chars.next() {
+        match c {
+            '\\' if inside => {
+                chars.next();
+            }
+            '"' => {
+                inside = !inside;
+                quotes += 1;
+            }
+            '/' if !inside && chars.peek() == Some(&'/') => break,
+            _ => {}
+        }
+    }
+    quotes % 2 == 1
 }
 
 /// Error messages speak of the file's parts, not of the program's type names.
@@ -104,11 +153,30 @@ fn plain_names(message: &str) -> String {
     .fold(message.to_string(), |m, (from, to)| m.replace(from, to))
 }
 
-/// Read and parse a scenario file.
+/// Read and parse a scenario file (UTF-8 text; a byte that is not names its line).
 pub fn read(path: &Path) -> Result<ScenarioFile, ScenarioError> {
-    let text = std::fs::read_to_string(path).map_err(|error| ScenarioError::Io {
+    let bytes = std::fs::read(path).map_err(|error| ScenarioError::Io {
         path: path.to_path_buf(),
         error,
+    })?;
+    let text = String::from_utf8(bytes).map_err(|e| {
+        let at = e.utf8_error().valid_up_to();
+        let bytes = e.as_bytes();
+        let line = 1 + bytes[..at].iter().filter(|&&b| b == b'\n').count();
+        let column = 1 + at
+            - bytes[..at]
+                .iter()
+                .rposition(|&b| b == b'\n')
+                .map_or(0, |p| p + 1);
+        ScenarioError::Syntax {
+            path: path.to_path_buf(),
+            line,
+            column,
+            message: format!(
+                "byte 0x{:02x} is not UTF-8 text; save the scenario as UTF-8",
+                bytes[at]
+            ),
+        }
     })?;
     parse(&text, path)
 }

@@ -9,13 +9,15 @@ use super::{
     ScenarioError,
     schema::{ModelSpec, ScenarioFile, Units},
 };
-use crate::dataset::{Dataset, Period, Transform};
+use crate::dataset::{Dataset, DatasetError, Period, Transform};
 use crate::forecast::ParamSource;
 use crate::model::{FitSummary, Params, Regression, Window, estimate_minnesota, posterior::flat};
 
 /// Upper limits that keep a typo from asking for hours of work.
 pub const MAX_HORIZON: usize = 400;
 pub const MAX_DRAWS: usize = 1_000_000;
+/// Most sub-scenarios a blame search may be asked to evaluate (each is a conditioning).
+pub const MAX_BLAME_BUDGET: usize = 100_000;
 
 /// A scenario with its dataset loaded and checked.
 #[derive(Debug, Clone)]
@@ -37,8 +39,23 @@ impl Setup {
     /// Load the dataset a scenario refers to and check everything that does not need the model.
     pub fn new(file: ScenarioFile, path: &Path) -> Result<Setup, ScenarioError> {
         check_counts(&file)?;
-        let base = path.parent().unwrap_or(Path::new("."));
-        let dataset = Dataset::read(&base.join(&file.dataset))?;
+        let base = path
+            .parent()
+            .filter(|b| !b.as_os_str().is_empty())
+            .unwrap_or(Path::new("."));
+        let dataset = Dataset::read(&base.join(&file.dataset)).map_err(|e| match e {
+            DatasetError::Io { file: name, error } => ScenarioError::Invalid {
+                field: "dataset".into(),
+                why: format!(
+                    "cannot read {name} ({:?} is read from the scenario's own folder, {}): {error}",
+                    file.dataset,
+                    std::path::absolute(base)
+                        .unwrap_or_else(|_| base.to_path_buf())
+                        .display()
+                ),
+            },
+            other => other.into(),
+        })?;
         let mut transforms_all = vec![Transform::AsIs; dataset.names.len()];
         let mut picked = Vec::new();
         for (k, s) in file.series.iter().enumerate() {
@@ -46,7 +63,7 @@ impl Setup {
                 return Err(ScenarioError::UnknownSeries {
                     field: format!("series[{k}]"),
                     name: s.name.clone(),
-                    known: dataset.names.join(", "),
+                    known: super::listing(&dataset.names),
                 });
             };
             if picked.contains(&i) {
@@ -65,10 +82,15 @@ impl Setup {
             });
         }
         for (k, s) in file.series.iter().enumerate() {
-            if s.display == Units::Average(0) {
+            if let Units::Average(periods) = s.display
+                && !(1..=dataset.len()).contains(&periods)
+            {
                 return Err(ScenarioError::Invalid {
                     field: format!("series[{k}].display"),
-                    why: "average needs at least 1 period".into(),
+                    why: format!(
+                        "average needs from 1 to {} periods (the dataset's length), got {periods}",
+                        dataset.len()
+                    ),
                 });
             }
         }
@@ -194,7 +216,7 @@ impl Setup {
         }
         let (first, last) = self.window_rows(window)?;
         let rows = last + 1 - first;
-        if rows < p + 3 {
+        if rows < p.saturating_add(3) {
             return Err(ScenarioError::TooFewObservations {
                 rows,
                 lags: p,
@@ -246,7 +268,7 @@ impl Setup {
             .ok_or_else(|| ScenarioError::UnknownShock {
                 field: field.into(),
                 name: name.into(),
-                known: self.names.join(", "),
+                known: super::listing(&self.names),
             })
     }
 
@@ -296,6 +318,33 @@ pub fn check_counts(file: &ScenarioFile) -> Result<(), ScenarioError> {
         return bad("draws", format!("must be between 1 and {MAX_DRAWS}"));
     }
     let checks = &file.checks;
+    for (field, p) in [
+        ("checks.corridor_probability", checks.corridor_probability),
+        ("checks.pin_tail", checks.pin_tail),
+        ("checks.min_acceptance", checks.min_acceptance),
+    ] {
+        if !(p > 0.0 && p < 1.0) {
+            return bad(
+                field,
+                format!("must be a probability above 0 and below 1, got {p}"),
+            );
+        }
+    }
+    if !(checks.pin_z.is_finite() && checks.pin_z > 0.0) {
+        return bad(
+            "checks.pin_z",
+            format!(
+                "must be a positive number of standard deviations (common practice: 3), got {}",
+                checks.pin_z
+            ),
+        );
+    }
+    if checks.blame_budget == 0 || checks.blame_budget > MAX_BLAME_BUDGET {
+        return bad(
+            "checks.blame_budget",
+            format!("must be between 1 and {MAX_BLAME_BUDGET}"),
+        );
+    }
     for (field, share) in [
         ("checks.max_failed_share", checks.max_failed_share),
         ("checks.min_kept_share", checks.min_kept_share),
@@ -342,7 +391,7 @@ fn resolve_ordering(file: &ScenarioFile, names: &[String]) -> Result<Vec<usize>,
                 .ok_or_else(|| ScenarioError::UnknownSeries {
                     field: format!("ordering[{k}]"),
                     name: name.clone(),
-                    known: names.join(", "),
+                    known: super::listing(names),
                 })?;
         if idx.contains(&i) {
             return Err(ScenarioError::Invalid {

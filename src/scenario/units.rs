@@ -43,7 +43,7 @@ pub enum UnitsError {
         value: f64,
     },
     #[error("it reaches {periods} periods before the first observation")]
-    BeforeSample { periods: i64 },
+    BeforeSample { periods: usize },
     #[error("average over {0} periods: need at least 1")]
     EmptyAverage(usize),
     #[error(
@@ -126,7 +126,7 @@ pub fn pin_row(
         && k > t + history.len()
     {
         return Err(UnitsError::BeforeSample {
-            periods: (k - t - history.len()) as i64,
+            periods: k - t - history.len(),
         });
     }
     let (terms, mut rhs) = statement(units, transform, value, f)?;
@@ -139,7 +139,7 @@ pub fn pin_row(
             let back = (-at) as usize; // 0 = last observation
             let Some(&x) = history.len().checked_sub(1 + back).map(|k| &history[k]) else {
                 return Err(UnitsError::BeforeSample {
-                    periods: back as i64 + 1 - history.len() as i64,
+                    periods: back + 1 - history.len(),
                 });
             };
             rhs -= a * x;
