@@ -398,6 +398,7 @@ fn describe(e: &ForecastError) -> (&'static str, Vec<String>, &'static str) {
         | ForecastError::TooManyFailed { .. }
         | ForecastError::Unsupported { .. }
         | ForecastError::GaveUp { .. }
+        | ForecastError::SamplerBound { .. }
         | ForecastError::Cancelled => (
             "numerical",
             Vec::new(),

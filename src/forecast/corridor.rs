@@ -174,6 +174,7 @@ fn explain(
             acceptance: 1.0 / proposals as f64,
             draw,
         },
+        TruncError::BoundExceeded { by } => ForecastError::SamplerBound { by, draw },
         other => ForecastError::Singular(format!("the corridor covariance ({other})")),
     }
 }

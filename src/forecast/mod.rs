@@ -125,6 +125,11 @@ pub enum ForecastError {
         proposals: usize,
         draw: Option<usize>,
     },
+    #[error(
+        "the corridor sampler's bound was exceeded{} (by {by:.2e} in log terms): its saddle point is not the maximum, so the draw would be biased; it is set aside",
+        at_draw(*draw)
+    )]
+    SamplerBound { by: f64, draw: Option<usize> },
     #[error("cancelled")]
     Cancelled,
 }
@@ -189,6 +194,9 @@ impl ForecastError {
                 draw: Some(i),
             },
             ForecastError::NotFinite { draw: None } => ForecastError::NotFinite { draw: Some(i) },
+            ForecastError::SamplerBound { by, draw: None } => {
+                ForecastError::SamplerBound { by, draw: Some(i) }
+            }
             ForecastError::GaveUp {
                 proposals,
                 draw: None,

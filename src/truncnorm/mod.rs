@@ -79,4 +79,8 @@ pub enum TruncError {
     Singular { index: usize },
     #[error("no draw accepted in {proposals} proposals: the box is too improbable to sample")]
     TooImprobable { proposals: usize },
+    #[error(
+        "a proposal's log ratio exceeded the sampler's bound ψ* by {by:.2e}: the saddle point is not the maximum, and accepting would bias the draw"
+    )]
+    BoundExceeded { by: f64 },
 }

@@ -17,6 +17,11 @@ use super::{
     univariate,
 };
 
+/// Relative rounding allowed in `ψ(w) ≤ ψ*`: ψ sums `d` logarithms of probabilities and
+/// quadratic terms, each exact to a few units of 1e-16; 1e-10 leaves room for d in the
+/// thousands, and an excess that small changes an acceptance probability by 1e-10.
+const BOUND_ROUNDING: f64 = 1e-10;
+
 /// A truncated multivariate normal, ready to sample.
 #[derive(Debug, Clone)]
 pub struct TruncatedNormal {
@@ -202,8 +207,13 @@ impl TruncatedNormal {
         for _ in 0..max_proposals {
             let (w, lw) = self.propose(rng, true);
             let u: f64 = rng.random();
-            // Accept with probability exp(ψ(w) − ψ*) ≤ 1.
-            if u.ln() < lw - self.tilt.psi_star {
+            // Accept with probability exp(ψ(w) − ψ*) ≤ 1; a ratio above the bound (beyond
+            // the rounding of ψ) would make that probability exceed one and bias the draw.
+            let excess = lw - self.tilt.psi_star;
+            if excess > BOUND_ROUNDING * (1.0 + self.tilt.psi_star.abs()) {
+                return Err(TruncError::BoundExceeded { by: excess });
+            }
+            if u.ln() < excess {
                 let x = self.order.unscale(&w);
                 if keep(&x) {
                     return Ok(x);
@@ -275,6 +285,21 @@ mod tests {
     use super::*;
     use rand::SeedableRng;
     use rand_chacha::ChaCha8Rng;
+
+    /// The bound is checked: a sampler whose `ψ*` is below the maximum of `ψ` (here lowered
+    /// on purpose by 5) refuses rather than accept with "probability" above one.
+    #[test]
+    fn a_proposal_above_the_bound_is_refused() {
+        let sigma = DMatrix::from_row_slice(2, 2, &[1.0, 0.3, 0.3, 1.0]);
+        let mut tn = TruncatedNormal::new(&sigma, &[0.5, -1.0], &[2.0, 1.0]).unwrap();
+        let mut rng = ChaCha8Rng::seed_from_u64(3);
+        assert!(tn.sample(&mut rng, 1000).is_ok());
+        tn.tilt.psi_star -= 5.0;
+        match tn.sample(&mut rng, 1000) {
+            Err(TruncError::BoundExceeded { by }) => assert!(by > 0.0),
+            other => panic!("expected the bound to be exceeded, got {other:?}"),
+        }
+    }
 
     /// The last resort of the saddle-point search (`μ = 0`, `ψ* = 0`) is still exact: its draws
     /// have the moments of the tilted sampler's, and its probability estimate (then the
