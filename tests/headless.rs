@@ -137,6 +137,65 @@ fn a_run_removes_the_files_of_an_earlier_one() {
     assert_eq!(names, vec!["checks.json".to_string()], "{names:?}");
 }
 
+/// Killed at any moment, a run leaves each of its files whole: the earlier run's or its own,
+/// never a torn one (each is written to a temporary file and renamed into place); the next
+/// run clears the temporary files a killed one left.
+#[test]
+fn a_killed_run_leaves_whole_files() {
+    let out = tempfile::tempdir().unwrap();
+    let run = |draws: &str| {
+        tiltyard()
+            .args([
+                "run",
+                &demo("adverse.ron"),
+                "--keep-draws",
+                "--draws",
+                draws,
+                "--out",
+            ])
+            .arg(out.path())
+            .spawn()
+            .unwrap()
+    };
+    assert!(run("100").wait().unwrap().success());
+    // Whole files: the stamp line, the header, and complete records (a whole draws.csv has
+    // one row per draw, period and series of either run).
+    let whole = |name: &str, fields: usize| {
+        let text = std::fs::read_to_string(out.path().join(name)).unwrap();
+        let mut lines = text.lines();
+        assert!(lines.next().unwrap().starts_with("# "), "{name}: no stamp");
+        let rows: Vec<&str> = lines.skip(1).collect();
+        assert!(
+            rows.iter().all(|r| r.split(',').count() == fields),
+            "{name}: a torn record"
+        );
+        assert!(text.ends_with('\n'), "{name}: cut short");
+        rows.len()
+    };
+    for delay in [150, 300, 450, 600, 750, 900] {
+        let mut child = run("3000");
+        std::thread::sleep(std::time::Duration::from_millis(delay));
+        let _ = child.kill();
+        let _ = child.wait();
+        assert_eq!(whole("fans.csv", 13), 10 * 12 * 2);
+        let draws = whole("draws.csv", 4);
+        assert!(
+            draws == 100 * 120 || draws == 3000 * 120,
+            "draws.csv has {draws} rows"
+        );
+        whole("summary.csv", 13);
+        let checks = std::fs::read_to_string(out.path().join("checks.json")).unwrap();
+        serde_json::from_str::<serde_json::Value>(&checks).expect("checks.json whole");
+    }
+    assert!(run("20").wait().unwrap().success());
+    let left: Vec<String> = std::fs::read_dir(out.path())
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .filter(|n| n.contains(".tmp"))
+        .collect();
+    assert!(left.is_empty(), "temporary files left: {left:?}");
+}
+
 /// An output folder that cannot be written is refused before any sampling.
 #[test]
 fn an_unwritable_output_folder_is_refused_first() {

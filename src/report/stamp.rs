@@ -80,6 +80,16 @@ impl Outputs {
         let probe = dir.join(format!(".tiltyard-probe-{}", std::process::id()));
         std::fs::write(&probe, b"").map_err(io)?;
         std::fs::remove_file(&probe).map_err(io)?;
+        // Temporary files of a command killed while writing (`.fans.csv.<pid>.tmp.csv`).
+        for entry in std::fs::read_dir(dir).map_err(io)?.flatten() {
+            let name = entry.file_name().to_string_lossy().into_owned();
+            let ours = COMMAND_FILES
+                .iter()
+                .any(|f| name.starts_with(&format!(".{f}.")) && name.contains(".tmp"));
+            if ours {
+                let _ = std::fs::remove_file(entry.path());
+            }
+        }
         Ok(Outputs {
             dir: dir.to_path_buf(),
             written: Vec::new(),
