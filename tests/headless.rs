@@ -296,7 +296,21 @@ fn check_command_reports_strain_and_clash() {
             .contains("not predictions")
     );
     assert!(json["corridors"]["log10_probability"].as_f64().unwrap() < -3.0);
-    assert!(json["plausibility"]["coin"].as_f64().unwrap() > 0.5);
+    // The coin in the file solves its defining equation −½ ln(4q(1 − q)) = D (McCulloch
+    // 1989) for the divergence in the file: 1 − q = (1 − √(1 − e^{−2D}))/2 ≈ e^{−2D}/4, which
+    // rounds q to exactly 1 once D > ½ ln(1/(4·2⁻⁵³)) ≈ 17.7.
+    let (q, d) = (
+        json["plausibility"]["coin"].as_f64().unwrap(),
+        json["plausibility"]["divergence"].as_f64().unwrap(),
+    );
+    if q < 1.0 {
+        assert!(
+            (-0.5 * (4.0 * q * (1.0 - q)).ln() - d).abs() < 1e-6 * d,
+            "{q} {d}"
+        );
+    } else {
+        assert!(d > 17.7, "coin 1 needs a divergence above 17.7, got {d}");
+    }
 
     let clash = tiltyard()
         .args(["check", &demo("clash.ron"), "--out"])
