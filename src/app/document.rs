@@ -26,6 +26,9 @@ pub struct Document {
     redo: Vec<ScenarioFile>,
     /// Inside a gesture: further edits join the entry made when it began.
     in_gesture: bool,
+    /// Changes made (edits, undos, redos): ever, and since the file was last opened or saved.
+    changes: u64,
+    changes_since_save: usize,
 }
 
 impl Document {
@@ -45,7 +48,24 @@ impl Document {
             undo: Vec::new(),
             redo: Vec::new(),
             in_gesture: false,
+            changes: 0,
+            changes_since_save: 0,
         }
+    }
+
+    /// A number that grows with every change (to tell whether the recovery file is behind).
+    pub fn changes(&self) -> u64 {
+        self.changes
+    }
+
+    /// Changes since the file was last opened or saved.
+    pub fn changes_since_save(&self) -> usize {
+        self.changes_since_save
+    }
+
+    fn changed(&mut self) {
+        self.changes += 1;
+        self.changes_since_save += 1;
     }
 
     /// Apply an edit as one undo step (or as part of the current gesture).
@@ -55,6 +75,7 @@ impl Document {
         if self.file == before {
             return;
         }
+        self.changed();
         if !self.in_gesture || self.undo.is_empty() {
             self.undo.push(before);
             if self.undo.len() > HISTORY {
@@ -100,6 +121,7 @@ impl Document {
         match self.undo.pop() {
             Some(previous) => {
                 self.redo.push(std::mem::replace(&mut self.file, previous));
+                self.changed();
                 true
             }
             None => false,
@@ -111,6 +133,7 @@ impl Document {
         match self.redo.pop() {
             Some(next) => {
                 self.undo.push(std::mem::replace(&mut self.file, next));
+                self.changed();
                 true
             }
             None => false,
@@ -135,15 +158,47 @@ impl Document {
                 f.dataset = written.dataset.clone();
             }
         }
+        // Edits made while the save ran stay unsaved (counted as one).
+        self.changes_since_save = usize::from(self.file != written);
         self.saved = written;
         self.path = path.to_path_buf();
         self.untitled = false;
+    }
+
+    /// The recovery file's text: a comment saying what it holds, then the scenario.
+    pub fn recovery_text(&self) -> String {
+        let seconds = std::time::SystemTime::now()
+            .duration_since(std::time::UNIX_EPOCH)
+            .map_or(0, |d| d.as_secs());
+        let n = self.changes_since_save.max(1);
+        format!(
+            "{RECOVERY_NOTE}{n} unsaved change{} to {}, the last at {}.\n{}",
+            if n == 1 { "" } else { "s" },
+            self.path
+                .file_name()
+                .map_or_else(|| "the scenario".into(), |f| f.to_string_lossy()),
+            crate::report::stamp::readable_utc(seconds),
+            scenario::to_text(&self.file)
+        )
     }
 
     /// Where unsaved edits of this scenario are kept against a crash: beside the file, hidden.
     pub fn recovery_path(&self) -> PathBuf {
         recovery_path(&self.path)
     }
+}
+
+/// How the first line of a recovery file begins; the rest says what it holds.
+pub const RECOVERY_NOTE: &str = "// Tiltyard recovery: ";
+
+/// What a recovery file holds, from its first line ("3 unsaved changes to adverse.ron, the
+/// last at 2026-12-04 23:12:05 UTC."), if it says.
+pub fn recovery_note(path: &Path) -> Option<String> {
+    let text = std::fs::read_to_string(path).ok()?;
+    text.lines()
+        .next()?
+        .strip_prefix(RECOVERY_NOTE)
+        .map(|s| s.trim_end_matches('.').to_string())
 }
 
 /// The recovery file of a scenario at `path`: `.<name>.recovery` in the same folder.

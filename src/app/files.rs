@@ -79,8 +79,13 @@ pub enum Answer {
     ExportPack(PathBuf),
 }
 
-/// Unsaved edits found in a recovery file: the scenario they make (or why it cannot be read).
-pub type Recovered = Result<ScenarioFile, String>;
+/// Unsaved edits found in a recovery file: the scenario they make (or why it cannot be read),
+/// and what the file says it holds ("3 unsaved changes to adverse.ron, the last at …").
+#[derive(Debug, Clone, PartialEq)]
+pub struct Recovered {
+    pub file: Result<ScenarioFile, String>,
+    pub note: Option<String>,
+}
 
 /// Read a scenario file for the window, and the recovery file beside it if that is newer.
 pub fn read_scenario(path: &Path) -> (Result<ScenarioFile, String>, Option<Recovered>) {
@@ -98,7 +103,10 @@ pub fn newer_recovery(path: &Path) -> Option<Recovered> {
         (Some(_), None) => true,
         _ => false,
     };
-    newer.then(|| scenario::read(&recovery).map_err(|e| e.to_string()))
+    newer.then(|| Recovered {
+        file: scenario::read(&recovery).map_err(|e| e.to_string()),
+        note: super::document::recovery_note(&recovery),
+    })
 }
 
 /// A new scenario on the dataset at `path`: every column a series, as it is (no transform),

@@ -44,8 +44,9 @@ use crate::scenario::{Bound, CorridorSpec, PinSpec, ScenarioFile};
 
 /// Time the window spends draining the worker's messages per frame.
 const DRAIN_BUDGET: Duration = Duration::from_millis(4);
-/// Unsaved edits are written to the recovery file this often.
-const AUTOSAVE: Duration = Duration::from_secs(20);
+/// Unsaved edits reach the recovery file this long after a change at most (one write per
+/// pause, off the window's thread, so a drag writes twice a second, not every frame).
+const RECOVERY_PAUSE: Duration = Duration::from_millis(500);
 
 /// A question the window is asking.
 #[derive(Debug, Clone, PartialEq)]
@@ -129,8 +130,8 @@ pub struct TiltyardApp {
     after_save_as: Option<AfterSave>,
     wake: Arc<dyn Fn() + Send + Sync>,
     last_autosave: Instant,
-    /// A recovery file was written for the current document.
-    recovery_written: bool,
+    /// The document's change count when its recovery file was last written (none written).
+    recovery_at: Option<u64>,
     close_confirmed: bool,
 }
 
@@ -208,7 +209,7 @@ impl TiltyardApp {
             after_save_as: None,
             wake,
             last_autosave: Instant::now(),
-            recovery_written: false,
+            recovery_at: None,
             close_confirmed: false,
         }
     }
@@ -671,7 +672,7 @@ impl TiltyardApp {
             files::Reply::Saved(save, written) if save.document == self.document => {
                 self.saving = false;
                 self.doc.saved_as(&save.to, *written, &save.file.dataset);
-                self.recovery_written = false;
+                self.recovery_at = None;
                 self.notice = None;
                 match save.then {
                     // Edits made while saving are asked about again, not dropped.
@@ -861,27 +862,30 @@ impl TiltyardApp {
         }
     }
 
-    /// Every [`AUTOSAVE`], unsaved edits go to the recovery file; when undo brings the
-    /// document back to what is saved, the recovery file goes.
+    /// Unsaved changes go to the recovery file within [`RECOVERY_PAUSE`] of being made; when
+    /// undo brings the document back to what is saved, the recovery file goes.
     fn autosave(&mut self) {
         let dirty = self.doc.is_dirty();
         // Not while saving: the save removes the recovery file, and must have the last word.
-        if dirty && !self.saving && self.last_autosave.elapsed() >= AUTOSAVE {
+        if dirty && self.recovery_behind() && self.last_autosave.elapsed() >= RECOVERY_PAUSE {
             self.last_autosave = Instant::now();
-            self.chores.write(
-                self.doc.recovery_path(),
-                crate::scenario::to_text(&self.doc.file),
-            );
-            self.recovery_written = true;
-        } else if !dirty && self.recovery_written {
+            self.chores
+                .write(self.doc.recovery_path(), self.doc.recovery_text());
+            self.recovery_at = Some(self.doc.changes());
+        } else if !dirty && self.recovery_at.is_some() {
             self.forget_recovery();
         }
+    }
+
+    /// Unsaved changes not yet in the recovery file (none while a save runs).
+    fn recovery_behind(&self) -> bool {
+        !self.saving && self.recovery_at != Some(self.doc.changes())
     }
 
     /// Remove the document's recovery file (after a save, or when its edits are let go).
     pub fn forget_recovery(&mut self) {
         self.chores.remove(self.doc.recovery_path());
-        self.recovery_written = false;
+        self.recovery_at = None;
     }
 
     /// Draw the window and handle everything that happened since the last frame.
@@ -915,9 +919,9 @@ impl TiltyardApp {
         if self.busy() {
             ctx.request_repaint_after(Duration::from_millis(50));
         }
-        // Wake for the next autosave even if nothing else happens.
-        if self.doc.is_dirty() {
-            ctx.request_repaint_after(AUTOSAVE.saturating_sub(self.last_autosave.elapsed()));
+        // Wake to write the recovery file even if nothing else happens.
+        if self.doc.is_dirty() && self.recovery_behind() {
+            ctx.request_repaint_after(RECOVERY_PAUSE.saturating_sub(self.last_autosave.elapsed()));
         }
     }
 
@@ -933,7 +937,7 @@ impl TiltyardApp {
 
     /// Take the edits from a recovery file into the document (one undo step).
     pub fn recover(&mut self, edits: files::Recovered) {
-        match edits {
+        match edits.file {
             Ok(file) => self.doc.edit(|f| *f = file),
             Err(e) => self.notice = Some(format!("cannot read the recovery file: {e}")),
         }

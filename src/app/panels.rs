@@ -536,8 +536,12 @@ fn prompts(ui: &mut egui::Ui, app: &mut TiltyardApp) {
         Prompt::Recover { edits } => {
             ui.heading("Unsaved edits found");
             ui.label(format!(
-                "Edits to {} were kept when the window last closed without saving. Take them back?",
-                app.doc.path.display()
+                "Edits to {} were kept when the window last closed without saving{}. Take them back?",
+                app.doc.path.display(),
+                edits
+                    .note
+                    .as_ref()
+                    .map_or_else(String::new, |n| format!(": {n}"))
             ));
             ui.horizontal(|ui| {
                 if ui.button("Recover the edits").clicked() {

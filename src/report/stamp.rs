@@ -38,10 +38,32 @@ impl Stamp {
     }
 }
 
-/// `YYYYMMDDTHHMMSSZ` for seconds since 1970-01-01 UTC (the proleptic Gregorian calendar;
-/// days to a civil date by the era-based method of Hinnant's "chrono-Compatible Low-Level
-/// Date Algorithms").
+/// `YYYYMMDDTHHMMSSZ` for seconds since 1970-01-01 UTC.
 pub fn utc(seconds: u64) -> String {
+    let (year, month, day, rest) = civil(seconds);
+    format!(
+        "{year:04}{month:02}{day:02}T{:02}{:02}{:02}Z",
+        rest / 3_600,
+        rest / 60 % 60,
+        rest % 60
+    )
+}
+
+/// `YYYY-MM-DD HH:MM:SS UTC` for seconds since 1970-01-01 UTC.
+pub fn readable_utc(seconds: u64) -> String {
+    let (year, month, day, rest) = civil(seconds);
+    format!(
+        "{year:04}-{month:02}-{day:02} {:02}:{:02}:{:02} UTC",
+        rest / 3_600,
+        rest / 60 % 60,
+        rest % 60
+    )
+}
+
+/// Year, month, day and seconds into the day (the proleptic Gregorian calendar; days to a
+/// civil date by the era-based method of Hinnant's "chrono-Compatible Low-Level Date
+/// Algorithms").
+fn civil(seconds: u64) -> (i64, i64, i64, u64) {
     let days = (seconds / 86_400) as i64;
     let rest = seconds % 86_400;
     let z = days + 719_468;
@@ -53,12 +75,7 @@ pub fn utc(seconds: u64) -> String {
     let day = doy - (153 * mp + 2) / 5 + 1;
     let month = if mp < 10 { mp + 3 } else { mp - 9 };
     let year = yoe + era * 400 + i64::from(month <= 2);
-    format!(
-        "{year:04}{month:02}{day:02}T{:02}{:02}{:02}Z",
-        rest / 3_600,
-        rest / 60 % 60,
-        rest % 60
-    )
+    (year, month, day, rest)
 }
 
 /// One command's output folder.
@@ -165,6 +182,7 @@ mod tests {
         assert_eq!(utc(4_107_542_399), "21000228T235959Z");
         assert_eq!(utc(4_107_542_400), "21000301T000000Z");
         assert_eq!(utc(1_796_424_063), "20261204T224103Z");
+        assert_eq!(readable_utc(1_796_424_063), "2026-12-04 22:41:03 UTC");
     }
 
     #[test]
