@@ -595,6 +595,42 @@ fn unsaved_edits_come_back_after_a_crash() {
     assert_eq!(scenario::read(&path).unwrap(), edited);
 }
 
+/// Saving from the window keeps the file's comments and layout: the demo, edited (one pin
+/// moved), saved with Ctrl+S, has the same lines but that pin's.
+#[test]
+fn a_save_keeps_the_comments_and_layout() {
+    let dir = tempfile::tempdir().unwrap();
+    let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("scenarios-demo");
+    let text = std::fs::read_to_string(root.join("adverse.ron"))
+        .unwrap()
+        .replace(
+            "dataset: \"economy.csv\"",
+            &format!(
+                "dataset: {:?}",
+                root.join("economy.csv").display().to_string()
+            ),
+        )
+        .replace("draws: 1000", "draws: 100");
+    let path = dir.path().join("adverse.ron");
+    std::fs::write(&path, &text).unwrap();
+    let mut h = harness(&path);
+    h.run_steps(2);
+    h.state_mut().doc.edit(|f| f.pins[0].value = 3.75);
+    h.key_press_modifiers(Modifiers::COMMAND, egui::Key::S);
+    let start = Instant::now();
+    while h.state().doc.is_dirty() {
+        h.step();
+        std::thread::sleep(Duration::from_millis(10));
+        assert!(start.elapsed() < Duration::from_secs(10), "not saved");
+    }
+    let saved = std::fs::read_to_string(&path).unwrap();
+    let (before, after): (Vec<&str>, Vec<&str>) = (text.lines().collect(), saved.lines().collect());
+    assert_eq!(before.len(), after.len(), "{saved}");
+    let differ: Vec<(&&str, &&str)> = before.iter().zip(&after).filter(|(a, b)| a != b).collect();
+    assert_eq!(differ.len(), 1, "{differ:#?}");
+    assert!(differ[0].1.contains("value: 3.75"));
+}
+
 /// An edit reaches the recovery file within about a second, with no further input: a window
 /// killed two seconds after an edit loses nothing, and the next start offers the edit back
 /// saying what it holds.

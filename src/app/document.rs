@@ -211,8 +211,10 @@ pub fn recovery_path(path: &Path) -> PathBuf {
 }
 
 /// Save `file`, a scenario that was at `from`, atomically to `to` (write a temporary file
-/// beside it, then rename). A relative dataset path is rewritten so that it still points at
-/// the same file from the new folder. Returns the file as written.
+/// beside it, then rename). The text of the file at `from` is kept wherever its values did
+/// not change — comments, line breaks, one-line conditions ([`scenario::layout`]). A relative
+/// dataset path is rewritten so that it still points at the same file from the new folder.
+/// Returns the file as written.
 pub fn write_scenario(
     from: &Path,
     to: &Path,
@@ -220,7 +222,9 @@ pub fn write_scenario(
 ) -> std::io::Result<ScenarioFile> {
     let mut file = file.clone();
     file.dataset = rebase(from, to, &file.dataset);
-    write_atomic(to, scenario::to_text(&file).as_bytes())?;
+    let original = std::fs::read_to_string(from).ok();
+    let text = scenario::layout::save_text(original.as_deref(), &file);
+    write_atomic(to, text.as_bytes())?;
     Ok(file)
 }
 

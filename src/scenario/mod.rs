@@ -2,6 +2,7 @@
 //! the bridge to the engine ([`setup`]).
 
 pub mod conditions;
+pub mod layout;
 pub mod schema;
 pub mod setup;
 pub mod units;
