@@ -18,6 +18,7 @@ use std::sync::mpsc::channel;
 use std::time::{Duration, Instant};
 
 use nalgebra::DMatrix;
+use tiltyard::app::files::Pick;
 use tiltyard::app::worker::{self, EngineState, Job, Message, PREVIEW_PATHS};
 use tiltyard::crosscheck::EngineKind;
 use tiltyard::forecast::engine::ROOT_SAMPLE;
@@ -314,14 +315,14 @@ fn child_flops() -> String {
 struct NoDialogs;
 
 impl tiltyard::app::files::PathPicker for NoDialogs {
-    fn open(&self, _: &Path) -> Option<PathBuf> {
-        None
+    fn open(&self, _: &Path) -> Pick {
+        Pick::Cancelled
     }
-    fn save(&self, _: &Path, _: &str) -> Option<PathBuf> {
-        None
+    fn save(&self, _: &Path, _: &str) -> Pick {
+        Pick::Cancelled
     }
-    fn dataset(&self, _: &Path) -> Option<PathBuf> {
-        None
+    fn dataset(&self, _: &Path) -> Pick {
+        Pick::Cancelled
     }
 }
 

@@ -17,7 +17,7 @@ use egui_kittest::Harness;
 use egui_kittest::kittest::Queryable;
 use egui_plot::PlotPoint;
 use tiltyard::app::TiltyardApp;
-use tiltyard::app::files::PathPicker;
+use tiltyard::app::files::{PathPicker, Pick};
 use tiltyard::app::worker::{self, EngineState, Job, Message, Subject};
 use tiltyard::scenario;
 
@@ -25,13 +25,13 @@ use tiltyard::scenario;
 struct NoDialogs;
 
 impl PathPicker for NoDialogs {
-    fn open(&self, _: &Path) -> Option<PathBuf> {
+    fn open(&self, _: &Path) -> Pick {
         panic!("a test opened a file dialog")
     }
-    fn save(&self, _: &Path, _: &str) -> Option<PathBuf> {
+    fn save(&self, _: &Path, _: &str) -> Pick {
         panic!("a test opened a file dialog")
     }
-    fn dataset(&self, _: &Path) -> Option<PathBuf> {
+    fn dataset(&self, _: &Path) -> Pick {
         panic!("a test opened a file dialog")
     }
 }
@@ -40,15 +40,30 @@ impl PathPicker for NoDialogs {
 struct SaveTo(PathBuf, Arc<AtomicBool>);
 
 impl PathPicker for SaveTo {
-    fn open(&self, _: &Path) -> Option<PathBuf> {
-        None
+    fn open(&self, _: &Path) -> Pick {
+        Pick::Cancelled
     }
-    fn save(&self, _: &Path, _: &str) -> Option<PathBuf> {
+    fn save(&self, _: &Path, _: &str) -> Pick {
         self.1.store(true, std::sync::atomic::Ordering::SeqCst);
-        Some(self.0.clone())
+        Pick::Path(self.0.clone())
     }
-    fn dataset(&self, _: &Path) -> Option<PathBuf> {
-        None
+    fn dataset(&self, _: &Path) -> Pick {
+        Pick::Cancelled
+    }
+}
+
+/// A desktop without a file-dialog service: every dialog fails to show.
+struct NoDialogService;
+
+impl PathPicker for NoDialogService {
+    fn open(&self, _: &Path) -> Pick {
+        Pick::Unavailable
+    }
+    fn save(&self, _: &Path, _: &str) -> Pick {
+        Pick::Unavailable
+    }
+    fn dataset(&self, _: &Path) -> Pick {
+        Pick::Unavailable
     }
 }
 
@@ -629,6 +644,68 @@ fn a_save_keeps_the_comments_and_layout() {
     let differ: Vec<(&&str, &&str)> = before.iter().zip(&after).filter(|(a, b)| a != b).collect();
     assert_eq!(differ.len(), 1, "{differ:#?}");
     assert!(differ[0].1.contains("value: 3.75"));
+}
+
+/// On a desktop without a file-dialog service, Open… and Save as… fall back to the window's
+/// own chooser: a path typed there opens the scenario, and saves it elsewhere; the chooser
+/// stays in use for the rest of the session.
+#[test]
+fn without_a_dialog_service_the_own_chooser_opens_and_saves() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = demo_copy(&dir);
+    let mut other = scenario::read(&path).unwrap();
+    other.name = "the other scenario".into();
+    let other_path = dir.path().join("other.ron");
+    std::fs::write(&other_path, scenario::to_text(&other)).unwrap();
+    let app = TiltyardApp::new(&path, Arc::new(NoDialogService), Arc::new(|| {}));
+    let mut h = Harness::builder()
+        .with_size(Vec2::new(1500.0, 950.0))
+        .build_ui_state(|ui, app: &mut TiltyardApp| app.ui(ui), app);
+    h.run_steps(2);
+    let wait_for = |h: &mut Harness<'static, TiltyardApp>, done: &dyn Fn(&TiltyardApp) -> bool| {
+        let start = Instant::now();
+        while !done(h.state()) {
+            h.step();
+            std::thread::sleep(Duration::from_millis(10));
+            assert!(
+                start.elapsed() < Duration::from_secs(10),
+                "timed out: chooser {:?}, path {}",
+                h.state().chooser.as_ref().map(|c| c.typed.clone()),
+                h.state().doc.path.display()
+            );
+        }
+    };
+    h.get_by_label("Open…").click();
+    wait_for(&mut h, &|a| a.chooser.is_some());
+    h.run_steps(2);
+    assert!(
+        h.query_by_label_contains("did not open; choose here")
+            .is_some()
+    );
+    // The folder is listed: the other scenario can be picked from it.
+    assert!(h.query_by_label("other.ron").is_some());
+    h.state_mut().chooser.as_mut().unwrap().typed.clear();
+    h.get_by_label("Path").click();
+    h.run_steps(1);
+    h.get_by_label("Path")
+        .type_text(&other_path.display().to_string());
+    h.run_steps(1);
+    h.get_by_label("Open this scenario").click();
+    wait_for(&mut h, &|a| a.doc.path == other_path);
+    assert_eq!(h.state().doc.file.name, "the other scenario");
+    // Save as: straight to the chooser now; a name without extension gets ".ron".
+    h.get_by_label("Save as…").click();
+    wait_for(&mut h, &|a| a.chooser.is_some());
+    h.run_steps(1);
+    let target = dir.path().join("copy");
+    h.state_mut().chooser.as_mut().unwrap().typed = target.display().to_string();
+    h.run_steps(1);
+    h.get_by_label("Save here").click();
+    wait_for(&mut h, &|_| dir.path().join("copy.ron").exists());
+    assert_eq!(
+        scenario::read(&dir.path().join("copy.ron")).unwrap().name,
+        "the other scenario"
+    );
 }
 
 /// An edit reaches the recovery file within about a second, with no further input: a window

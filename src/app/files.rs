@@ -10,40 +10,68 @@ use std::sync::mpsc::{Receiver, Sender, channel};
 use crate::dataset::{Dataset, Frequency};
 use crate::scenario::{self, LargestRoot, ModelSpec, ScenarioFile, SeriesSpec};
 
+/// What a file dialog gave.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Pick {
+    Path(PathBuf),
+    Cancelled,
+    /// No dialog could be shown (the window then offers its own chooser).
+    Unavailable,
+}
+
 /// Asks the user for paths.
 pub trait PathPicker: Send + Sync {
     /// A scenario to open.
-    fn open(&self, start: &Path) -> Option<PathBuf>;
+    fn open(&self, start: &Path) -> Pick;
     /// Where to save a scenario.
-    fn save(&self, start: &Path, name: &str) -> Option<PathBuf>;
+    fn save(&self, start: &Path, name: &str) -> Pick;
     /// A dataset (CSV) to start a new scenario on.
-    fn dataset(&self, start: &Path) -> Option<PathBuf>;
+    fn dataset(&self, start: &Path) -> Pick;
 }
 
 /// The desktop's file dialogs.
 pub struct DesktopPicker;
 
+/// A dialog that answers "nothing" faster than this was never on screen: a person takes
+/// longer to see a dialog and dismiss it. (Without a dialog service the desktop's dialog
+/// returns nothing at once, as a cancel would.)
+const NEVER_SHOWN: std::time::Duration = std::time::Duration::from_millis(250);
+
+fn timed(dialog: impl FnOnce() -> Option<PathBuf>) -> Pick {
+    let start = std::time::Instant::now();
+    match dialog() {
+        Some(path) => Pick::Path(path),
+        None if start.elapsed() < NEVER_SHOWN => Pick::Unavailable,
+        None => Pick::Cancelled,
+    }
+}
+
 impl PathPicker for DesktopPicker {
-    fn open(&self, start: &Path) -> Option<PathBuf> {
-        rfd::FileDialog::new()
-            .set_directory(start)
-            .add_filter("scenario", &["ron"])
-            .pick_file()
+    fn open(&self, start: &Path) -> Pick {
+        timed(|| {
+            rfd::FileDialog::new()
+                .set_directory(start)
+                .add_filter("scenario", &["ron"])
+                .pick_file()
+        })
     }
 
-    fn save(&self, start: &Path, name: &str) -> Option<PathBuf> {
-        rfd::FileDialog::new()
-            .set_directory(start)
-            .set_file_name(name)
-            .add_filter("scenario", &["ron"])
-            .save_file()
+    fn save(&self, start: &Path, name: &str) -> Pick {
+        timed(|| {
+            rfd::FileDialog::new()
+                .set_directory(start)
+                .set_file_name(name)
+                .save_file()
+        })
     }
 
-    fn dataset(&self, start: &Path) -> Option<PathBuf> {
-        rfd::FileDialog::new()
-            .set_directory(start)
-            .add_filter("dataset", &["csv"])
-            .pick_file()
+    fn dataset(&self, start: &Path) -> Pick {
+        timed(|| {
+            rfd::FileDialog::new()
+                .set_directory(start)
+                .add_filter("dataset", &["csv"])
+                .pick_file()
+        })
     }
 }
 
@@ -155,12 +183,26 @@ pub fn scenario_for(path: &Path) -> Result<ScenarioFile, String> {
     })
 }
 
+/// What a dialog's thread reports.
+pub enum DialogReply {
+    /// The answer (none: cancelled).
+    Answered(Option<Answer>),
+    /// The desktop's dialog could not be shown: ask with the window's own chooser.
+    Unavailable {
+        purpose: Purpose,
+        start: PathBuf,
+        name: String,
+    },
+}
+
 /// Dialogs in flight.
 pub struct Dialogs {
     picker: std::sync::Arc<dyn PathPicker>,
-    tx: Sender<Option<Answer>>,
-    rx: Receiver<Option<Answer>>,
+    tx: Sender<DialogReply>,
+    rx: Receiver<DialogReply>,
     pub open: bool,
+    /// The desktop's dialog failed once: the window's own chooser is used from then on.
+    pub own: bool,
 }
 
 impl Dialogs {
@@ -171,6 +213,7 @@ impl Dialogs {
             tx,
             rx,
             open: false,
+            own: false,
         }
     }
 
@@ -186,40 +229,89 @@ impl Dialogs {
             return;
         }
         self.open = true;
+        if self.own {
+            let _ = self.tx.send(DialogReply::Unavailable {
+                purpose,
+                start,
+                name,
+            });
+            wake();
+            return;
+        }
         let picker = self.picker.clone();
         let tx = self.tx.clone();
         std::thread::spawn(move || {
-            let answer = match purpose {
-                Purpose::Open => picker.open(&start).map(|p| {
-                    let read = read_scenario(&p);
-                    Answer::Open(p, Box::new(read))
-                }),
-                Purpose::SaveAs => picker.save(&start, &name).map(Answer::SaveAs),
-                Purpose::NewFromData => picker.dataset(&start).map(|p| {
-                    let file = scenario_for(&p);
-                    Answer::NewFromData(p, Box::new(file))
-                }),
-                Purpose::ExportPack => picker.save(&start, "briefing").map(Answer::ExportPack),
-                Purpose::ExportTable => picker
-                    .save(&start, "paths-table.csv")
-                    .map(Answer::ExportTable),
-                Purpose::Compare => picker.open(&start).map(|p| {
-                    let file = scenario::read(&p).map_err(|e| e.to_string());
-                    Answer::Compare(p, Box::new(file))
-                }),
+            let pick = match purpose {
+                Purpose::Open | Purpose::Compare => picker.open(&start),
+                Purpose::SaveAs => picker.save(&start, &name),
+                Purpose::NewFromData => picker.dataset(&start),
+                Purpose::ExportPack => picker.save(&start, "briefing"),
+                Purpose::ExportTable => picker.save(&start, "paths-table.csv"),
             };
-            let _ = tx.send(answer);
+            let reply = match pick {
+                Pick::Path(path) => DialogReply::Answered(Some(answer_for(purpose, path))),
+                Pick::Cancelled => DialogReply::Answered(None),
+                Pick::Unavailable => DialogReply::Unavailable {
+                    purpose,
+                    start,
+                    name,
+                },
+            };
+            let _ = tx.send(reply);
             wake();
         });
     }
 
-    /// A dialog's answer, if one came (`None` inside for a cancelled dialog).
-    pub fn answer(&mut self) -> Option<Option<Answer>> {
-        let answer = self.rx.try_recv().ok();
-        if answer.is_some() {
-            self.open = false;
+    /// A path chosen in the window's own chooser: read what it names on a thread, as a
+    /// dialog's answer.
+    pub fn chosen(
+        &mut self,
+        purpose: Purpose,
+        path: PathBuf,
+        wake: std::sync::Arc<dyn Fn() + Send + Sync>,
+    ) {
+        let tx = self.tx.clone();
+        std::thread::spawn(move || {
+            let _ = tx.send(DialogReply::Answered(Some(answer_for(purpose, path))));
+            wake();
+        });
+    }
+
+    /// The answer of the dialog in flight, if it has come (the dialog is then closed, unless
+    /// it handed over to the window's own chooser).
+    pub fn answer(&mut self) -> Option<DialogReply> {
+        let reply = self.rx.try_recv().ok()?;
+        match reply {
+            DialogReply::Answered(_) => self.open = false,
+            DialogReply::Unavailable { .. } => self.own = true,
         }
-        answer
+        Some(reply)
+    }
+
+    /// The own chooser was cancelled.
+    pub fn cancelled(&mut self) {
+        self.open = false;
+    }
+}
+
+/// What a picked path gives for `purpose` (files read here, off the window's thread).
+fn answer_for(purpose: Purpose, path: PathBuf) -> Answer {
+    match purpose {
+        Purpose::Open => {
+            let read = read_scenario(&path);
+            Answer::Open(path, Box::new(read))
+        }
+        Purpose::SaveAs => Answer::SaveAs(path),
+        Purpose::NewFromData => {
+            let file = scenario_for(&path);
+            Answer::NewFromData(path, Box::new(file))
+        }
+        Purpose::ExportPack => Answer::ExportPack(path),
+        Purpose::ExportTable => Answer::ExportTable(path),
+        Purpose::Compare => {
+            let file = scenario::read(&path).map_err(|e| e.to_string());
+            Answer::Compare(path, Box::new(file))
+        }
     }
 }
 

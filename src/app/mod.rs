@@ -14,6 +14,7 @@
 //!   colours.
 
 pub mod chart;
+pub mod chooser;
 pub mod document;
 pub mod export;
 pub mod files;
@@ -130,6 +131,11 @@ pub struct TiltyardApp {
     after_save_as: Option<AfterSave>,
     wake: Arc<dyn Fn() + Send + Sync>,
     last_autosave: Instant,
+    /// The window's own file chooser, when the desktop's dialog could not be shown.
+    pub chooser: Option<chooser::Chooser>,
+    /// Files opened, saved or started from in this session, newest first (the chooser lists
+    /// them).
+    pub recent: Vec<PathBuf>,
     /// The document's change count when its recovery file was last written (none written).
     recovery_at: Option<u64>,
     close_confirmed: bool,
@@ -209,6 +215,8 @@ impl TiltyardApp {
             after_save_as: None,
             wake,
             last_autosave: Instant::now(),
+            chooser: None,
+            recent: vec![path.to_path_buf()],
             recovery_at: None,
             close_confirmed: false,
         }
@@ -262,6 +270,7 @@ impl TiltyardApp {
     /// Compare the document with the scenario in `file` (at `path`): it must have the same
     /// series; its fans are drawn on a worker of its own.
     pub fn compare_with(&mut self, path: PathBuf, file: ScenarioFile) {
+        self.remember(&path);
         let names = |f: &ScenarioFile| f.series.iter().map(|s| s.name.clone()).collect::<Vec<_>>();
         if names(&file) != names(&self.doc.file) {
             self.notice = Some(format!(
@@ -645,6 +654,7 @@ impl TiltyardApp {
     }
 
     fn save_to(&mut self, to: PathBuf, then: Option<AfterSave>) {
+        self.remember(&to);
         self.chores.save(files::Save {
             document: self.document,
             from: self.doc.path.clone(),
@@ -786,6 +796,7 @@ impl TiltyardApp {
     /// its recovery file goes now, not before (a cancelled dialog keeps both).
     fn install(&mut self, file: ScenarioFile, path: PathBuf, untitled: bool) {
         self.forget_recovery();
+        self.remember(&path);
         self.doc = Document::from_file(file, path);
         self.doc.untitled = untitled;
         self.document += 1;
@@ -824,7 +835,19 @@ impl TiltyardApp {
     }
 
     fn answers(&mut self) {
-        if let Some(answer) = self.dialogs.answer() {
+        let answer = match self.dialogs.answer() {
+            None => return,
+            Some(files::DialogReply::Unavailable {
+                purpose,
+                start,
+                name,
+            }) => {
+                self.chooser = Some(chooser::Chooser::new(purpose, &start, &name, &self.recent));
+                return;
+            }
+            Some(files::DialogReply::Answered(answer)) => answer,
+        };
+        {
             match answer {
                 Some(Answer::Open(p, read)) => {
                     let (file, recovery) = *read;
@@ -886,6 +909,31 @@ impl TiltyardApp {
     pub fn forget_recovery(&mut self) {
         self.chores.remove(self.doc.recovery_path());
         self.recovery_at = None;
+    }
+
+    /// Put `path` first among the recent files.
+    fn remember(&mut self, path: &Path) {
+        self.recent.retain(|p| p != path);
+        self.recent.insert(0, path.to_path_buf());
+        self.recent.truncate(12);
+    }
+
+    /// The own chooser's answer this frame.
+    pub fn chooser_outcome(&mut self, outcome: chooser::Outcome) {
+        let Some(purpose) = self.chooser.as_ref().map(|c| c.purpose) else {
+            return;
+        };
+        match outcome {
+            chooser::Outcome::Waiting => return,
+            chooser::Outcome::Chosen(path) => {
+                self.dialogs.chosen(purpose, path, self.wake.clone());
+            }
+            chooser::Outcome::Cancelled => {
+                self.dialogs.cancelled();
+                self.after_save_as = None;
+            }
+        }
+        self.chooser = None;
     }
 
     /// Draw the window and handle everything that happened since the last frame.

@@ -496,6 +496,12 @@ pub fn parse_field(field: &str) -> Option<CondRef> {
 }
 
 fn prompts(ui: &mut egui::Ui, app: &mut TiltyardApp) {
+    // The window's own chooser, when the desktop's dialog could not be shown.
+    if let Some(chooser) = app.chooser.as_mut() {
+        let outcome = chooser.show(ui.ctx());
+        app.chooser_outcome(outcome);
+        return;
+    }
     // While a file dialog is up, edits wait (its answer could replace the scenario).
     if app.dialog_open() {
         egui::Modal::new(egui::Id::unique("tiltyard dialog")).show(ui.ctx(), |ui| {
