@@ -21,7 +21,7 @@ use nalgebra::DMatrix;
 use tiltyard::app::files::Pick;
 use tiltyard::app::worker::{self, EngineState, Job, Message, PREVIEW_PATHS};
 use tiltyard::crosscheck::EngineKind;
-use tiltyard::forecast::engine::ROOT_SAMPLE;
+use tiltyard::forecast::engine::root_sample;
 use tiltyard::forecast::{ParamSource, Sampling, Theta, ThetaSet, preview::Preview, sample_paths};
 use tiltyard::report::{Kind, fans};
 use tiltyard::run::{RunOptions, run};
@@ -533,9 +533,10 @@ fn main() {
     let roots = measure("roots:l-estimated.ron");
     if let (Some(r), Some(total)) = (num(&roots, "root_ms"), num(&roots, "run_ms")) {
         println!(
-            "largest root at L: {r:.2} ms per eigenvalue decomposition, {:.2} ms per posterior draw of the whole run (one core); measured on {ROOT_SAMPLE} of 2,000 draws: {:.1}% of the run",
+            "largest root at L: {r:.2} ms per eigenvalue decomposition, {:.2} ms per posterior draw of the whole run (one core); measured on {} of 2,000 draws: {:.1}% of the run",
             total / 2000.0,
-            100.0 * ROOT_SAMPLE as f64 * r / total
+            root_sample(160),
+            100.0 * root_sample(160) as f64 * r / total
         );
     }
     for file in ["l-estimated.ron", "m-estimated.ron"] {

@@ -7,7 +7,7 @@ mod common;
 
 use common::*;
 use tiltyard::model::{
-    MinnesotaPrior, Regression, choose_tightness, posterior_and_log_ml, residual_scales,
+    MinnesotaPrior, Regression, choose_tightness, log_ml, posterior_and_log_ml, residual_scales,
 };
 
 /// Posterior moments: relative 1e-9 (the fixture's own two-point check agrees to 3e-10).
@@ -47,11 +47,18 @@ fn posterior_and_marginal_likelihood_match_scipy_densities() {
         for (a, b) in s2.iter().zip(expect_s2.iter()) {
             assert!((a - b).abs() < EXACT * b, "case {id}: s² {a} vs {b}");
         }
-        let (log_ml, post) = posterior_and_log_ml(&reg, &prior(case, s2.clone())).unwrap();
+        let (value, post) = posterior_and_log_ml(&reg, &prior(case, s2.clone())).unwrap();
         let expect = case["log_ml"].as_f64().unwrap();
         assert!(
-            (log_ml - expect).abs() < 1e-8 * expect.abs(),
-            "case {id}: ln p(Y) {log_ml} vs {expect}"
+            (value - expect).abs() < 1e-8 * expect.abs(),
+            "case {id}: ln p(Y) {value} vs {expect}"
+        );
+        // The same number in the data's dimension (T × T, the search's form when rows are
+        // few), against scipy too.
+        let dual = log_ml(&reg, &prior(case, s2.clone())).unwrap();
+        assert!(
+            (dual - expect).abs() < 1e-8 * expect.abs(),
+            "case {id}: ln p(Y) by V = I + XΩ0X': {dual} vs {expect}"
         );
         let eb = rel_err(&post.b_bar, &matrix(&case["B_bar"]));
         let es = rel_err(&post.s_bar, &matrix(&case["S_bar"]));

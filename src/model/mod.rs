@@ -14,7 +14,7 @@ pub mod posterior;
 pub mod prior;
 
 pub use data::Regression;
-pub use marglik::{TightnessChoice, choose_tightness, posterior_and_log_ml};
+pub use marglik::{TightnessChoice, choose_tightness, log_ml, posterior_and_log_ml};
 pub use params::Params;
 pub use posterior::Posterior;
 pub use prior::{MinnesotaPrior, Tightness, residual_scales};

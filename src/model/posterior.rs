@@ -23,9 +23,11 @@ pub struct Posterior {
     pub b_bar: DMatrix<f64>,
     /// Upper-triangular `R_x` with `Ω̄ = R_x⁻¹ R_x⁻ᵀ`.
     pub r_x: DMatrix<f64>,
-    /// `R_x⁻¹` (upper triangular), formed once: a draw multiplies by it (a matrix product
-    /// runs many times faster than the triangular solve it replaces).
-    r_x_inv: DMatrix<f64>,
+    /// `R_x⁻¹` (upper triangular), formed at the first draw (the tightness search builds
+    /// many posteriors and draws from none): a draw multiplies by it, a matrix product that
+    /// runs many times faster than the triangular solve it replaces. `None` inside: `R_x` is
+    /// singular.
+    r_x_inv: std::sync::OnceLock<Option<DMatrix<f64>>>,
     pub s_bar: DMatrix<f64>,
     /// `F_S = chol(S̄)` (lower).
     pub s_bar_chol: DMatrix<f64>,
@@ -92,7 +94,16 @@ impl Posterior {
         let mut sigma = lambda_t.transpose() * &lambda_t;
         symmetrise(&mut sigma);
         let z = DMatrix::from_fn(k, n, |_, _| StandardNormal.sample(rng));
-        let shift = &self.r_x_inv * (z * &lambda_t);
+        let r_x_inv = self
+            .r_x_inv
+            .get_or_init(|| {
+                self.r_x
+                    .solve_upper_triangular(&DMatrix::identity(k, k))
+                    .filter(|m| m.iter().all(|v| v.is_finite()))
+            })
+            .as_ref()
+            .ok_or(ModelError::Collinear)?;
+        let shift = r_x_inv * (z * &lambda_t);
         Ok(Params::from_stacked(&(&self.b_bar + shift), sigma))
     }
 }
@@ -172,9 +183,12 @@ fn least_squares(x: &DMatrix<f64>, y: &DMatrix<f64>) -> Result<LeastSquares, Mod
     {
         return Err(ModelError::Collinear);
     }
-    let qty = qr.q().transpose() * y;
+    // Q'Y by the Householder reflections themselves (Q itself is never formed).
+    let mut qty = y.clone();
+    qr.q_tr_mul(&mut qty);
+    let k = x.ncols();
     let mut b = r_scaled
-        .solve_upper_triangular(&qty)
+        .solve_upper_triangular(&qty.rows(0, k).into_owned())
         .ok_or(ModelError::Collinear)?;
     for (mut row, d) in b.row_iter_mut().zip(&norms) {
         row.unscale_mut(*d);
@@ -212,14 +226,10 @@ fn finish(
             what: "the posterior scale matrix S̄ (too few observations for the model size?)".into(),
         })?
         .l();
-    let r_x_inv = r_x
-        .solve_upper_triangular(&DMatrix::identity(r_x.nrows(), r_x.nrows()))
-        .filter(|m| m.iter().all(|v| v.is_finite()))
-        .ok_or(ModelError::Collinear)?;
     Ok(Posterior {
         b_bar,
         r_x,
-        r_x_inv,
+        r_x_inv: std::sync::OnceLock::new(),
         s_bar,
         s_bar_chol,
         nu_bar,
