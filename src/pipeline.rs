@@ -121,7 +121,10 @@ pub struct Summaries {
     /// The split by shock and by condition (none from a cross-check engine, which keeps no
     /// parts).
     pub attribution: Option<Attribution>,
+    /// Every statistic whose numbers are finite.
     pub statistics: Vec<Stat>,
+    /// What was left out, said plainly (statistics that overflow at long horizons).
+    pub notes: Vec<String>,
 }
 
 /// The summaries of `paths`, drawn under `thetas` with `paths_per_theta` paths each. With
@@ -150,17 +153,36 @@ pub fn summarise(
             theta_weights.as_deref(),
         )?)
     };
-    let statistics = statistics(
+    let mut statistics = statistics(
         setup,
         &paths.conditional,
         &paths.unconditional,
         weights.as_deref(),
     );
+    // A statistic that overflows (a cumulative change of a level over hundreds of periods)
+    // is left out, and said to be: nothing that is not a number reaches a table.
+    let finite = |s: &Stat| s.mean.is_finite() && s.quantiles.iter().all(|q| q.is_finite());
+    let mut overflowing: Vec<String> = statistics
+        .iter()
+        .filter(|s| !finite(s))
+        .map(|s| format!("{} of {}", s.statistic, s.series))
+        .collect();
+    let mut notes = Vec::new();
+    if !overflowing.is_empty() {
+        let count = overflowing.len();
+        overflowing.dedup();
+        notes.push(format!(
+            "{count} statistics overflow the range of numbers at this horizon and are left out ({})",
+            crate::scenario::listing(&overflowing)
+        ));
+        statistics.retain(finite);
+    }
     Ok(Summaries {
         weights,
         effective_draws,
         attribution,
         statistics,
+        notes,
     })
 }
 

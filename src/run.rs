@@ -38,6 +38,10 @@ pub enum RunError {
     Forecast(#[from] ForecastError),
     #[error("the scenario clashes; nothing was sampled\n{}", check_text(.0))]
     Clash(Box<CheckReport>),
+    #[error(
+        "{what} is not a finite number; nothing was written. The model is explosive over this horizon or a condition lies far outside the data's range: check the conditions' values and units, shorten the horizon, or keep only stationary draws (largest_root: below(1.0))"
+    )]
+    NotFinite { what: String },
 }
 
 impl From<PipelineError> for RunError {
@@ -138,6 +142,18 @@ pub fn run(setup: &mut Setup, options: &RunOptions) -> Result<RunOutcome, RunErr
         Kind::Conditional,
     );
     rows.extend(fans(setup, &paths.unconditional, None, Kind::Unconditional));
+    // Nothing that is not a number reaches a file or a chart without a message: a fan that
+    // overflows stops the run (statistics that do are left out by `summarise`, with a note).
+    if let Some(r) = rows
+        .iter()
+        .find(|r| !r.mean.is_finite() || r.quantiles.iter().any(|q| !q.is_finite()))
+    {
+        return Err(RunError::NotFinite {
+            what: format!("the {} fan of {} at {}", r.kind.label(), r.series, r.period),
+        });
+    }
+    let mut paths = paths;
+    paths.notes.extend(summaries.notes);
     Ok(RunOutcome {
         fans: rows,
         posterior_draws: if model.is_fixed() {
