@@ -583,3 +583,72 @@ fn series_far_from_unit_scale_give_the_same_fans_in_their_units() {
         }
     }
 }
+
+/// Values that overflow: a pin of 1e308 % on a year earlier, and explosive fixed coefficients
+/// (1.5·I) at horizon 40, stop the run with the cause and what to change; a pin of 1e5 % runs
+/// (it is reported as strained) and every number written is finite.
+#[test]
+fn overflow_is_refused_with_its_cause_and_never_written() {
+    let run = |text: &str| {
+        let dir = tempfile::tempdir().unwrap();
+        std::fs::write(dir.path().join("economy.csv"), demo_csv()).unwrap();
+        let path = dir.path().join("case.ron");
+        std::fs::write(&path, text).unwrap();
+        let mut setup = scenario::load(&path).unwrap();
+        tiltyard::run::run(
+            &mut setup,
+            &tiltyard::run::RunOptions {
+                draws: Some(40),
+                ..Default::default()
+            },
+        )
+    };
+    let pin = "(series: \"output\", period: \"2026Q4\", units: year_on_year, value: 1.5)";
+    let huge = swap(
+        &demo_scenario(),
+        pin,
+        "(series: \"output\", period: \"2026Q4\", units: year_on_year, value: 1e308)",
+    );
+    let msg = run(&huge).err().expect("refused").to_string();
+    assert_says(
+        "a pin of 1e308",
+        &msg,
+        &["overflow", "conditions' values and units"],
+    );
+    let fixed = r#"(
+    name: "explosive",
+    dataset: "economy.csv",
+    series: [(name: "output", transform: log100, display: year_on_year), (name: "unemployment")],
+    model: fixed((intercept: [0.0, 0.0], lags: [[[1.5, 0.0], [0.0, 1.5]]], sigma: [[1.0, 0.0], [0.0, 1.0]])),
+    horizon: 40,
+    pins: [(series: "unemployment", period: "2026Q2", value: 8.0)],
+)"#;
+    let msg = run(fixed).err().expect("refused").to_string();
+    assert_says(
+        "fixed 1.5·I",
+        &msg,
+        &["overflow", "explosive", "largest_root"],
+    );
+    let large = swap(
+        &demo_scenario(),
+        pin,
+        "(series: \"output\", period: \"2026Q4\", units: year_on_year, value: 1e5)",
+    );
+    let out = run(&large).expect("runs");
+    assert!(
+        out.checks
+            .findings
+            .iter()
+            .any(|f| f.message.contains("100000"))
+    );
+    assert!(
+        out.fans
+            .iter()
+            .all(|r| r.mean.is_finite() && r.quantiles.iter().all(|q| q.is_finite()))
+    );
+    assert!(
+        out.summary
+            .iter()
+            .all(|s| s.mean.is_finite() && s.quantiles.iter().all(|q| q.is_finite()))
+    );
+}
