@@ -609,7 +609,7 @@ fn overflow_is_refused_with_its_cause_and_never_written() {
         pin,
         "(series: \"output\", period: \"2026Q4\", units: year_on_year, value: 1e308)",
     );
-    let msg = run(&huge).err().expect("refused").to_string();
+    let msg = run(&huge).expect_err("refused").to_string();
     assert_says(
         "a pin of 1e308",
         &msg,
@@ -623,7 +623,7 @@ fn overflow_is_refused_with_its_cause_and_never_written() {
     horizon: 40,
     pins: [(series: "unemployment", period: "2026Q2", value: 8.0)],
 )"#;
-    let msg = run(fixed).err().expect("refused").to_string();
+    let msg = run(fixed).expect_err("refused").to_string();
     assert_says(
         "fixed 1.5·I",
         &msg,

@@ -53,13 +53,17 @@ impl Part {
             return None;
         }
         // d = 𝒢(ȳ − μ): the pins' r̃ and the corridor quantities' mean shift.
-        let count = paths.len() as f64;
-        let mut gap = DVector::zeros(theta.len());
+        let mut sum = vec![0.0; theta.len()];
         for y in paths {
-            for ((g, v), m) in gap.iter_mut().zip(y).zip(&theta.mean) {
-                *g += (v - m) / count;
+            for (s, v) in sum.iter_mut().zip(y) {
+                *s += v;
             }
         }
+        let count = paths.len() as f64;
+        let gap = DVector::from_iterator(
+            sum.len(),
+            sum.iter().zip(&theta.mean).map(|(s, m)| s / count - m),
+        );
         let d = plan.stacked() * gap;
         let rows = plan.rows();
         let owner = |label: &str, pins: bool| -> Option<usize> {

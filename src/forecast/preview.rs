@@ -37,6 +37,16 @@ use super::{
 /// Paths per piece of parallel work.
 const CHUNK: usize = 64;
 
+/// One chunk's paths (each conditional with its unconditional, or why it was set aside) and
+/// its largest pin error and corridor violation.
+struct Chunk {
+    errors: (f64, f64),
+    paths: Vec<Result<PathPair, Failure>>,
+}
+
+/// A conditional path and the unconditional path it was made from.
+type PathPair = (Vec<f64>, Vec<f64>);
+
 /// Paths at one θ, with what later edits reuse.
 #[derive(Debug)]
 pub struct Preview {
@@ -118,8 +128,9 @@ impl Preview {
             });
         }
         let count = self.ystar.ncols();
-        let chunks: Vec<(usize, DMatrix<f64>, Vec<Option<ForecastError>>)> = (0..count
-            .div_ceil(CHUNK))
+        // Each chunk is finished where it is made (corrected, checked, split into paths), so
+        // nothing per path is left to one thread.
+        let chunks: Vec<Chunk> = (0..count.div_ceil(CHUNK))
             .into_par_iter()
             .map(|c| {
                 if cancel.load(Ordering::Relaxed) {
@@ -139,7 +150,29 @@ impl Preview {
                 }
                 let ystar = self.ystar.columns(start, end - start).into_owned();
                 let gy = gy.columns(start, end - start).into_owned();
-                Ok((start, plan.correct(&ystar, &gy, &target), failed))
+                let y = plan.correct(&ystar, &gy, &target);
+                let kept: Vec<usize> = (0..failed.len()).filter(|&k| failed[k].is_none()).collect();
+                let errors = plan.rows().errors(&y.select_columns(&kept));
+                let paths = failed
+                    .into_iter()
+                    .enumerate()
+                    .map(|(k, f)| {
+                        let path: Vec<f64> = y.column(k).iter().copied().collect();
+                        let ystar: Vec<f64> = ystar.column(k).iter().copied().collect();
+                        let error = f.or_else(|| {
+                            let finite = path.iter().chain(&ystar).all(|v| v.is_finite());
+                            (!finite).then_some(ForecastError::NotFinite { draw: None })
+                        });
+                        match error {
+                            Some(error) => Err(Failure {
+                                index: start + k,
+                                error,
+                            }),
+                            None => Ok((path, ystar)),
+                        }
+                    })
+                    .collect();
+                Ok(Chunk { errors, paths })
             })
             .collect::<Result<_, _>>()?;
         let mut out = PathSet {
@@ -148,22 +181,13 @@ impl Preview {
             attempted: count,
             ..PathSet::default()
         };
-        for (start, y, failed) in chunks {
-            let kept: Vec<usize> = (0..failed.len()).filter(|&k| failed[k].is_none()).collect();
-            let (pin, corridor) = plan.rows().errors(&y.select_columns(&kept));
-            out.max_pin_error = out.max_pin_error.max(pin);
-            out.max_corridor_violation = out.max_corridor_violation.max(corridor);
-            for (k, f) in failed.into_iter().enumerate() {
-                let j = start + k;
-                let ystar: Vec<f64> = self.ystar.column(j).iter().copied().collect();
-                let path: Vec<f64> = y.column(k).iter().copied().collect();
-                let error = f.or_else(|| {
-                    let finite = path.iter().chain(&ystar).all(|v| v.is_finite());
-                    (!finite).then_some(ForecastError::NotFinite { draw: None })
-                });
-                match error {
-                    Some(error) => out.failures.push(Failure { index: j, error }),
-                    None => {
+        for chunk in chunks {
+            out.max_pin_error = out.max_pin_error.max(chunk.errors.0);
+            out.max_corridor_violation = out.max_corridor_violation.max(chunk.errors.1);
+            for path in chunk.paths {
+                match path {
+                    Err(failure) => out.failures.push(failure),
+                    Ok((path, ystar)) => {
                         out.proposals += 1;
                         out.conditional.push(path);
                         out.unconditional.push(ystar);
