@@ -1184,3 +1184,51 @@ fn the_window_exports_the_briefing_pack() {
     assert!(target.join("briefing.html").is_file());
     assert!(target.join("charts").join("03-unemployment.png").is_file());
 }
+
+/// A secondary click on a pin offers to remove it, and the offer removes that pin alone. The
+/// readout at the pointer gives both fans' quantiles, but not over a handle or the menu.
+#[test]
+fn a_secondary_click_on_a_pin_removes_it() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut h = harness(&demo_copy(&dir));
+    settle(&mut h);
+    let pins = h.state().doc.file.pins.clone();
+    // pins[1]: house_prices (series 5) year on year at 2027Q2 = −10.
+    let x = horizon(&h, "2027Q2");
+    h.hover_at(screen(&h, 5, x, 5.0));
+    h.run_steps(2);
+    let readout = h
+        .query_by_label_contains("pointer at")
+        .map(|n| format!("{n:?}"))
+        .expect("a readout away from the handles");
+    for part in [
+        "2027Q2",
+        "scenario: median",
+        "without conditions: median",
+        "90%",
+    ] {
+        assert!(readout.contains(part), "{part} in {readout}");
+    }
+    let at = screen(&h, 5, x, pins[1].value);
+    h.hover_at(at);
+    h.run_steps(2);
+    assert!(h.query_by_label_contains("pointer at").is_none());
+    // Press and release in frames of their own, as a real pointer does.
+    for pressed in [true, false] {
+        h.event(egui::Event::PointerButton {
+            pos: at,
+            button: egui::PointerButton::Secondary,
+            pressed,
+            modifiers: Modifiers::NONE,
+        });
+        h.step();
+    }
+    h.run_steps(3);
+    // The chart's readout (drawn above menus) is held back while the menu is open.
+    assert!(h.query_by_label_contains("pointer at").is_none());
+    h.get_by_label("Remove this pin").click();
+    h.run_steps(2);
+    let left = &h.state().doc.file.pins;
+    assert_eq!(left.len(), pins.len() - 1);
+    assert!(!left.contains(&pins[1]), "the pin under the pointer went");
+}

@@ -121,6 +121,10 @@ pub struct ChartMemory {
     pub transform: Option<egui_plot::PlotTransform>,
     /// The chart's snapping step (the arrow keys nudge by it).
     pub step: f64,
+    /// The hover readout is held back: a handle is under the pointer, a drag is on or the
+    /// remove menu is open (the readout is drawn above menus and would hide them). Decided
+    /// from the previous frame, as the plot is built before its handles are known.
+    pub quiet: bool,
 }
 
 /// Everything a chart needs to draw itself.
@@ -362,6 +366,7 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
     let free_or_snap = |y: f64| if free { y } else { snap(y, step) };
     let label_results = results;
     let label_view = view;
+    let quiet = memory.quiet;
     let first_x = match view.subject {
         Subject::Series => -(results.history as f64) - 0.5,
         Subject::Shock => -0.5,
@@ -386,20 +391,30 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
                 .to_string()
         })
         .label_formatter(move |pos| {
+            if quiet {
+                return None;
+            }
             let p = match pos {
                 egui_plot::HoverPosition::NearDataPoint { position, .. } => *position,
                 egui_plot::HoverPosition::Elsewhere { position } => *position,
             };
             let date = label_results.label(p.x)?;
-            let mut text = format!("{date}\n{:.3}", p.y);
-            if let Some(f) = label_view
-                .conditional
-                .iter()
-                .find(|f| (f.x - p.x.round()).abs() < 0.5)
-            {
+            let mut text = format!("{date}   pointer at {:.3}", p.y);
+            let at = |fans: &[super::worker::FanPoint]| {
+                fans.iter()
+                    .find(|f| (f.x - p.x.round()).abs() < 0.5)
+                    .copied()
+            };
+            if let Some(f) = at(&label_view.conditional) {
                 text.push_str(&format!(
-                    "\nmedian {:.3}\n50% {:.3} … {:.3}\n90% {:.3} … {:.3}",
+                    "\nscenario: median {:.3}\n  50% {:.3} … {:.3}\n  90% {:.3} … {:.3}",
                     f.q[3], f.q[2], f.q[4], f.q[0], f.q[6]
+                ));
+            }
+            if let Some(f) = at(&label_view.unconditional) {
+                text.push_str(&format!(
+                    "\nwithout conditions: median {:.3}\n  90% {:.3} … {:.3}",
+                    f.q[3], f.q[0], f.q[6]
                 ));
             }
             Some(text)
@@ -792,6 +807,11 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
             }
         });
     }
+    let menu_open = egui::Popup::is_id_open(ui.ctx(), egui::Popup::default_response_id(r));
+    if !menu_open {
+        memory.context = None;
+    }
+    memory.quiet = hovered.is_some() || memory.drag.is_some() || menu_open;
     let elsewhere_units = |series: &Option<String>, units: Units| {
         view.subject == Subject::Series
             && series.as_deref() == Some(view.name.as_str())
