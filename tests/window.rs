@@ -1232,3 +1232,30 @@ fn a_secondary_click_on_a_pin_removes_it() {
     assert_eq!(left.len(), pins.len() - 1);
     assert!(!left.contains(&pins[1]), "the pin under the pointer went");
 }
+
+/// Every chart view carries one legend naming each mark the charts draw.
+#[test]
+fn the_charts_carry_a_legend() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut h = harness(&demo_copy(&dir));
+    settle(&mut h);
+    for words in [
+        "history",
+        "without conditions: 90% and median",
+        "scenario: 90%, 68%, 50% and median",
+        "pin",
+        "corridor",
+        "strained",
+        "clashes",
+    ] {
+        let name = format!("legend: {words}");
+        assert!(h.query_all_by_label(&name).count() >= 1, "{name}");
+    }
+    h.get_by_label("Structural shocks").click();
+    h.run_steps(2);
+    assert!(
+        h.query_all_by_label("legend: usual N(0, 1): 90% and median")
+            .count()
+            >= 1
+    );
+}

@@ -554,16 +554,21 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
             let ring = (input.status)(cref);
             let selected = input.selected == Some(cref);
             if let Some(ring) = ring {
-                pui.points(
-                    Points::new("pin status", vec![[x, v]])
-                        .radius(9.0)
-                        .color(ring)
-                        .filled(true),
-                );
+                // A ring two pixels thick.
+                for radius in [9.5, 10.5] {
+                    pui.points(
+                        Points::new("pin status", vec![[x, v]])
+                            .radius(radius)
+                            .color(ring)
+                            .filled(false)
+                            .allow_hover(false),
+                    );
+                }
             }
             pui.points(
                 Points::new("pin", vec![[x, v]])
-                    .radius(if selected { 7.0 } else { 5.5 })
+                    .shape(egui_plot::MarkerShape::Diamond)
+                    .radius(if selected { 8.0 } else { 6.5 })
                     .color(pal.pin)
                     .filled(true),
             );

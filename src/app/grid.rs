@@ -10,6 +10,7 @@ use egui::RichText;
 
 use super::TiltyardApp;
 use super::chart::{self, ChartInput, CondRef};
+use super::legend::Legend;
 use super::palette::Palette;
 use super::panels::{severity_colour, shock_order, units_box};
 use super::worker::{EngineState, Subject};
@@ -362,15 +363,13 @@ fn controls(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette, pages: usiz
                 "standardised shocks; grey: their usual N(0, 1) · drag: corridor · Ctrl+click: pin"
             }
         };
-        if let Some(second) = &app.second
-            && app.view == Subject::Series
-        {
-            ui.label(
-                RichText::new(format!("blue: {} (median, 5% and 95%) ·", second.name()))
-                    .small()
-                    .color(pal.second),
-            );
-        }
         ui.add(egui::Label::new(RichText::new(hint).small().color(pal.muted)).truncate());
     });
+    let second = app.second.as_ref().map(|s| s.name().to_string());
+    let legend = Legend {
+        subject: app.view,
+        stale: app.stale(),
+        second: second.as_deref().filter(|_| app.view == Subject::Series),
+    };
+    super::legend::show(ui, &legend, pal);
 }

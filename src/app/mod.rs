@@ -19,6 +19,7 @@ pub mod document;
 pub mod export;
 pub mod files;
 pub mod grid;
+pub mod legend;
 pub mod palette;
 pub mod panels;
 pub mod paths_table;

@@ -1,7 +1,8 @@
 //! The window's colours, for light and dark themes. The project's own choice: a deep teal
-//! for the conditional fan, warm grey for the unconditional one and for history, burnt orange
-//! for pins, violet for corridors; red and amber only for clashes and strain; blue for the
-//! second scenario of a comparison.
+//! for the conditional fan, warm grey for the unconditional one and for history, rose for pins
+//! (drawn as diamonds), violet for corridors; red and amber only for clashes and strain (rings
+//! and edges); blue for the second scenario of a comparison. The legend (`legend.rs`) says so
+//! on screen.
 
 use egui::Color32;
 
@@ -28,7 +29,7 @@ impl Palette {
                 stale: Color32::from_rgb(120, 120, 120),
                 muted: Color32::from_rgb(150, 144, 134),
                 history: Color32::from_rgb(220, 218, 212),
-                pin: Color32::from_rgb(240, 150, 60),
+                pin: Color32::from_rgb(236, 98, 160),
                 corridor: Color32::from_rgb(170, 140, 225),
                 clash: Color32::from_rgb(235, 85, 70),
                 strain: Color32::from_rgb(235, 185, 60),
@@ -41,7 +42,7 @@ impl Palette {
                 stale: Color32::from_rgb(150, 150, 150),
                 muted: Color32::from_rgb(150, 142, 130),
                 history: Color32::from_rgb(55, 55, 58),
-                pin: Color32::from_rgb(214, 118, 30),
+                pin: Color32::from_rgb(184, 40, 112),
                 corridor: Color32::from_rgb(112, 80, 170),
                 clash: Color32::from_rgb(192, 48, 36),
                 strain: Color32::from_rgb(204, 146, 20),

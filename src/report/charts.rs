@@ -23,8 +23,13 @@ const HISTORY_YEARS: usize = 6;
 const FAN: RGBColor = RGBColor(24, 112, 120);
 const MUTED: RGBColor = RGBColor(150, 142, 130);
 const HISTORY: RGBColor = RGBColor(55, 55, 58);
-const PIN: RGBColor = RGBColor(214, 118, 30);
+const PIN: RGBColor = RGBColor(184, 40, 112);
 const CORRIDOR: RGBColor = RGBColor(112, 80, 170);
+/// A pin's mark, as in the window: a filled diamond of half-width `r` pixels.
+fn diamond(r: i32) -> Polygon<(i32, i32)> {
+    Polygon::new(vec![(0, -r), (r, 0), (0, r), (-r, 0)], PIN.filled())
+}
+
 /// The charts' font, from the window's own (embedded: no font needs to be installed).
 fn font() {
     static ONCE: Once = Once::new();
@@ -242,10 +247,10 @@ pub fn series_chart(
         }
         if !pins.is_empty() {
             chart
-                .draw_series(pins.iter().map(|&p| Circle::new(p, 6, PIN.filled())))
+                .draw_series(pins.iter().map(|&p| EmptyElement::at(p) + diamond(7)))
                 .map_err(&err)?
                 .label("pin")
-                .legend(|(x, y)| Circle::new((x + 9, y), 5, PIN.filled()));
+                .legend(|(x, y)| EmptyElement::at((x + 9, y)) + diamond(6));
         }
         chart
             .configure_series_labels()
