@@ -1259,3 +1259,48 @@ fn the_charts_carry_a_legend() {
             >= 1
     );
 }
+
+/// A chart's value range stays put while the fans update: after a pin elsewhere is moved,
+/// every chart whose contents still fit its range keeps it exactly (an automatic fit would
+/// move most of them), and a chart whose contents grow is widened to hold them, not refitted.
+#[test]
+fn the_axes_stay_put_when_the_fans_update() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut h = harness(&demo_copy(&dir));
+    settle(&mut h);
+    // (the range kept, the value range drawn, the range the contents want)
+    type Ranges = Vec<((f64, f64), (f64, f64), (f64, f64))>;
+    let ranges = |h: &Harness<'static, TiltyardApp>| -> Ranges {
+        (0..10)
+            .map(|i| {
+                let m = &h.state().charts[&(Subject::Series, i)];
+                let b = m.transform.expect("drawn").bounds().to_owned();
+                let (lo, hi, _) = m.range.expect("fitted");
+                ((lo, hi), (b.min()[1], b.max()[1]), m.wanted)
+            })
+            .collect()
+    };
+    let before = ranges(&h);
+    // pins[1]: house_prices (series 5) year on year at 2027Q2 = −10, moved up by 4.
+    let value = h.state().doc.file.pins[1].value;
+    let x = horizon(&h, "2027Q2");
+    let (from, to) = (screen(&h, 5, x, value), screen(&h, 5, x, value + 4.0));
+    drag(&mut h, from, to);
+    settle(&mut h);
+    let after = ranges(&h);
+    let mut kept = 0;
+    for (i, ((old, old_drawn, _), (new, drawn, wanted))) in before.iter().zip(&after).enumerate() {
+        if wanted.0 >= old.0 && wanted.1 <= old.1 {
+            assert_eq!(old, new, "chart {i} kept its range");
+            assert_eq!(old_drawn, drawn, "chart {i} drew the same range");
+            kept += 1;
+        } else {
+            assert!(new.0 <= old.0 && new.1 >= old.1, "chart {i} widened only");
+            assert!(
+                new.0 <= wanted.0 && new.1 >= wanted.1,
+                "chart {i} holds its fans"
+            );
+        }
+    }
+    assert!(kept >= 6, "only {kept} charts could keep their range");
+}

@@ -11,8 +11,9 @@
 //! period to place a pin; drag across empty future periods to draw a corridor; right-click a
 //! handle to remove its condition. Values snap to readable steps; hold Shift to move freely
 //! (G turns snapping off and on; Shift then snaps).
-//! The chart never pans or zooms, so a drag always means an edit, and its value range stays
-//! put while a drag lasts.
+//! The chart never pans or zooms, so a drag always means an edit. Its value range is fitted
+//! once and then kept steady as fans update: it widens only when something would leave it,
+//! never during a drag, and "re-fit" fits it again.
 
 use egui::{Color32, Pos2, Stroke};
 use egui_plot::{FilledArea, GridMark, Line, LineStyle, Plot, PlotPoint, Points, Polygon, VLine};
@@ -121,6 +122,11 @@ pub struct ChartMemory {
     pub transform: Option<egui_plot::PlotTransform>,
     /// The chart's snapping step (the arrow keys nudge by it).
     pub step: f64,
+    /// The value range shown, and the units it was fitted in: kept steady while the user
+    /// works, widened only when something would leave it (see [`steady_range`]).
+    pub range: Option<(f64, f64, Units)>,
+    /// The range the chart's contents span (history, both fans, conditions).
+    pub wanted: (f64, f64),
     /// The hover readout is held back: a handle is under the pointer, a drag is on or the
     /// remove menu is open (the readout is drawn above menus and would hide them). Decided
     /// from the previous frame, as the plot is built before its handles are known.
@@ -148,6 +154,27 @@ pub struct ChartInput<'a> {
 
 /// Pixels within which a pointer picks a handle.
 const PICK: f32 = 8.0;
+
+/// The value range to show for contents spanning `wanted`: the previous range while a drag
+/// lasts or while it holds the contents; else each side the contents pass moves out to them
+/// plus a margin of 5% of their span (so the range only widens, and only where needed). The margin is
+/// also the slack that keeps small changes of the fans from moving the frame.
+pub fn steady_range(
+    previous: Option<(f64, f64)>,
+    wanted: (f64, f64),
+    dragging: bool,
+) -> (f64, f64) {
+    let margin = 0.05 * (wanted.1 - wanted.0).max(1e-6);
+    let fitted = (wanted.0 - margin, wanted.1 + margin);
+    match previous {
+        None => fitted,
+        Some(range) if dragging || (range.0 <= wanted.0 && wanted.1 <= range.1) => range,
+        Some((lo, hi)) => (
+            if wanted.0 < lo { fitted.0 } else { lo },
+            if wanted.1 > hi { fitted.1 } else { hi },
+        ),
+    }
+}
 
 /// A readable step for values spanning `range`: 1, 2 or 5 times a power of ten, about a
 /// fiftieth of the range.
@@ -328,8 +355,6 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
     if !lo.is_finite() || !hi.is_finite() {
         (lo, hi) = (0.0, 1.0);
     }
-    let pad = 0.15 * (hi - lo).max(1e-6);
-    let (open_lo, open_hi) = (lo - pad, hi + pad);
     let step = snap_step(hi - lo);
     memory.step = step;
 
@@ -362,6 +387,33 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
         .collect();
 
     let dragging = memory.drag.is_some();
+    // What the chart must hold: the data and fans, the second scenario, every finite bound
+    // and pin; then the range shown, steady while the user works.
+    let (mut want_lo, mut want_hi) = (lo, hi);
+    let extra = pins.iter().map(|p| p.2).chain(
+        corridors
+            .iter()
+            .flat_map(|d| d.2.iter().flat_map(|(l, u)| [*l, *u]))
+            .flatten(),
+    );
+    let second = input
+        .second
+        .into_iter()
+        .flat_map(|v| v.conditional.iter().flat_map(|f| [f.q[0], f.q[6]]));
+    for v in extra.chain(second).filter(|v| v.is_finite()) {
+        want_lo = want_lo.min(v);
+        want_hi = want_hi.max(v);
+    }
+    memory.wanted = (want_lo, want_hi);
+    let previous = memory
+        .range
+        .filter(|r| r.2 == view.units)
+        .map(|(a, b, _)| (a, b));
+    let (y_lo, y_hi) = steady_range(previous, memory.wanted, dragging);
+    memory.range = Some((y_lo, y_hi, view.units));
+    // Open corridor sides run past the frame.
+    let pad = 0.15 * (y_hi - y_lo);
+    let (open_lo, open_hi) = (y_lo - pad, y_hi + pad);
     let free = ui.input(|i| i.modifiers.shift) == input.snapping;
     let free_or_snap = |y: f64| if free { y } else { snap(y, step) };
     let label_results = results;
@@ -373,8 +425,6 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
     };
     let plot = Plot::new(("chart", view.subject, input.index))
         .height(input.height)
-        .include_x(first_x)
-        .include_x(h as f64 + 0.6)
         .allow_drag(false)
         .allow_zoom(false)
         .allow_scroll(false)
@@ -420,8 +470,9 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
             Some(text)
         });
     let response = plot.show(ui, |pui| {
-        // The range stays put under a drag, and follows the fans otherwise.
-        pui.set_auto_bounds(!dragging);
+        pui.set_auto_bounds(false);
+        pui.set_plot_bounds_x(first_x..=h as f64 + 0.6);
+        pui.set_plot_bounds_y(y_lo..=y_hi);
         let fan_colour = if input.stale { pal.stale } else { pal.fan };
         // Unconditional fan, muted, then the conditional one.
         let xs: Vec<f64> = view.unconditional.iter().map(|f| f.x).collect();
@@ -849,6 +900,20 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// The range is fitted once with 5% margins, kept while the contents fit it or while a
+    /// drag lasts, and otherwise only widened (arithmetic by hand).
+    #[test]
+    fn ranges_stay_steady_and_only_widen() {
+        let first = steady_range(None, (0.0, 10.0), false);
+        assert_eq!(first, (-0.5, 10.5));
+        // Narrower contents, or contents in the margin: unchanged.
+        assert_eq!(steady_range(Some(first), (2.0, 8.0), false), first);
+        assert_eq!(steady_range(Some(first), (-0.4, 10.4), false), first);
+        // Beyond it while dragging: unchanged; after the drag: widened on that side only.
+        assert_eq!(steady_range(Some(first), (0.0, 20.0), true), first);
+        assert_eq!(steady_range(Some(first), (0.0, 20.0), false), (-0.5, 21.0));
+    }
 
     /// Steps are 1, 2 or 5 times a power of ten near a fiftieth of the range, and snapped
     /// values print as typed (decimal arithmetic by hand).

@@ -174,6 +174,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
             ui.columns(columns, |cols| {
                 for (col, &i) in cols.iter_mut().zip(row) {
                     let view = &views[i];
+                    let mut refit = false;
                     col.horizontal(|ui| {
                         match subject {
                             Subject::Series => {
@@ -192,8 +193,18 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
                         if ui.small_button(label).clicked() {
                             actions.push((view.name.clone(), chart::ChartAction::Enlarge));
                         }
+                        refit = ui
+                            .small_button("re-fit")
+                            .on_hover_text(
+                                "Fit the value range to what the chart holds now (it otherwise \
+                                 stays put as the fans update, and only widens)",
+                            )
+                            .clicked();
                     });
                     let mut memory = app.charts.remove(&(subject, i)).unwrap_or_default();
+                    if refit {
+                        memory.range = None;
+                    }
                     let status = |r: CondRef| app.status_of(r).map(|s| severity_colour(pal, s));
                     let input = ChartInput {
                         index: i,
