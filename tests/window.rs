@@ -159,6 +159,10 @@ fn opening_a_scenario_shows_its_series_and_fans() {
         h.query_by_label_contains("not predictions or advice")
             .is_some()
     );
+    // Opening is not an edit: no "first fans … after the edit" yet; the file is named.
+    assert!(h.query_by_label_contains("after the edit").is_none());
+    assert!(h.query_by_label("saved").is_some());
+    assert!(h.query_by_label_contains("/adverse.ron").is_some());
 }
 
 #[test]
@@ -174,6 +178,9 @@ fn dragging_a_pin_changes_its_value_and_undo_restores_it() {
     drag(&mut h, from, to);
     let after = h.state().doc.file.pins[1].value;
     assert!((after - (before + 4.0)).abs() < 0.5, "pin moved to {after}");
+    assert!(h.query_by_label("unsaved changes").is_some());
+    settle(&mut h);
+    assert!(h.query_by_label_contains("after the edit").is_some());
     // The engine got the new value.
     assert_eq!(h.state().sent().unwrap().pins[1].value, after);
     // One drag is one undo step.
@@ -322,17 +329,24 @@ fn model_settings_re_estimate_in_the_background() {
         h.query_all_by_label("lags").count() >= 1,
         "the lags field is shown"
     );
+    let stale = "the model is being estimated again: these checks are the previous model's";
+    assert!(h.query_by_label(stale).is_none());
     h.state_mut().doc.edit(|f| {
         if let scenario::ModelSpec::Minnesota(m) = &mut f.model {
             m.lags = 3;
         }
     });
+    // Until the new model's checks arrive, the old ones are greyed and said to be old.
+    h.run_steps(2);
+    assert!(h.state().checks_of_another_model());
+    assert!(h.query_by_label(stale).is_some());
     settle(&mut h);
     assert!(
         h.state().model_line.contains("VAR(3)"),
         "{}",
         h.state().model_line
     );
+    assert!(h.query_by_label(stale).is_none());
     // The estimation window, typed in the panel, applies on Enter: 2000Q1–2025Q4 is 104
     // quarters, 101 usable with three lags.
     h.get_by_label("estimation window from").click();

@@ -130,8 +130,12 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
         Pane::Charts => {}
     }
     let Some(results) = app.results.clone() else {
+        let text = match app.state {
+            EngineState::Failed => "No fans: the engine stopped on the error named above.",
+            _ => "The fans appear here as soon as the engine has the first draws.",
+        };
         ui.centered_and_justified(|ui| {
-            ui.label("The fans appear here as soon as the engine has the first draws.");
+            ui.label(text);
         });
         return;
     };
@@ -348,7 +352,7 @@ fn controls(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette, pages: usiz
         }
     }
     ui.horizontal(|ui| {
-        if app.stale() {
+        if app.stale() && app.results.is_some() {
             let what = if app.results.as_ref().is_some_and(|r| r.without_conditions) {
                 "the greyed fans are the model's forecast without any conditions"
             } else {
@@ -376,6 +380,9 @@ fn controls(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette, pages: usiz
         };
         ui.add(egui::Label::new(RichText::new(hint).small().color(pal.muted)).truncate());
     });
+    if app.results.is_none() {
+        return;
+    }
     let second = app.second.as_ref().map(|s| s.name().to_string());
     let legend = Legend {
         subject: app.view,

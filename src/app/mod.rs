@@ -70,6 +70,29 @@ pub enum AfterSave {
     Close,
 }
 
+/// What makes the model: the data, the series' transforms and the model settings (not the
+/// conditions, nor how series are shown).
+#[derive(Debug, Clone, PartialEq)]
+struct ModelKey {
+    dataset: String,
+    transforms: Vec<(String, crate::dataset::Transform)>,
+    model: crate::scenario::ModelSpec,
+}
+
+impl ModelKey {
+    fn of(file: &ScenarioFile) -> ModelKey {
+        ModelKey {
+            dataset: file.dataset.clone(),
+            transforms: file
+                .series
+                .iter()
+                .map(|s| (s.name.clone(), s.transform))
+                .collect(),
+            model: file.model.clone(),
+        }
+    }
+}
+
 /// The window's state.
 pub struct TiltyardApp {
     pub doc: Document,
@@ -103,8 +126,15 @@ pub struct TiltyardApp {
     pub state: EngineState,
     pub model_line: String,
     pub engine_error: Option<String>,
-    /// Time from the last edit to its first fans.
+    /// Time from the last edit to its first fans (none for a document's first job: that is
+    /// an opening, not an edit).
     pub first_update: Option<Duration>,
+    /// The job running is an edit's (not a document's first).
+    timing_edit: bool,
+    /// The window title last sent to the desktop.
+    pub title: String,
+    /// The model the checks shown were made with (see [`ModelKey`]).
+    checks_model: Option<ModelKey>,
     // Interface.
     pub charts: HashMap<(Subject, usize), ChartMemory>,
     pub hidden: HashSet<String>,
@@ -200,6 +230,9 @@ impl TiltyardApp {
             model_line: String::new(),
             engine_error: None,
             first_update: None,
+            timing_edit: false,
+            checks_model: None,
+            title: String::new(),
             charts: HashMap::new(),
             hidden: HashSet::new(),
             list_filter: String::new(),
@@ -233,6 +266,12 @@ impl TiltyardApp {
         self.sent.as_ref()
     }
 
+    /// The checks shown were made with another model than the one being estimated now (the
+    /// lags, prior, data or transforms changed): they are greyed and said to be old.
+    pub fn checks_of_another_model(&self) -> bool {
+        self.checks.is_some() && self.checks_model != self.sent.as_ref().map(ModelKey::of)
+    }
+
     /// True while the worker has not finished the newest job.
     pub fn busy(&self) -> bool {
         self.sent.as_ref() != Some(&self.doc.file)
@@ -252,6 +291,7 @@ impl TiltyardApp {
         self.generation += 1;
         self.job_started = Instant::now();
         self.first_update = None;
+        self.timing_edit = self.sent.is_some();
         self.engine_error = None;
         // Until the worker reports on the new job, the old job's state no longer applies.
         self.state = EngineState::Idle;
@@ -335,6 +375,7 @@ impl TiltyardApp {
                         self.checked = (f.pins.len(), f.corridors.len());
                     }
                     self.checks = Some(report);
+                    self.checks_model = self.sent.as_ref().map(ModelKey::of);
                 }
                 // Fans without the conditions only stand in for having none at all.
                 Message::Results(g, r)
@@ -342,7 +383,9 @@ impl TiltyardApp {
                         && !(r.without_conditions
                             && self.results.as_ref().is_some_and(|x| !x.without_conditions)) =>
                 {
-                    self.first_update.get_or_insert(self.job_started.elapsed());
+                    if self.timing_edit {
+                        self.first_update.get_or_insert(self.job_started.elapsed());
+                    }
                     self.results = Some(r);
                 }
                 Message::Sources(g, s) if g == self.generation => self.sources = Some((g, s)),

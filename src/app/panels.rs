@@ -64,15 +64,24 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp) {
 
 fn top_bar(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     ui.horizontal_wrapped(|ui| {
-        let dirty = if app.saving {
-            " (saving…)"
-        } else if app.doc.is_dirty() {
-            " •"
-        } else {
-            ""
-        };
-        ui.heading(format!("{}{dirty}", app.doc.file.name))
+        ui.heading(&app.doc.file.name)
             .on_hover_text(&app.doc.file.narrative);
+        // The file and its state in a fixed width, so the buttons never move.
+        let (state, colour) = if app.saving {
+            ("saving…", pal.muted)
+        } else if app.doc.untitled {
+            ("not saved yet", pal.strain)
+        } else if app.doc.is_dirty() {
+            ("unsaved changes", pal.strain)
+        } else {
+            ("saved", pal.muted)
+        };
+        ui.add_sized(
+            [110.0, ui.spacing().interact_size.y],
+            egui::Label::new(RichText::new(state).color(colour)),
+        )
+        .on_hover_text(app.doc.path.display().to_string());
+        window_title(ui, app, state);
         ui.separator();
         if ui
             .button("New")
@@ -125,19 +134,27 @@ fn top_bar(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
         {
             app.doc.redo();
         }
-        ui.separator();
-        theme_switch(ui);
     });
     // The engine's state in a slot of its own width, so that its changing text never moves
     // the rest of the window (the charts must not shift under a drag).
     ui.horizontal(|ui| {
+        ui.add_sized(
+            [200.0, ui.spacing().interact_size.y],
+            egui::Label::new(RichText::new(short_path(&app.doc.path)).color(pal.muted)).truncate(),
+        )
+        .on_hover_text(app.doc.path.display().to_string());
         let (text, colour) = engine_text(&app.state, pal);
         ui.add_sized(
             [260.0, ui.spacing().interact_size.y],
             egui::Label::new(RichText::new(text).color(colour).strong()).truncate(),
         );
         ui.separator();
-        ui.add(egui::Label::new(RichText::new(&app.model_line).color(pal.muted)).truncate());
+        // The theme switch keeps the right end; the model line takes what is left.
+        ui.with_layout(egui::Layout::right_to_left(egui::Align::Center), |ui| {
+            theme_switch(ui);
+            ui.separator();
+            ui.add(egui::Label::new(RichText::new(&app.model_line).color(pal.muted)).truncate());
+        });
     });
     if !app.doc.file.narrative.is_empty() {
         ui.label(RichText::new(&app.doc.file.narrative).italics().small());
@@ -150,16 +167,49 @@ fn top_bar(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     }
 }
 
+/// The last two parts of a path ("scenarios-demo/adverse.ron"), the way people name a file
+/// they are working on.
+pub fn short_path(path: &std::path::Path) -> String {
+    let parts: Vec<String> = path
+        .components()
+        .rev()
+        .take(2)
+        .map(|c| c.as_os_str().to_string_lossy().into_owned())
+        .collect();
+    let short: Vec<&str> = parts.iter().rev().map(String::as_str).collect();
+    short.join("/")
+}
+
+/// The window's title names the scenario, its file and whether it is saved; sent to the
+/// desktop only when it changes.
+fn window_title(ui: &egui::Ui, app: &mut TiltyardApp, state: &str) {
+    let title = format!(
+        "{} · {} ({state}) · Tiltyard",
+        app.doc.file.name,
+        short_path(&app.doc.path)
+    );
+    if app.title != title {
+        ui.ctx()
+            .send_viewport_cmd(egui::ViewportCommand::Title(title.clone()));
+        app.title = title;
+    }
+}
+
 /// Light, dark, or as the desktop says (words, not glyphs: the bundled font has no symbols).
 fn theme_switch(ui: &mut egui::Ui) {
     use egui::ThemePreference;
     let before = ui.ctx().options(|o| o.theme_preference);
     let mut pref = before;
-    for (p, name) in [
+    let mut choices = [
         (ThemePreference::Light, "light"),
         (ThemePreference::Dark, "dark"),
         (ThemePreference::System, "system"),
-    ] {
+    ];
+    // Read left to right whichever way the row is laid out.
+    if ui.layout().main_dir() == egui::Direction::RightToLeft {
+        choices.reverse();
+    }
+    for (p, name) in choices {
         ui.selectable_value(&mut pref, p, name);
     }
     if pref != before {
@@ -413,8 +463,33 @@ pub(super) fn shock_order(app: &TiltyardApp) -> Vec<String> {
 fn checks(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     ui.strong("Checks");
     let Some(report) = app.checks.clone() else {
-        ui.label(RichText::new("waiting for the engine…").color(pal.muted));
+        let text = match app.state {
+            EngineState::Failed => "none: the engine stopped before it could check (see above)",
+            _ => "waiting for the engine…",
+        };
+        ui.label(RichText::new(text).color(pal.muted));
         return;
+    };
+    // While the model is estimated again, the checks shown are the previous model's: greyed,
+    // and said so.
+    let old = app.checks_of_another_model();
+    if old {
+        ui.label(
+            RichText::new(
+                "the model is being estimated again: these checks are the previous model's",
+            )
+            .color(pal.strain),
+        );
+    }
+    let pal = &if old {
+        Palette {
+            ok: pal.stale,
+            strain: pal.stale,
+            clash: pal.stale,
+            ..*pal
+        }
+    } else {
+        *pal
     };
     let (verdict, colour) = match report.status {
         Status::Clear => ("clear: the conditions hold together without strain", pal.ok),
