@@ -120,13 +120,17 @@ fn the_demo_pack_is_complete_and_self_contained() {
     let html = std::fs::read_to_string(dir.join("briefing.html")).unwrap();
     well_formed(&html).unwrap();
     for p in &file.pins {
-        assert!(html.contains(&escape(&pin_words(p))), "{}", pin_words(p));
+        assert!(
+            html.contains(&escape(&pin_words(&file, p))),
+            "{}",
+            pin_words(&file, p)
+        );
     }
     for c in &file.corridors {
         assert!(
-            html.contains(&escape(&corridor_words(c))),
+            html.contains(&escape(&corridor_words(&file, c))),
             "{}",
-            corridor_words(c)
+            corridor_words(&file, c)
         );
     }
     let checks: serde_json::Value =

@@ -145,8 +145,13 @@ fn opening_a_scenario_shows_its_series_and_fans() {
     let dir = tempfile::tempdir().unwrap();
     let mut h = harness(&demo_copy(&dir));
     settle(&mut h);
-    for name in ["output", "house_prices", "credit_spread"] {
+    // Series by the labels the scenario file gives them, units in words, not identifiers.
+    for name in ["Real output", "House prices", "Corporate credit spread"] {
         assert!(h.query_all_by_label(name).count() >= 1, "{name} is shown");
+    }
+    assert!(h.query_all_by_label("% on a year earlier").count() >= 1);
+    for raw in ["house_prices", "year_on_year"] {
+        assert!(h.query_by_label(raw).is_none(), "{raw} is not shown");
     }
     let app = h.state();
     let r = app.results.as_ref().unwrap();
@@ -1006,7 +1011,7 @@ fn the_window_splits_the_scenario_as_the_headless_run_does() {
     assert_eq!(h.state().pane, tiltyard::app::grid::Pane::Sources);
     h.get_by_label("total").hover();
     // The shock list on the left, and the table's row.
-    assert!(h.query_all_by_label("unemployment shock").count() >= 2);
+    assert!(h.query_all_by_label("Unemployment rate shock").count() >= 2);
     // No condition is keyed while the split is by shock; by condition, each is.
     let pin = tiltyard::app::chart::CondRef::Pin(0);
     assert!(tiltyard::app::sources::colour_of(h.state(), pin).is_none());

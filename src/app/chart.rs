@@ -136,6 +136,8 @@ pub struct ChartMemory {
 /// Everything a chart needs to draw itself.
 pub struct ChartInput<'a> {
     pub index: usize,
+    /// What the values are measured in, in words (the value axis says it).
+    pub measure: &'a str,
     pub view: &'a SeriesView,
     pub results: &'a Results,
     pub file: &'a ScenarioFile,
@@ -432,6 +434,7 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
         .allow_double_click_reset(false)
         .show_grid([false, true])
         .y_axis_min_width(36.0)
+        .y_axis_label(input.measure)
         .y_grid_spacer(egui_plot::uniform_grid_spacer(steps_125))
         .x_axis_formatter(move |mark: GridMark, _| {
             label_results

@@ -166,6 +166,8 @@ pub fn scenario_for(path: &Path) -> Result<ScenarioFile, String> {
                 transform: crate::dataset::Transform::AsIs,
                 centre: Default::default(),
                 display: Default::default(),
+                label: None,
+                unit: None,
             })
             .collect(),
         model: ModelSpec::Minnesota(Default::default()),

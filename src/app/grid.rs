@@ -182,11 +182,11 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
                     col.horizontal(|ui| {
                         match subject {
                             Subject::Series => {
-                                ui.strong(&view.name);
+                                ui.strong(app.shown(&view.name));
                                 units_box(ui, app, i, &view.name);
                             }
                             Subject::Shock => {
-                                ui.strong(format!("{} shock", view.name));
+                                ui.strong(format!("{} shock", app.shown(&view.name)));
                             }
                         }
                         let label = if enlarged == Some(i) {
@@ -210,8 +210,13 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
                         memory.range = None;
                     }
                     let status = |r: CondRef| app.status_of(r).map(|s| severity_colour(pal, s));
+                    let measure = match subject {
+                        Subject::Series => app.measure(&view.name, view.units),
+                        Subject::Shock => "standard deviations".to_string(),
+                    };
                     let input = ChartInput {
                         index: i,
+                        measure: &measure,
                         view,
                         results: &results,
                         file: &app.doc.file,

@@ -266,6 +266,27 @@ impl TiltyardApp {
         self.sent.as_ref()
     }
 
+    /// A series as people name it (its label in the scenario file, else its column name).
+    pub fn shown(&self, name: &str) -> String {
+        self.doc
+            .file
+            .series
+            .iter()
+            .find(|s| s.name == name)
+            .map_or(name, |s| s.shown())
+            .to_string()
+    }
+
+    /// What a series' values in `units` are measured in, in words.
+    pub fn measure(&self, name: &str, units: crate::scenario::Units) -> String {
+        self.doc
+            .file
+            .series
+            .iter()
+            .find(|s| s.name == name)
+            .map_or_else(|| units.words(), |s| s.measure(units))
+    }
+
     /// The checks shown were made with another model than the one being estimated now (the
     /// lags, prior, data or transforms changed): they are greyed and said to be old.
     pub fn checks_of_another_model(&self) -> bool {

@@ -306,7 +306,11 @@ fn series_list(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
         .file
         .series
         .iter()
-        .filter(|s| wanted.is_empty() || s.name.to_lowercase().contains(&wanted))
+        .filter(|s| {
+            wanted.is_empty()
+                || s.name.to_lowercase().contains(&wanted)
+                || s.shown().to_lowercase().contains(&wanted)
+        })
         .map(|s| (s.name.clone(), s.display))
         .collect();
     ui.horizontal(|ui| {
@@ -336,14 +340,18 @@ fn series_list(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     for (name, units) in &names {
         ui.horizontal(|ui| {
             let mut shown = !app.hidden.contains(name);
-            if ui.checkbox(&mut shown, name.as_str()).changed() {
+            if ui.checkbox(&mut shown, app.shown(name)).changed() {
                 if shown {
                     app.hidden.remove(name);
                 } else {
                     app.hidden.insert(name.clone());
                 }
             }
-            ui.label(RichText::new(units.label()).small().color(pal.muted));
+            ui.label(
+                RichText::new(app.measure(name, *units))
+                    .small()
+                    .color(pal.muted),
+            );
             if let Some(s) = status(app, Subject::Series, name) {
                 dot(ui, severity_colour(pal, s));
             }
@@ -370,7 +378,10 @@ fn series_list(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
                 .as_ref()
                 .is_some_and(|d| d.contains(name));
         ui.horizontal(|ui| {
-            if ui.checkbox(&mut drives, format!("{name} shock")).changed() {
+            if ui
+                .checkbox(&mut drives, format!("{} shock", app.shown(name)))
+                .changed()
+            {
                 toggle = Some((name.clone(), drives));
             }
             if let Some(s) = status(app, Subject::Shock, name) {
@@ -437,10 +448,10 @@ fn status(app: &TiltyardApp, subject: Subject, name: &str) -> Option<Severity> {
 pub(super) fn units_box(ui: &mut egui::Ui, app: &mut TiltyardApp, i: usize, name: &str) {
     let mut units = app.doc.file.series.get(i).map(|s| s.display);
     egui::ComboBox::from_id_salt(("units", i))
-        .selected_text(units.map(|u| u.label()).unwrap_or_default())
+        .selected_text(units.map(|u| u.words()).unwrap_or_default())
         .show_ui(ui, |ui| {
             for u in CHART_UNITS {
-                ui.selectable_value(&mut units, Some(u), u.label());
+                ui.selectable_value(&mut units, Some(u), u.words());
             }
         })
         .response

@@ -207,8 +207,12 @@ pub fn table(ui: &mut egui::Ui, app: &TiltyardApp, pal: &Palette) {
                             continue;
                         };
                         for (a, b) in view.conditional.iter().zip(&o.conditional) {
-                            ui.label(&view.name);
-                            ui.label(RichText::new(view.units.label()).small().color(pal.muted));
+                            ui.label(app.shown(&view.name));
+                            ui.label(
+                                RichText::new(app.measure(&view.name, view.units))
+                                    .small()
+                                    .color(pal.muted),
+                            );
                             ui.label(first.label(a.x).unwrap_or(""));
                             ui.label(format!("{:.2}", a.q[3]));
                             ui.label(format!("{:.2} … {:.2}", a.q[0], a.q[6]));

@@ -83,7 +83,7 @@ struct Part {
 /// scenario's order (pins, then corridors).
 fn parts(
     sources: &Sources,
-    names: &[String],
+    shown: &[String],
     i: usize,
     by_condition: bool,
     pal: &Palette,
@@ -91,7 +91,7 @@ fn parts(
     let a = &sources.attribution;
     let terms = &sources.units[i].0;
     if !by_condition {
-        return shock_parts(a, names, terms, i)
+        return shock_parts(a, shown, terms, i)
             .into_iter()
             .enumerate()
             .map(|(k, p)| Part {
@@ -125,6 +125,7 @@ fn parts(
 /// The view: choices in one row, the chart, the table.
 pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     let names: Vec<String> = app.doc.file.series.iter().map(|s| s.name.clone()).collect();
+    let shown: Vec<String> = names.iter().map(|n| app.shown(n)).collect();
     let Some((generation, sources)) = app.sources.clone() else {
         ui.label(
             RichText::new(
@@ -151,10 +152,10 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     let i = names.iter().position(|n| *n == chosen).unwrap_or(0);
     ui.horizontal_wrapped(|ui| {
         egui::ComboBox::from_id_salt("sources series")
-            .selected_text(&names[i])
+            .selected_text(&shown[i])
             .show_ui(ui, |ui| {
-                for name in &names {
-                    if ui.selectable_label(*name == names[i], name).clicked() {
+                for (name, label) in names.iter().zip(&shown) {
+                    if ui.selectable_label(*name == names[i], label).clicked() {
                         view.series = Some(name.clone());
                     }
                 }
@@ -185,7 +186,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
         );
     }
     let by_condition = view.by_condition;
-    let list = parts(&sources, &names, i, by_condition, pal);
+    let list = parts(&sources, &shown, i, by_condition, pal);
     let a = &sources.attribution;
     let total = series_part(a.n, &sources.units[i].0, &a.total, i);
     let labels: Vec<String> = match &app.results {

@@ -55,7 +55,12 @@ pub fn conditions(ui: &mut Ui, app: &mut TiltyardApp, pal: &Palette) {
             .color(pal.muted),
     );
     let file = app.doc.file.clone();
-    let series: Vec<String> = file.series.iter().map(|s| s.name.clone()).collect();
+    // (column name, the name shown)
+    let series: Vec<(String, String)> = file
+        .series
+        .iter()
+        .map(|s| (s.name.clone(), s.shown().to_string()))
+        .collect();
     let per_year = app
         .results
         .as_ref()
@@ -186,11 +191,11 @@ pub(super) fn in_gesture(
 fn units_box(ui: &mut Ui, id: (&str, usize), units: &mut Units, per_year: usize) -> bool {
     let before = *units;
     egui::ComboBox::from_id_salt(id)
-        .selected_text(units.label())
-        .width(96.0)
+        .selected_text(units.words())
+        .width(150.0)
         .show_ui(ui, |ui| {
             for u in units_offered(per_year, before) {
-                ui.selectable_value(units, u, u.label());
+                ui.selectable_value(units, u, u.words());
             }
         })
         .response
@@ -203,11 +208,17 @@ fn target_box(
     id: (&str, usize),
     series: &mut Option<String>,
     shock: &mut Option<String>,
-    names: &[String],
+    names: &[(String, String)],
 ) -> bool {
+    let shown = |n: &str| {
+        names
+            .iter()
+            .find(|(name, _)| name == n)
+            .map_or(n.to_string(), |(_, s)| s.clone())
+    };
     let current = match (&series, &shock) {
-        (Some(s), _) => s.clone(),
-        (None, Some(s)) => format!("{s} shock"),
+        (Some(s), _) => shown(s),
+        (None, Some(s)) => format!("{} shock", shown(s)),
         _ => "?".into(),
     };
     let mut chosen: Option<(bool, String)> = None;
@@ -215,18 +226,18 @@ fn target_box(
         .selected_text(current)
         .width(130.0)
         .show_ui(ui, |ui| {
-            for n in names {
+            for (n, label) in names {
                 if ui
-                    .selectable_label(series.as_deref() == Some(n), n)
+                    .selectable_label(series.as_deref() == Some(n), label)
                     .clicked()
                 {
                     chosen = Some((false, n.clone()));
                 }
             }
             ui.separator();
-            for n in names {
+            for (n, label) in names {
                 if ui
-                    .selectable_label(shock.as_deref() == Some(n), format!("{n} shock"))
+                    .selectable_label(shock.as_deref() == Some(n), format!("{label} shock"))
                     .clicked()
                 {
                     chosen = Some((true, n.clone()));
@@ -254,7 +265,7 @@ fn target_box(
 /// is about (a series or a shock).
 struct Head<'a> {
     cref: CondRef,
-    names: &'a [String],
+    names: &'a [(String, String)],
 }
 
 impl Head<'_> {
@@ -292,7 +303,7 @@ fn pin_row(
     ui: &mut Ui,
     k: usize,
     pin: &PinSpec,
-    names: &[String],
+    names: &[(String, String)],
     per_year: usize,
     edits: &mut Vec<Edit>,
 ) {
@@ -333,7 +344,7 @@ fn corridor_row(
     ui: &mut Ui,
     k: usize,
     c: &CorridorSpec,
-    names: &[String],
+    names: &[(String, String)],
     (per_year, freq): (usize, Option<Frequency>),
     edits: &mut Vec<Edit>,
 ) {

@@ -137,7 +137,10 @@ pub fn series_chart(
         let root = BitMapBackend::new(tmp, (WIDTH, HEIGHT)).into_drawing_area();
         root.fill(&WHITE).map_err(&err)?;
         let mut chart = ChartBuilder::on(&root)
-            .caption(format!("{name}: {}", units.label()), ("sans-serif", 22))
+            .caption(
+                format!("{}, {}", setup.shown(i), setup.measure(i, units)),
+                ("sans-serif", 22),
+            )
             .margin(12)
             .x_label_area_size(32)
             .y_label_area_size(56)
@@ -157,7 +160,7 @@ pub fn series_chart(
             .max_light_lines(0)
             .x_labels((h - first) as usize + 1)
             .x_label_formatter(&label_of)
-            .y_desc(units.label())
+            .y_desc(setup.measure(i, units))
             .label_style(("sans-serif", 14))
             .draw()
             .map_err(&err)?;

@@ -19,7 +19,7 @@ use super::{
 use crate::checks::{Severity, Status};
 use crate::compare::{Change, Comparison, write_compare};
 use crate::run::{RunOutcome, summary};
-use crate::scenario::{Bound, CorridorSpec, PinSpec, Setup};
+use crate::scenario::{Bound, CorridorSpec, PinSpec, ScenarioFile, Setup, Units};
 
 fn io(path: &Path) -> impl Fn(std::io::Error) -> ReportError + '_ {
     move |error| ReportError::Io {
@@ -100,28 +100,39 @@ pub fn one_in(log10_probability: f64) -> String {
     format!("about 1 in {grouped}")
 }
 
-fn target(series: &Option<String>, shock: &Option<String>) -> String {
+/// A series or shock as people name it, with the units of a condition on it in words.
+fn target(
+    file: &ScenarioFile,
+    series: &Option<String>,
+    shock: &Option<String>,
+    units: Units,
+) -> (String, String) {
+    let spec = |n: &str| file.series.iter().find(|s| s.name == n);
     match (series, shock) {
-        (Some(s), _) => s.clone(),
-        (None, Some(j)) => format!("the {j} shock"),
-        _ => "?".into(),
+        (Some(s), _) => spec(s).map_or((s.clone(), units.words()), |spec| {
+            (spec.shown().to_string(), spec.measure(units))
+        }),
+        (None, Some(j)) => (
+            format!("the {} shock", spec(j).map_or(j.as_str(), |s| s.shown())),
+            "standard deviations".into(),
+        ),
+        _ => ("?".into(), units.words()),
     }
 }
 
-/// A pin in plain words.
-pub fn pin_words(p: &PinSpec) -> String {
+/// A pin in plain words, naming series as the scenario file labels them.
+pub fn pin_words(file: &ScenarioFile, p: &PinSpec) -> String {
+    let (what, measure) = target(file, &p.series, &p.shock, p.units);
     format!(
-        "{} is fixed at {} ({}) in {}{}",
-        target(&p.series, &p.shock),
+        "{what} is fixed at {} ({measure}) in {}{}",
         p.value,
-        p.units.label(),
         p.period,
         if p.active { "" } else { " (switched off)" }
     )
 }
 
-/// A corridor in plain words.
-pub fn corridor_words(c: &CorridorSpec) -> String {
+/// A corridor in plain words, naming series as the scenario file labels them.
+pub fn corridor_words(file: &ScenarioFile, c: &CorridorSpec) -> String {
     let bound = |b: &Option<Bound>| match b {
         None => None,
         Some(Bound::Same(v)) => Some(v.to_string()),
@@ -139,10 +150,9 @@ pub fn corridor_words(c: &CorridorSpec) -> String {
         (None, Some(b)) => format!("at or below {b}"),
         (None, None) => "anywhere (both sides open)".into(),
     };
+    let (what, measure) = target(file, &c.series, &c.shock, c.units);
     format!(
-        "{} stays {range} ({}) from {} to {}{}",
-        target(&c.series, &c.shock),
-        c.units.label(),
+        "{what} stays {range} ({measure}) from {} to {}{}",
         c.from,
         c.to,
         if c.active { "" } else { " (switched off)" }
@@ -175,7 +185,7 @@ pub fn write_pack(
         series_chart(&path, setup, &out.fans, i)?;
         figures.push_str(&figure(
             &path,
-            &format!("{}: the scenario's fan", setup.names[i]),
+            &format!("{}: the scenario's fan", setup.shown(i)),
         )?);
         written.push(path);
     }
@@ -200,7 +210,7 @@ pub fn write_pack(
             ));
             let title = format!(
                 "{}: conditional minus unconditional mean, by shock",
-                setup.names[i]
+                setup.shown(i)
             );
             stacked_chart(&path, setup, &title, &units, &bars, &total)?;
             sources.push_str(&figure(&path, &title)?);
@@ -320,10 +330,10 @@ fn page(
         escape(&f.narrative)
     );
     for p in &f.pins {
-        let _ = writeln!(h, "<li>{}</li>", escape(&pin_words(p)));
+        let _ = writeln!(h, "<li>{}</li>", escape(&pin_words(f, p)));
     }
     for c in &f.corridors {
-        let _ = writeln!(h, "<li>{}</li>", escape(&corridor_words(c)));
+        let _ = writeln!(h, "<li>{}</li>", escape(&corridor_words(f, c)));
     }
     if f.pins.is_empty() && f.corridors.is_empty() {
         h.push_str("<li>none: the paths are the model's unconditional forecast</li>\n");

@@ -127,6 +127,31 @@ pub struct SeriesSpec {
     /// Units in which fans and tables show this series.
     #[serde(default)]
     pub display: Units,
+    /// The series as people name it ("Unemployment rate"); the column name when absent.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub label: Option<String>,
+    /// The unit of its level as people say it ("%", "index", "% a year"); shown on the
+    /// charts and tables in levels.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub unit: Option<String>,
+}
+
+impl SeriesSpec {
+    /// The name shown to people: the label, else the column name.
+    pub fn shown(&self) -> &str {
+        self.label.as_deref().unwrap_or(&self.name)
+    }
+
+    /// What values in `units` are measured in, in words: the level's unit for levels and
+    /// averages (when the file gives one), else the units' own words.
+    pub fn measure(&self, units: Units) -> String {
+        match (units, &self.unit) {
+            (Units::Level, Some(u)) => u.clone(),
+            (Units::Average(k), Some(u)) => format!("{u}, average over {k} periods"),
+            (Units::Difference, Some(u)) => format!("change on the previous period, {u}"),
+            _ => units.words(),
+        }
+    }
 }
 
 /// Prior mean of a series' first own lag.
@@ -195,6 +220,19 @@ pub enum Units {
 }
 
 impl Units {
+    /// The units as people say them ("% on a year earlier"), for the window and the pack;
+    /// [`Units::label`] is the scenario file's spelling.
+    pub fn words(self) -> String {
+        match self {
+            Units::Level => "level".into(),
+            Units::PctChange => "% change on the previous period".into(),
+            Units::Annualised => "annualised % change".into(),
+            Units::YearOnYear => "% on a year earlier".into(),
+            Units::Difference => "change on the previous period".into(),
+            Units::Average(k) => format!("average over {k} periods"),
+        }
+    }
+
     pub fn label(self) -> String {
         match self {
             Units::Level => "level".into(),
