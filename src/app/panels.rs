@@ -543,8 +543,9 @@ fn checks(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     }
     if let Some(c) = &report.corridors {
         ui.label(format!(
-            "Corridors given the pins: probability 10^{:.2} (±{:.0}%), every shock free",
+            "Corridors given the pins: probability 10^{:.2} ({}, ±{:.0}%), every shock free",
             c.log10_probability,
+            crate::checks::one_in(c.log10_probability),
             100.0 * c.relative_error
         ));
     }

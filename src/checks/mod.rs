@@ -475,9 +475,10 @@ fn strain_findings(
             kind: "pins_far_from_forecast".into(),
             fields: fields_of(cond, &conditions),
             message: format!(
-                "the pins are jointly {:.1} standard deviations from the unconditional forecast (χ² tail 10^{:.1})",
+                "the pins are jointly {:.1} standard deviations from the unconditional forecast (χ² tail 10^{:.1}, {})",
                 p.mahalanobis.sqrt(),
-                p.log10_tail
+                p.log10_tail,
+                one_in(p.log10_tail)
             ),
             remedy: "move the pins named here towards the unconditional forecast, or keep them knowing the scenario is far in the tails".into(),
             conditions,
@@ -506,8 +507,9 @@ fn strain_findings(
             kind: "corridors_improbable".into(),
             fields: fields_of(cond, &conditions),
             message: format!(
-                "the corridors hold with probability 10^{:.1} given the pins (every shock free)",
-                c.log10_probability
+                "the corridors hold with probability 10^{:.1} ({}) given the pins (every shock free)",
+                c.log10_probability,
+                one_in(c.log10_probability)
             ),
             remedy: "widen or move the corridors named here, or the pins that push against them"
                 .into(),
@@ -516,4 +518,48 @@ fn strain_findings(
         });
     }
     out
+}
+
+/// A probability in plain words: "about 1 in 190,000" (from its log10).
+pub fn one_in(log10_probability: f64) -> String {
+    if !log10_probability.is_finite() {
+        return if log10_probability == f64::NEG_INFINITY {
+            "too small to tell apart from 0".into()
+        } else {
+            "not measured".into()
+        };
+    }
+    if log10_probability < -15.0 {
+        return format!("about 1 in 10^{:.0}", -log10_probability);
+    }
+    if log10_probability >= -0.3 {
+        return format!("about {:.0}%", 100.0 * 10f64.powf(log10_probability));
+    }
+    let n = 10f64.powf(-log10_probability);
+    let digits = n.log10().floor() as i32;
+    let unit = 10f64.powi((digits - 1).max(0));
+    let rounded = ((n / unit).round() * unit) as u128;
+    let text = rounded.to_string();
+    let mut grouped = String::new();
+    for (k, c) in text.chars().enumerate() {
+        if k > 0 && (text.len() - k).is_multiple_of(3) {
+            grouped.push(',');
+        }
+        grouped.push(c);
+    }
+    format!("about 1 in {grouped}")
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn probabilities_read_in_plain_words() {
+        assert_eq!(one_in(-5.28), "about 1 in 190,000");
+        assert_eq!(one_in(-2.0), "about 1 in 100");
+        assert_eq!(one_in(-0.1), "about 79%");
+        assert_eq!(one_in(-50.0), "about 1 in 10^50");
+        assert_eq!(one_in(f64::NAN), "not measured");
+    }
 }

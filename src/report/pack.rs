@@ -16,7 +16,7 @@ use super::{
     CAUTION, ReportError, write_atomic, write_attribution, write_checks_json, write_fans,
     write_summary,
 };
-use crate::checks::{Severity, Status};
+use crate::checks::{Severity, Status, one_in};
 use crate::compare::{Change, Comparison, write_compare};
 use crate::run::{RunOutcome, summary};
 use crate::scenario::{Bound, CorridorSpec, PinSpec, ScenarioFile, Setup, Units};
@@ -68,36 +68,6 @@ fn base64(bytes: &[u8]) -> String {
         }
     }
     out
-}
-
-/// A probability in plain words: "about 1 in 190,000" (from its log10).
-pub fn one_in(log10_probability: f64) -> String {
-    if !log10_probability.is_finite() {
-        return if log10_probability == f64::NEG_INFINITY {
-            "too small to tell apart from 0".into()
-        } else {
-            "not measured".into()
-        };
-    }
-    if log10_probability < -15.0 {
-        return format!("about 1 in 10^{:.0}", -log10_probability);
-    }
-    if log10_probability >= -0.3 {
-        return format!("about {:.0}%", 100.0 * 10f64.powf(log10_probability));
-    }
-    let n = 10f64.powf(-log10_probability);
-    let digits = n.log10().floor() as i32;
-    let unit = 10f64.powi((digits - 1).max(0));
-    let rounded = ((n / unit).round() * unit) as u128;
-    let text = rounded.to_string();
-    let mut grouped = String::new();
-    for (k, c) in text.chars().enumerate() {
-        if k > 0 && (text.len() - k).is_multiple_of(3) {
-            grouped.push(',');
-        }
-        grouped.push(c);
-    }
-    format!("about 1 in {grouped}")
 }
 
 /// A series or shock as people name it, with the units of a condition on it in words.
@@ -511,14 +481,5 @@ mod tests {
         ] {
             assert_eq!(base64(plain.as_bytes()), coded);
         }
-    }
-
-    #[test]
-    fn probabilities_read_in_plain_words() {
-        assert_eq!(one_in(-5.28), "about 1 in 190,000");
-        assert_eq!(one_in(-2.0), "about 1 in 100");
-        assert_eq!(one_in(-0.1), "about 79%");
-        assert_eq!(one_in(-50.0), "about 1 in 10^50");
-        assert_eq!(one_in(f64::NAN), "not measured");
     }
 }
