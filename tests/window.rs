@@ -1323,3 +1323,37 @@ fn the_axes_stay_put_when_the_fans_update() {
     }
     assert!(kept >= 6, "only {kept} charts could keep their range");
 }
+
+/// A drag across periods that a corridor on the chart already holds draws that corridor
+/// again (its periods and bounds), rather than stacking a second one on it.
+#[test]
+fn a_drag_over_an_existing_corridor_edits_it() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut h = harness(&demo_copy(&dir));
+    settle(&mut h);
+    // corridors[2]: policy_rate (series 3), level, 2026Q1–2027Q4, between 1 and 3.
+    let before = h.state().doc.file.corridors.clone();
+    assert_eq!(before[2].series.as_deref(), Some("policy_rate"));
+    let (x0, x1) = (horizon(&h, "2026Q3"), horizon(&h, "2027Q2"));
+    let (from, to) = (screen(&h, 3, x0, 1.5), screen(&h, 3, x1, 2.5));
+    drag(&mut h, from, to);
+    let after = &h.state().doc.file.corridors;
+    assert_eq!(after.len(), before.len(), "no corridor was added");
+    let c = &after[2];
+    assert_eq!((c.from.as_str(), c.to.as_str()), ("2026Q3", "2027Q2"));
+    let bound = |b: &Option<scenario::Bound>| match b {
+        Some(scenario::Bound::Same(v)) => *v,
+        other => panic!("one value expected, got {other:?}"),
+    };
+    assert!((bound(&c.lower) - 1.5).abs() < 0.2, "{:?}", c.lower);
+    assert!((bound(&c.upper) - 2.5).abs() < 0.2, "{:?}", c.upper);
+    assert_eq!(
+        &after[..2],
+        &before[..2],
+        "the other corridors are untouched"
+    );
+    // One undo step brings it back.
+    h.key_press_modifiers(Modifiers::COMMAND, egui::Key::Z);
+    h.step();
+    assert_eq!(h.state().doc.file.corridors, before);
+}

@@ -8,8 +8,9 @@
 //! Gestures (hit-tested in screen pixels, so the tolerance does not depend on zoom):
 //! drag a pin up and down; drag a corridor's upper or lower edge (all its periods, or with Ctrl
 //! only the period under the pointer) or its first or last period sideways; Ctrl+click a future
-//! period to place a pin; drag across empty future periods to draw a corridor; right-click a
-//! handle to remove its condition. Values snap to readable steps; hold Shift to move freely
+//! period to place a pin; drag across empty future periods to draw a corridor (across periods
+//! a corridor on the chart holds, to draw that one again); right-click a handle to remove its
+//! condition. The handle under the pointer is drawn as if selected. Values snap to readable steps; hold Shift to move freely
 //! (G turns snapping off and on; Shift then snaps).
 //! The chart never pans or zooms, so a drag always means an edit. Its value range is fitted
 //! once and then kept steady as fans update: it widens only when something would leave it,
@@ -70,6 +71,16 @@ pub enum ChartAction {
         units: Units,
         value: f64,
     },
+    /// Draw an existing corridor again (a new-corridor drag over periods it holds): its
+    /// periods and both bounds become the drawn ones, in the chart's units.
+    RedrawCorridor {
+        corridor: usize,
+        from: String,
+        to: String,
+        units: Units,
+        lower: f64,
+        upper: f64,
+    },
     /// A new corridor, in the chart's units.
     AddCorridor {
         from: String,
@@ -127,6 +138,8 @@ pub struct ChartMemory {
     pub range: Option<(f64, f64, Units)>,
     /// The range the chart's contents span (history, both fans, conditions).
     pub wanted: (f64, f64),
+    /// The condition whose handle the pointer was over last frame (drawn highlighted).
+    pub hover: Option<CondRef>,
     /// The hover readout is held back: a handle is under the pointer, a drag is on or the
     /// remove menu is open (the readout is drawn above menus and would hide them). Decided
     /// from the previous frame, as the plot is built before its handles are known.
@@ -154,8 +167,9 @@ pub struct ChartInput<'a> {
     pub second: Option<&'a SeriesView>,
 }
 
-/// Pixels within which a pointer picks a handle.
-const PICK: f32 = 8.0;
+/// Pixels within which a pointer picks a handle (a quarter can be under 10 pixels wide and an
+/// edge is one pixel thick: the hit area is much larger than either).
+const PICK: f32 = 10.0;
 
 /// The value range to show for contents spanning `wanted`: the previous range while a drag
 /// lasts or while it holds the contents; else each side the contents pass moves out to them
@@ -567,7 +581,7 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
         };
         for (c, first, periods) in &corridors {
             let cref = CondRef::Corridor(*c);
-            let selected = input.selected == Some(cref);
+            let selected = input.selected == Some(cref) || memory.hover == Some(cref);
             let edge = (input.status)(cref).unwrap_or(pal.corridor);
             for (k, (l, u)) in periods.iter().enumerate() {
                 let x = (*first + k as i64) as f64;
@@ -606,7 +620,7 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
         for &(k, x, v) in &pins {
             let cref = CondRef::Pin(k);
             let ring = (input.status)(cref);
-            let selected = input.selected == Some(cref);
+            let selected = input.selected == Some(cref) || memory.hover == Some(cref);
             if let Some(ring) = ring {
                 // A ring two pixels thick.
                 for radius in [9.5, 10.5] {
@@ -808,16 +822,33 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
                     free_or_snap(start.y.min(now.y)),
                     free_or_snap(start.y.max(now.y)),
                 );
+                // Over periods a corridor on this chart already holds, the drag draws that
+                // corridor again rather than stacking a second one on it.
+                let under = corridors.iter().find(|(_, first, periods)| {
+                    let last = first + periods.len() as i64 - 1;
+                    (x0 as i64) <= last && (x1 as i64) >= *first
+                });
                 if x1 >= x0
                     && y1 > y0
                     && let (Some(from), Some(to)) = (results.label(x0), results.label(x1))
                 {
-                    actions.push(ChartAction::AddCorridor {
-                        from: from.to_string(),
-                        to: to.to_string(),
-                        units: view.units,
-                        lower: y0,
-                        upper: y1,
+                    let (from, to, units) = (from.to_string(), to.to_string(), view.units);
+                    actions.push(match under {
+                        Some(&(corridor, ..)) => ChartAction::RedrawCorridor {
+                            corridor,
+                            from,
+                            to,
+                            units,
+                            lower: y0,
+                            upper: y1,
+                        },
+                        None => ChartAction::AddCorridor {
+                            from,
+                            to,
+                            units,
+                            lower: y0,
+                            upper: y1,
+                        },
                     });
                 }
             }
@@ -871,6 +902,7 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
         memory.context = None;
     }
     memory.quiet = hovered.is_some() || memory.drag.is_some() || menu_open;
+    memory.hover = hovered.map(|p| p.condition());
     let elsewhere_units = |series: &Option<String>, units: Units| {
         view.subject == Subject::Series
             && series.as_deref() == Some(view.name.as_str())

@@ -518,6 +518,25 @@ impl TiltyardApp {
                 upper: Some(Bound::Same(upper)),
                 active: true,
             }),
+            ChartAction::RedrawCorridor {
+                corridor,
+                from,
+                to,
+                units,
+                lower,
+                upper,
+            } => {
+                self.doc.edit(|f| {
+                    if let Some(c) = f.corridors.get_mut(corridor) {
+                        c.from = from;
+                        c.to = to;
+                        c.units = units;
+                        c.lower = Some(Bound::Same(lower));
+                        c.upper = Some(Bound::Same(upper));
+                    }
+                });
+                self.selected = Some(CondRef::Corridor(corridor));
+            }
             ChartAction::Select(s) => self.selected = s,
             ChartAction::Remove(cref) => self.remove(cref),
             ChartAction::Enlarge => {
