@@ -263,8 +263,8 @@ fn broken_scenario_files_name_the_field_or_line() {
             "a series listed twice",
             swap(
                 &base,
-                "(name: \"wages\", transform: log100, display: year_on_year),",
-                "(name: \"wages\", transform: log100, display: year_on_year),\n        (name: \"wages\"),",
+                "(name: \"wages\", transform: log100, display: year_on_year, label: \"Wages\", unit: \"index\"),",
+                "(name: \"wages\", transform: log100, display: year_on_year, label: \"Wages\", unit: \"index\"),\n        (name: \"wages\"),",
             ),
             vec!["series", "wages", "twice"],
         ),
@@ -318,8 +318,8 @@ fn broken_scenario_files_name_the_field_or_line() {
             "a display average longer than the data",
             swap(
                 &base,
-                "(name: \"output\", transform: log100, display: year_on_year)",
-                "(name: \"output\", transform: log100, display: average(18446744073709551615))",
+                "(name: \"output\", transform: log100, display: year_on_year,",
+                "(name: \"output\", transform: log100, display: average(18446744073709551615),",
             ),
             vec!["series[0].display", "from 1 to 144"],
         ),

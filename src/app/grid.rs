@@ -104,6 +104,9 @@ impl GridView {
     }
 }
 
+/// Height a chart takes beyond its plot: the title row and the gap below it.
+const CHART_CHROME: f32 = 36.0;
+
 /// The controls above the grid (one row that never changes height) and the charts.
 pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     app.grid.sync(&app.doc.file);
@@ -167,10 +170,13 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     } else {
         ((width / 360.0).floor() as usize).clamp(1, 4)
     };
+    // A few charts share the height there is (up to a comfortable size); many scroll.
+    let rows = shown.len().div_ceil(columns);
     let height = if enlarged.is_some() {
         (ui.available_height() - 60.0).max(240.0)
     } else {
-        190.0
+        let per_row = ui.available_height() / rows as f32 - CHART_CHROME;
+        per_row.clamp(190.0, 420.0)
     };
     let mut actions = Vec::new();
     egui::ScrollArea::vertical().show(ui, |ui| {
