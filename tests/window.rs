@@ -1357,3 +1357,44 @@ fn a_drag_over_an_existing_corridor_edits_it() {
     h.step();
     assert_eq!(h.state().doc.file.corridors, before);
 }
+
+/// The narrative is edited in the window (one undo step); moving a pin on a series it
+/// mentions marks it "may be out of date" until the user says it still holds.
+#[test]
+fn the_narrative_is_edited_and_marked_when_its_conditions_change() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut h = harness(&demo_copy(&dir));
+    settle(&mut h);
+    assert!(
+        h.query_by_label_contains("The conditions in words: ")
+            .is_some()
+    );
+    h.get_by_label("edit narrative").click();
+    h.run_steps(2);
+    h.get_by_label("narrative").focus();
+    h.run_steps(1);
+    h.key_press_modifiers(Modifiers::COMMAND, egui::Key::A);
+    h.get_by_label("narrative")
+        .type_text("House prices fall by a tenth.");
+    h.run_steps(2);
+    h.get_by_label("done").click();
+    h.run_steps(2);
+    assert_eq!(
+        h.state().doc.file.narrative,
+        "House prices fall by a tenth."
+    );
+    assert!(h.query_by_label_contains("may be out of date").is_none());
+    // pins[1]: house_prices at 2027Q2, moved by a drag.
+    let value = h.state().doc.file.pins[1].value;
+    let x = horizon(&h, "2027Q2");
+    let (from, to) = (screen(&h, 5, x, value), screen(&h, 5, x, value + 3.0));
+    drag(&mut h, from, to);
+    h.run_steps(2);
+    assert!(
+        h.query_by_label_contains("may be out of date: conditions on House prices")
+            .is_some()
+    );
+    h.get_by_label("still right").click();
+    h.run_steps(2);
+    assert!(h.query_by_label_contains("may be out of date").is_none());
+}

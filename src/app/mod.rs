@@ -20,6 +20,7 @@ pub mod export;
 pub mod files;
 pub mod grid;
 pub mod legend;
+pub mod narrative;
 pub mod palette;
 pub mod panels;
 pub mod paths_table;
@@ -131,6 +132,8 @@ pub struct TiltyardApp {
     pub first_update: Option<Duration>,
     /// The job running is an edit's (not a document's first).
     timing_edit: bool,
+    /// The narrative's draft and the conditions it was last checked against.
+    pub narrative: narrative::NarrativeState,
     /// The window title last sent to the desktop.
     pub title: String,
     /// The model the checks shown were made with (see [`ModelKey`]).
@@ -207,6 +210,7 @@ impl TiltyardApp {
         };
         let prompt = files::newer_recovery(path).map(|r| Prompt::Recover { edits: Box::new(r) });
         let grid_view = grid::GridView::for_file(&doc.file);
+        let narrative = narrative::NarrativeState::for_file(&doc.file);
         TiltyardApp {
             grid: grid_view,
             doc,
@@ -233,6 +237,7 @@ impl TiltyardApp {
             timing_edit: false,
             checks_model: None,
             title: String::new(),
+            narrative,
             charts: HashMap::new(),
             hidden: HashSet::new(),
             list_filter: String::new(),
@@ -882,6 +887,7 @@ impl TiltyardApp {
         self.forget_recovery();
         self.remember(&path);
         self.doc = Document::from_file(file, path);
+        self.narrative = narrative::NarrativeState::for_file(&self.doc.file);
         self.doc.untitled = untitled;
         self.document += 1;
         self.discarded = None;

@@ -156,9 +156,7 @@ fn top_bar(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
             ui.add(egui::Label::new(RichText::new(&app.model_line).color(pal.muted)).truncate());
         });
     });
-    if !app.doc.file.narrative.is_empty() {
-        ui.label(RichText::new(&app.doc.file.narrative).italics().small());
-    }
+    super::narrative::show(ui, app, pal);
     if let Some(n) = &app.notice {
         ui.colored_label(pal.clash, n);
     }
