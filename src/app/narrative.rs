@@ -116,13 +116,9 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
         return;
     }
     let stale = app.narrative.stale_mentions(&app.doc.file);
-    ui.horizontal_wrapped(|ui| {
-        let text = if app.doc.file.narrative.is_empty() {
-            RichText::new("no narrative yet").color(pal.muted)
-        } else {
-            RichText::new(&app.doc.file.narrative).italics()
-        };
-        ui.label(text.small());
+    // One line of fixed height (the narrative cut to fit, whole on hover): the charts below
+    // must not move when the "out of date" mark comes and goes, least of all under a drag.
+    ui.horizontal(|ui| {
         if ui
             .small_button("edit narrative")
             .on_hover_text("Write what the scenario says happens")
@@ -147,6 +143,13 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
                 app.narrative.touch(&app.doc.file);
             }
         }
+        let text = if app.doc.file.narrative.is_empty() {
+            RichText::new("no narrative yet").color(pal.muted)
+        } else {
+            RichText::new(&app.doc.file.narrative).italics()
+        };
+        ui.add(egui::Label::new(text.small()).truncate())
+            .on_hover_text(&app.doc.file.narrative);
     });
     let words = conditions_in_words(&app.doc.file);
     ui.add(
