@@ -328,13 +328,14 @@ fn model_settings_re_estimate_in_the_background() {
         "{}",
         h.state().model_line
     );
-    h.get_by_label("Model settings").click();
+    h.get_by_label("Model settings…").click();
     h.run_steps(2);
     assert!(
         h.query_all_by_label("lags").count() >= 1,
         "the lags field is shown"
     );
-    let stale = "the model is being estimated again: these checks are the previous model's";
+    let stale =
+        "the model is being run again with the changed settings: these checks are from before";
     assert!(h.query_by_label(stale).is_none());
     h.state_mut().doc.edit(|f| {
         if let scenario::ModelSpec::Minnesota(m) = &mut f.model {
@@ -1260,8 +1261,8 @@ fn the_charts_carry_a_legend() {
     settle(&mut h);
     for words in [
         "history",
-        "without conditions: 90% and median",
-        "scenario: 90%, 68%, 50% and median",
+        "without conditions: 90%, median",
+        "scenario: 90/68/50%, median",
         "pin",
         "corridor",
         "strained",
@@ -1273,7 +1274,7 @@ fn the_charts_carry_a_legend() {
     h.get_by_label("Structural shocks").click();
     h.run_steps(2);
     assert!(
-        h.query_all_by_label("legend: usual N(0, 1): 90% and median")
+        h.query_all_by_label("legend: usual N(0, 1): 90%, median")
             .count()
             >= 1
     );

@@ -148,6 +148,8 @@ pub struct ChartMemory {
 
 /// Everything a chart needs to draw itself.
 pub struct ChartInput<'a> {
+    /// A drag is on somewhere in the window: every chart keeps its range meanwhile.
+    pub any_drag: bool,
     pub index: usize,
     /// What the values are measured in, in words (the value axis says it).
     pub measure: &'a str,
@@ -425,7 +427,7 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
         .range
         .filter(|r| r.2 == view.units)
         .map(|(a, b, _)| (a, b));
-    let (y_lo, y_hi) = steady_range(previous, memory.wanted, dragging);
+    let (y_lo, y_hi) = steady_range(previous, memory.wanted, dragging || input.any_drag);
     memory.range = Some((y_lo, y_hi, view.units));
     // Open corridor sides run past the frame.
     let pad = 0.15 * (y_hi - y_lo);
@@ -479,8 +481,12 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
                 ));
             }
             if let Some(f) = at(&label_view.unconditional) {
+                let what = match label_view.subject {
+                    Subject::Series => "without conditions",
+                    Subject::Shock => "usual N(0, 1)",
+                };
                 text.push_str(&format!(
-                    "\nwithout conditions: median {:.3}\n  90% {:.3} … {:.3}",
+                    "\n{what}: median {:.3}\n  90% {:.3} … {:.3}",
                     f.q[3], f.q[0], f.q[6]
                 ));
             }

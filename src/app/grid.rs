@@ -42,6 +42,9 @@ pub struct GridView {
     pub per_page: usize,
     /// Series in the grid's order.
     pub order: Vec<String>,
+    /// The charts' height as last laid out: kept while a drag lasts, so that nothing above
+    /// the grid (a message, the legend) can resize the chart under the pointer.
+    height: Option<f32>,
 }
 
 impl Default for GridView {
@@ -51,6 +54,7 @@ impl Default for GridView {
             page: 0,
             per_page: 12,
             order: Vec::new(),
+            height: None,
         }
     }
 }
@@ -172,12 +176,18 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     };
     // A few charts share the height there is (up to a comfortable size); many scroll.
     let rows = shown.len().div_ceil(columns);
-    let height = if enlarged.is_some() {
+    let fitted = if enlarged.is_some() {
         (ui.available_height() - 60.0).max(240.0)
     } else {
         let per_row = ui.available_height() / rows as f32 - CHART_CHROME;
         per_row.clamp(190.0, 420.0)
     };
+    let height = match app.grid.height {
+        Some(kept) if app.dragging() => kept,
+        _ => fitted,
+    };
+    app.grid.height = Some(height);
+    let any_drag = app.dragging();
     let mut actions = Vec::new();
     egui::ScrollArea::vertical().show(ui, |ui| {
         for row in shown.chunks(columns) {
@@ -221,6 +231,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
                         Subject::Shock => "standard deviations".to_string(),
                     };
                     let input = ChartInput {
+                        any_drag,
                         index: i,
                         measure: &measure,
                         view,
@@ -395,9 +406,13 @@ fn controls(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette, pages: usiz
         return;
     }
     let second = app.second.as_ref().map(|s| s.name().to_string());
+    let greyed = match app.results.as_ref() {
+        Some(r) if r.without_conditions => "without the conditions",
+        _ => "last fans drawn",
+    };
     let legend = Legend {
         subject: app.view,
-        stale: app.stale(),
+        stale: app.stale().then_some(greyed),
         second: second.as_deref().filter(|_| app.view == Subject::Series),
     };
     super::legend::show(ui, &legend, pal);

@@ -24,15 +24,20 @@ enum Swatch {
 /// What the legend shows for one view.
 pub struct Legend<'a> {
     pub subject: Subject,
-    /// The fans are greyed (the last good ones, or those without conditions).
-    pub stale: bool,
+    /// The fans are greyed: `Some(what they are)` (the last good ones, or the forecast without
+    /// the conditions).
+    pub stale: Option<&'a str>,
     /// The name of a compared scenario, drawn in its own colour.
     pub second: Option<&'a str>,
 }
 
 /// The entries of a legend, in reading order: (swatches, words).
 fn entries(legend: &Legend, pal: &Palette) -> Vec<(Vec<Swatch>, String)> {
-    let fan = if legend.stale { pal.stale } else { pal.fan };
+    let fan = if legend.stale.is_some() {
+        pal.stale
+    } else {
+        pal.fan
+    };
     let mut out = Vec::new();
     match legend.subject {
         Subject::Series => {
@@ -42,7 +47,7 @@ fn entries(legend: &Legend, pal: &Palette) -> Vec<(Vec<Swatch>, String)> {
                     Swatch::Band(pal.muted.gamma_multiply(0.35)),
                     Swatch::Dashed(pal.muted),
                 ],
-                "without conditions: 90% and median".to_string(),
+                "without conditions: 90%, median".to_string(),
             ));
         }
         Subject::Shock => out.push((
@@ -50,16 +55,15 @@ fn entries(legend: &Legend, pal: &Palette) -> Vec<(Vec<Swatch>, String)> {
                 Swatch::Band(pal.muted.gamma_multiply(0.35)),
                 Swatch::Dashed(pal.muted),
             ],
-            "usual N(0, 1): 90% and median".to_string(),
+            "usual N(0, 1): 90%, median".to_string(),
         )),
     }
-    let scenario = if legend.stale {
-        "greyed: the last fans that could be drawn"
-    } else {
-        "scenario: 90%, 68%, 50% and median"
+    let scenario = match legend.stale {
+        Some(what) => format!("greyed: {what}"),
+        None => "scenario: 90/68/50%, median".to_string(),
     };
     let bands = [0.22, 0.30, 0.42].map(|a| fan.gamma_multiply(a));
-    out.push((vec![Swatch::Fan(bands, fan)], scenario.to_string()));
+    out.push((vec![Swatch::Fan(bands, fan)], scenario));
     if let Some(name) = legend.second {
         out.push((
             vec![Swatch::Line(pal.second, 2.0)],
@@ -73,9 +77,18 @@ fn entries(legend: &Legend, pal: &Palette) -> Vec<(Vec<Swatch>, String)> {
     out
 }
 
-/// The legend as one wrapped row of small text.
+/// The legend as one row of small text, of one height whatever it holds (cut at the edge of
+/// a narrow window rather than wrapped: the charts below must not move).
 pub fn show(ui: &mut egui::Ui, legend: &Legend, pal: &Palette) {
-    ui.horizontal_wrapped(|ui| {
+    // Clipped to the width there is, so a long row never widens the charts' panel.
+    egui::ScrollArea::horizontal()
+        .id_salt("legend")
+        .scroll_bar_visibility(egui::scroll_area::ScrollBarVisibility::AlwaysHidden)
+        .show(ui, |ui| row(ui, legend, pal));
+}
+
+fn row(ui: &mut egui::Ui, legend: &Legend, pal: &Palette) {
+    ui.horizontal(|ui| {
         ui.spacing_mut().item_spacing.x = 4.0;
         for (swatches, words) in entries(legend, pal) {
             for s in swatches {

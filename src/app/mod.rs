@@ -71,29 +71,6 @@ pub enum AfterSave {
     Close,
 }
 
-/// What makes the model: the data, the series' transforms and the model settings (not the
-/// conditions, nor how series are shown).
-#[derive(Debug, Clone, PartialEq)]
-struct ModelKey {
-    dataset: String,
-    transforms: Vec<(String, crate::dataset::Transform)>,
-    model: crate::scenario::ModelSpec,
-}
-
-impl ModelKey {
-    fn of(file: &ScenarioFile) -> ModelKey {
-        ModelKey {
-            dataset: file.dataset.clone(),
-            transforms: file
-                .series
-                .iter()
-                .map(|s| (s.name.clone(), s.transform))
-                .collect(),
-            model: file.model.clone(),
-        }
-    }
-}
-
 /// The window's state.
 pub struct TiltyardApp {
     pub doc: Document,
@@ -134,10 +111,12 @@ pub struct TiltyardApp {
     timing_edit: bool,
     /// The narrative's draft and the conditions it was last checked against.
     pub narrative: narrative::NarrativeState,
+    /// The model settings' window is open.
+    pub settings_open: bool,
     /// The window title last sent to the desktop.
     pub title: String,
-    /// The model the checks shown were made with (see [`ModelKey`]).
-    checks_model: Option<ModelKey>,
+    /// What decided the posterior draws behind the checks shown ([`worker::model_key`]).
+    checks_model: Option<String>,
     // Interface.
     pub charts: HashMap<(Subject, usize), ChartMemory>,
     pub hidden: HashSet<String>,
@@ -237,6 +216,7 @@ impl TiltyardApp {
             timing_edit: false,
             checks_model: None,
             title: String::new(),
+            settings_open: false,
             narrative,
             charts: HashMap::new(),
             hidden: HashSet::new(),
@@ -292,10 +272,11 @@ impl TiltyardApp {
             .map_or_else(|| units.words(), |s| s.measure(units))
     }
 
-    /// The checks shown were made with another model than the one being estimated now (the
-    /// lags, prior, data or transforms changed): they are greyed and said to be old.
+    /// The checks shown were made with other posterior draws than the ones being made now (the
+    /// model, data, transforms, horizon, draws, seed or stationarity filter changed): they are
+    /// greyed and said to be old.
     pub fn checks_of_another_model(&self) -> bool {
-        self.checks.is_some() && self.checks_model != self.sent.as_ref().map(ModelKey::of)
+        self.checks.is_some() && self.checks_model != self.sent.as_ref().map(worker::model_key)
     }
 
     /// True while the worker has not finished the newest job.
@@ -401,7 +382,7 @@ impl TiltyardApp {
                         self.checked = (f.pins.len(), f.corridors.len());
                     }
                     self.checks = Some(report);
-                    self.checks_model = self.sent.as_ref().map(ModelKey::of);
+                    self.checks_model = self.sent.as_ref().map(worker::model_key);
                 }
                 // Fans without the conditions only stand in for having none at all.
                 Message::Results(g, r)
@@ -536,8 +517,13 @@ impl TiltyardApp {
                         c.from = from;
                         c.to = to;
                         c.units = units;
-                        c.lower = Some(Bound::Same(lower));
-                        c.upper = Some(Bound::Same(upper));
+                        // An open side stays open; a bound becomes the drawn one.
+                        if c.lower.is_some() {
+                            c.lower = Some(Bound::Same(lower));
+                        }
+                        if c.upper.is_some() {
+                            c.upper = Some(Bound::Same(upper));
+                        }
                     }
                 });
                 self.selected = Some(CondRef::Corridor(corridor));
@@ -733,6 +719,7 @@ impl TiltyardApp {
     /// once it is saved), then do `then`. A new scenario, or one whose file could not be read,
     /// asks where instead.
     pub fn save(&mut self, then: Option<AfterSave>) {
+        self.commit_narrative();
         if self.doc.untitled {
             self.after_save_as = then;
             self.pick(Purpose::SaveAs);
@@ -788,6 +775,7 @@ impl TiltyardApp {
 
     /// Open, New or New from data, after asking about unsaved changes.
     pub fn ask(&mut self, then: AfterSave) {
+        self.commit_narrative();
         if self.doc.is_dirty() {
             self.prompt = Some(Prompt::Unsaved { then });
         } else {
@@ -1033,10 +1021,11 @@ impl TiltyardApp {
         self.answers();
         self.chores_done();
         self.shortcuts(&ctx);
-        if ctx.input(|i| i.viewport().close_requested())
-            && !self.close_confirmed
-            && self.doc.is_dirty()
-        {
+        let closing = ctx.input(|i| i.viewport().close_requested());
+        if closing {
+            self.commit_narrative();
+        }
+        if closing && !self.close_confirmed && self.doc.is_dirty() {
             ctx.send_viewport_cmd(egui::ViewportCommand::CancelClose);
             self.prompt = Some(Prompt::Unsaved {
                 then: AfterSave::Close,
@@ -1064,6 +1053,15 @@ impl TiltyardApp {
     }
 
     /// Close after the unsaved-changes prompt was answered.
+    /// A narrative being typed becomes an edit (saved, asked about, recovered like any other)
+    /// before the document is saved, replaced or closed.
+    fn commit_narrative(&mut self) {
+        if let Some(text) = self.narrative.draft.take() {
+            self.doc.edit(|f| f.narrative = text);
+            self.narrative.touch(&self.doc.file);
+        }
+    }
+
     pub fn confirm_close(&mut self) {
         self.close_confirmed = true;
     }

@@ -60,7 +60,7 @@ impl NarrativeState {
             let spaced = name.replace('_', " ");
             [name, spaced.as_str(), label]
                 .iter()
-                .any(|w| !w.is_empty() && text.contains(&w.to_lowercase()))
+                .any(|w| !w.is_empty() && has_word(&text, &w.to_lowercase()))
         };
         changed
             .into_iter()
@@ -71,6 +71,14 @@ impl NarrativeState {
             })
             .collect()
     }
+}
+
+/// `text` holds `word` as a whole word (not inside a longer one: "gdp" is not in "gdps").
+fn has_word(text: &str, word: &str) -> bool {
+    let inside = |c: Option<char>| c.is_some_and(|c| c.is_alphanumeric() || c == '_');
+    text.match_indices(word).any(|(at, _)| {
+        !inside(text[..at].chars().next_back()) && !inside(text[at + word.len()..].chars().next())
+    })
 }
 
 /// The conditions in plain words, one sentence each.
@@ -205,5 +213,13 @@ mod tests {
         assert_eq!(state.stale_mentions(&file).len(), 2);
         state.touch(&file);
         assert!(state.stale_mentions(&file).is_empty());
+    }
+
+    #[test]
+    fn only_whole_words_count_as_mentions() {
+        assert!(has_word("house prices fall", "house prices"));
+        assert!(has_word("(wages) rise", "wages"));
+        assert!(!has_word("wagesx rise", "wages"));
+        assert!(!has_word("the output_gap widens", "output"));
     }
 }

@@ -41,10 +41,12 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp) {
         .resizable(true)
         .default_size(210.0)
         .show(ui, |ui| {
+            // The settings first: on a laptop with forty series they would otherwise sit
+            // below a screen or two of series.
             egui::ScrollArea::vertical().show(ui, |ui| {
-                series_list(ui, app, &pal);
-                ui.separator();
                 super::settings::show(ui, app, &pal);
+                ui.separator();
+                series_list(ui, app, &pal);
             });
         });
     egui::Panel::right("conditions")
@@ -64,8 +66,14 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp) {
 
 fn top_bar(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     ui.horizontal_wrapped(|ui| {
-        ui.heading(&app.doc.file.name)
-            .on_hover_text(&app.doc.file.narrative);
+        // A long name is cut to fit (whole on hover), so the buttons keep one row.
+        ui.scope(|ui| {
+            ui.set_max_width(430.0);
+            ui.add(
+                egui::Label::new(RichText::new(&app.doc.file.name).heading()).truncate(),
+            )
+            .on_hover_text(&app.doc.file.name);
+        });
         // The file and its state in a fixed width, so the buttons never move.
         let (state, colour) = if app.saving {
             ("saving…", pal.muted)
@@ -483,12 +491,15 @@ fn checks(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     // and said so.
     let old = app.checks_of_another_model();
     if old {
-        ui.label(
-            RichText::new(
-                "the model is being estimated again: these checks are the previous model's",
-            )
-            .color(pal.strain),
-        );
+        let text = match app.state {
+            EngineState::Failed => {
+                "the model could not be run with the changed settings: these checks are from before"
+            }
+            _ => {
+                "the model is being run again with the changed settings: these checks are from before"
+            }
+        };
+        ui.label(RichText::new(text).color(pal.strain));
     }
     let pal = &if old {
         Palette {

@@ -1,6 +1,8 @@
-//! The model settings: lags, prior tightness (chosen by marginal likelihood or set), the
-//! estimation window, draws, seed, horizon, how each series enters the model (as it is or
-//! 100·log) and the identification ordering. Any change here
+//! The model settings, in a window of their own: the prior (Minnesota or flat; fixed coefficients are shown, as they are
+//! set in the scenario file), lags, prior tightness (chosen by marginal likelihood or set), the
+//! dummy observations and the prior's other constants, the estimation window, draws, seed,
+//! horizon, the stationarity filter, how each series enters the model (as it is or 100·log)
+//! and the identification ordering. Any change here
 //! makes the worker re-estimate in the background (the top bar says so); edits of conditions
 //! never do.
 
@@ -10,13 +12,28 @@ use super::TiltyardApp;
 use super::palette::Palette;
 use super::table::draft_field;
 use crate::dataset::Transform;
-use crate::model::{Tightness, Window};
-use crate::scenario::ModelSpec;
+use crate::model::{FlatSettings, MinnesotaSettings, Tightness, Window};
+use crate::scenario::{LargestRoot, ModelSpec};
 
+/// A button at the top of the series panel, and the settings in a window of their own: opening
+/// them moves nothing else (the charts keep their size), and a laptop reaches them without
+/// scrolling past the series.
 pub fn show(ui: &mut Ui, app: &mut TiltyardApp, pal: &Palette) {
-    egui::CollapsingHeader::new("Model settings")
-        .default_open(false)
-        .show(ui, |ui| body(ui, app, pal));
+    if ui
+        .selectable_label(app.settings_open, "Model settings…")
+        .on_hover_text("The prior, lags, estimation window, draws, seed, transforms and ordering")
+        .clicked()
+    {
+        app.settings_open = !app.settings_open;
+    }
+    let mut open = app.settings_open;
+    egui::Window::new("Model settings")
+        .open(&mut open)
+        .default_width(360.0)
+        .default_pos(ui.max_rect().left_top() + egui::vec2(12.0, 28.0))
+        .vscroll(true)
+        .show(ui.ctx(), |ui| body(ui, app, pal));
+    app.settings_open &= open;
 }
 
 fn body(ui: &mut Ui, app: &mut TiltyardApp, pal: &Palette) {
@@ -34,6 +51,7 @@ fn body(ui: &mut Ui, app: &mut TiltyardApp, pal: &Palette) {
     egui::Grid::new("model settings")
         .num_columns(2)
         .show(ui, |ui| {
+            prior_row(ui, &mut file.model);
             // (prior, lags, tightness if the prior has one, estimation window)
             let estimated = match &mut file.model {
                 ModelSpec::Minnesota(m) => Some((
@@ -43,17 +61,9 @@ fn body(ui: &mut Ui, app: &mut TiltyardApp, pal: &Palette) {
                     &mut m.window,
                 )),
                 ModelSpec::Flat(f) => Some(("flat", &mut f.lags, None, &mut f.window)),
-                ModelSpec::Fixed(f) => {
-                    ui.label("model");
-                    ui.label(format!("fixed coefficients, {} lags", f.lags.len()));
-                    ui.end_row();
-                    None
-                }
+                ModelSpec::Fixed(_) => None,
             };
-            if let Some((prior, lags, tightness, window)) = estimated {
-                ui.label("prior");
-                ui.label(prior);
-                ui.end_row();
+            if let Some((_, lags, tightness, window)) = estimated {
                 ui.label("lags");
                 number(
                     ui,
@@ -82,6 +92,41 @@ fn body(ui: &mut Ui, app: &mut TiltyardApp, pal: &Palette) {
                 }
                 window_row(ui, window);
             }
+            if let ModelSpec::Minnesota(m) = &mut file.model {
+                ui.label("lag decay");
+                let value = egui::DragValue::new(&mut m.lag_decay)
+                    .range(0.0..=10.0)
+                    .speed(0.05);
+                number(ui, "lag decay", value, &mut gesture);
+                ui.end_row();
+                ui.label("intercept scale");
+                let value = egui::DragValue::new(&mut m.intercept_scale)
+                    .range(0.001..=1.0e6)
+                    .speed(1.0);
+                number(ui, "intercept scale", value, &mut gesture);
+                ui.end_row();
+                for (name, weight) in [
+                    ("sum of coefficients", &mut m.sum_of_coefficients),
+                    ("single unit root", &mut m.single_unit_root),
+                ] {
+                    ui.label(name);
+                    ui.horizontal(|ui| {
+                        let mut on = weight.is_some();
+                        if ui
+                            .checkbox(&mut on, "dummy observations, weight")
+                            .on_hover_text("Off: no such dummy observations")
+                            .changed()
+                        {
+                            *weight = on.then_some(1.0);
+                        }
+                        if let Some(w) = weight {
+                            let value = egui::DragValue::new(w).range(0.001..=1000.0).speed(0.01);
+                            number(ui, name, value, &mut gesture);
+                        }
+                    });
+                    ui.end_row();
+                }
+            }
             ui.label("horizon");
             let value = egui::DragValue::new(&mut file.horizon).range(1..=120);
             number(ui, "horizon", value, &mut gesture);
@@ -99,6 +144,29 @@ fn body(ui: &mut Ui, app: &mut TiltyardApp, pal: &Palette) {
                 egui::DragValue::new(&mut file.seed),
                 &mut gesture,
             );
+            ui.end_row();
+            ui.label("largest root");
+            ui.horizontal(|ui| {
+                let mut filter = !file.largest_root.is_keep();
+                if ui
+                    .checkbox(&mut filter, "keep only draws below")
+                    .on_hover_text(
+                        "The stationarity filter: posterior draws whose largest root is not \
+                         below the bound are set aside (off: every draw is kept)",
+                    )
+                    .changed()
+                {
+                    file.largest_root = if filter {
+                        LargestRoot::Below(1.0)
+                    } else {
+                        LargestRoot::Keep
+                    };
+                }
+                if let LargestRoot::Below(bound) = &mut file.largest_root {
+                    let value = egui::DragValue::new(bound).range(0.5..=2.0).speed(0.005);
+                    number(ui, "largest root bound", value, &mut gesture);
+                }
+            });
             ui.end_row();
         });
     ui.label(
@@ -163,6 +231,39 @@ fn body(ui: &mut Ui, app: &mut TiltyardApp, pal: &Palette) {
             app.doc.edit(|f| *f = file);
         }
     });
+}
+
+/// The prior, as a choice between the two estimated models (the lags and the estimation
+/// window carry over; the Minnesota prior's other settings start at their defaults); fixed
+/// coefficients are shown as such, set in the scenario file.
+fn prior_row(ui: &mut Ui, model: &mut ModelSpec) {
+    ui.label("prior");
+    ui.horizontal(|ui| {
+        let (lags, window) = match model {
+            ModelSpec::Minnesota(m) => (m.lags, m.window.clone()),
+            ModelSpec::Flat(f) => (f.lags, f.window.clone()),
+            ModelSpec::Fixed(f) => {
+                ui.label(format!(
+                    "fixed coefficients, {} lags (set in the scenario file)",
+                    f.lags.len()
+                ));
+                return;
+            }
+        };
+        let minnesota = matches!(model, ModelSpec::Minnesota(_));
+        let to_minnesota = ui.selectable_label(minnesota, "Minnesota").clicked();
+        let to_flat = ui.selectable_label(!minnesota, "flat").clicked();
+        if to_minnesota && !minnesota {
+            *model = ModelSpec::Minnesota(MinnesotaSettings {
+                lags,
+                window,
+                ..Default::default()
+            });
+        } else if to_flat && minnesota {
+            *model = ModelSpec::Flat(FlatSettings { lags, window });
+        }
+    });
+    ui.end_row();
 }
 
 /// The estimation window's ends, applied when a field loses focus (so the model is not

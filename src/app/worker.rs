@@ -238,9 +238,9 @@ pub fn run_with(
     }
 }
 
-/// Everything that decides the posterior draws: the file without its conditions, name and
-/// narrative.
-fn model_key(file: &ScenarioFile) -> String {
+/// Everything that decides the posterior draws: the file without its conditions, name,
+/// narrative and how series are named and shown.
+pub(crate) fn model_key(file: &ScenarioFile) -> String {
     let mut f = file.clone();
     f.pins.clear();
     f.corridors.clear();
@@ -255,6 +255,8 @@ fn model_key(file: &ScenarioFile) -> String {
     f.reweight = false;
     for s in &mut f.series {
         s.display = Units::Level;
+        s.label = None;
+        s.unit = None;
     }
     crate::scenario::to_text(&f)
 }

@@ -36,13 +36,12 @@ pub struct Setup {
 }
 
 impl Setup {
-    /// Load the dataset a scenario refers to and check everything that does not need the model.
     /// Series `i` as people name it (its label in the file, else its column name).
     pub fn shown(&self, i: usize) -> &str {
         self.file
             .series
             .get(i)
-            .map_or(&self.names[i], |s| s.shown())
+            .map_or_else(|| self.names[i].as_str(), |s| s.shown())
     }
 
     /// What series `i`'s values in `units` are measured in, in words.
@@ -53,6 +52,7 @@ impl Setup {
             .map_or_else(|| units.words(), |s| s.measure(units))
     }
 
+    /// Load the dataset a scenario refers to and check everything that does not need the model.
     pub fn new(file: ScenarioFile, path: &Path) -> Result<Setup, ScenarioError> {
         check_counts(&file)?;
         let base = path
