@@ -1399,3 +1399,26 @@ fn the_narrative_is_edited_and_marked_when_its_conditions_change() {
     h.run_steps(2);
     assert!(h.query_by_label_contains("may be out of date").is_none());
 }
+
+/// Enter enlarges the chart of the selected condition, Enter again or Escape goes back to
+/// all the charts.
+#[test]
+fn the_keyboard_enlarges_the_selected_conditions_chart() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut h = harness(&demo_copy(&dir));
+    settle(&mut h);
+    // pins[1] is on house_prices, series 5.
+    h.state_mut().selected = Some(tiltyard::app::chart::CondRef::Pin(1));
+    h.key_press(egui::Key::Enter);
+    h.run_steps(2);
+    assert_eq!(h.state().enlarged, Some((Subject::Series, 5)));
+    assert!(h.query_by_label("back to all").is_some());
+    h.key_press(egui::Key::Enter);
+    h.run_steps(2);
+    assert_eq!(h.state().enlarged, None);
+    h.key_press(egui::Key::Enter);
+    h.run_steps(2);
+    h.key_press(egui::Key::Escape);
+    h.run_steps(2);
+    assert_eq!(h.state().enlarged, None);
+}

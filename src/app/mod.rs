@@ -609,6 +609,22 @@ impl TiltyardApp {
                 plain(i, Key::G),
             )
         });
+        // Enter enlarges the chart of the selected condition (again: back to all); Escape
+        // goes back to all.
+        let (enter, escape) = ctx.input(|i| (plain(i, Key::Enter), plain(i, Key::Escape)));
+        if enter % 2 == 1
+            && let Some(chart) = self.selected.and_then(|c| self.chart_of(c))
+        {
+            self.view = chart.0;
+            self.enlarged = if self.enlarged == Some(chart) {
+                None
+            } else {
+                Some(chart)
+            };
+        }
+        if escape > 0 {
+            self.enlarged = None;
+        }
         if toggle % 2 == 1 {
             self.snapping = !self.snapping;
         }
@@ -633,6 +649,24 @@ impl TiltyardApp {
         }
     }
 
+    /// The chart a condition is drawn on: its series' or its shock's.
+    pub fn chart_of(&self, cref: CondRef) -> Option<(Subject, usize)> {
+        let f = &self.doc.file;
+        let (series, shock) = match cref {
+            CondRef::Pin(k) => f.pins.get(k).map(|p| (&p.series, &p.shock))?,
+            CondRef::Corridor(k) => f.corridors.get(k).map(|c| (&c.series, &c.shock))?,
+        };
+        let (subject, name) = match (series, shock) {
+            (Some(name), _) => (Subject::Series, name),
+            (None, Some(name)) => (Subject::Shock, name),
+            _ => return None,
+        };
+        f.series
+            .iter()
+            .position(|s| &s.name == name)
+            .map(|i| (subject, i))
+    }
+
     /// Move a condition by `steps` of its chart's snapping step (a corridor's bounds all
     /// together) and by `periods` in time, staying within the forecast.
     pub fn nudge(&mut self, cref: CondRef, steps: i32, periods: i64) {
@@ -640,29 +674,7 @@ impl TiltyardApp {
             return;
         };
         let f = &self.doc.file;
-        let (series, shock) = match cref {
-            CondRef::Pin(k) => match f.pins.get(k) {
-                Some(p) => (&p.series, &p.shock),
-                None => return,
-            },
-            CondRef::Corridor(k) => match f.corridors.get(k) {
-                Some(c) => (&c.series, &c.shock),
-                None => return,
-            },
-        };
-        let chart = match (series, shock) {
-            (Some(name), _) => f
-                .series
-                .iter()
-                .position(|s| &s.name == name)
-                .map(|i| (Subject::Series, i)),
-            (None, Some(name)) => f
-                .series
-                .iter()
-                .position(|s| &s.name == name)
-                .map(|i| (Subject::Shock, i)),
-            _ => None,
-        };
+        let chart = self.chart_of(cref);
         // The chart's step when the condition is in the chart's units, else one of its own.
         let units = match cref {
             CondRef::Pin(k) => f.pins.get(k).map(|p| (p.units, p.value.abs())),
