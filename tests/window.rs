@@ -464,6 +464,13 @@ fn the_shocks_view_draws_shocks_and_takes_conditions_on_them() {
     h.get_by_label("Structural shocks").click();
     h.run_steps(3);
     assert_eq!(h.state().view, Subject::Shock);
+    // The past half shows the model's historical shocks, one per observed period shown.
+    let r = h.state().results.clone().unwrap();
+    for view in &r.shocks {
+        assert_eq!(view.history.len(), r.history, "{}", view.name);
+        assert!(view.history.iter().all(|(t, e)| *t <= 0.0 && e.is_finite()));
+    }
+    assert!(h.query_all_by_label("legend: historical shocks").count() >= 1);
     // Output's shock (index 0): a corridor over 2026Q2–2026Q4 between −2 and −0.5.
     let (x0, x1) = (horizon(&h, "2026Q2"), horizon(&h, "2026Q4"));
     let from = screen_of(&h, Subject::Shock, 0, x0, -2.0);

@@ -437,10 +437,8 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
     let label_results = results;
     let label_view = view;
     let quiet = memory.quiet;
-    let first_x = match view.subject {
-        Subject::Series => -(results.history as f64) - 0.5,
-        Subject::Shock => -0.5,
-    };
+    // Both views show the same past: the data, or the model's historical shocks.
+    let first_x = -(results.history as f64) - 0.5;
     let plot = Plot::new(("chart", view.subject, input.index))
         .height(input.height)
         .allow_drag(false)

@@ -50,13 +50,19 @@ fn entries(legend: &Legend, pal: &Palette) -> Vec<(Vec<Swatch>, String)> {
                 "without conditions: 90%, median".to_string(),
             ));
         }
-        Subject::Shock => out.push((
-            vec![
-                Swatch::Band(pal.muted.gamma_multiply(0.35)),
-                Swatch::Dashed(pal.muted),
-            ],
-            "usual N(0, 1): 90%, median".to_string(),
-        )),
+        Subject::Shock => {
+            out.push((
+                vec![Swatch::Line(pal.history, 1.6)],
+                "historical shocks".to_string(),
+            ));
+            out.push((
+                vec![
+                    Swatch::Band(pal.muted.gamma_multiply(0.35)),
+                    Swatch::Dashed(pal.muted),
+                ],
+                "usual N(0, 1): 90%, median".to_string(),
+            ));
+        }
     }
     let scenario = match legend.stale {
         Some(what) => format!("greyed: {what}"),

@@ -294,7 +294,15 @@ fn process(
     let total = if fixed { 0 } else { setup.file.draws };
     let publish = |model: &ModelCache, paths: &PathSet, without_conditions: bool| {
         let shocks = Shocks::of(paths, |_| &model.model.central)?;
-        let mut r = results(&setup, paths, &shocks, 0, total, !fixed);
+        let mut r = results(
+            &setup,
+            &model.model.central,
+            paths,
+            &shocks,
+            0,
+            total,
+            !fixed,
+        );
         r.without_conditions = without_conditions;
         send(Message::Results(g, Arc::new(r)));
         Ok(())
@@ -507,7 +515,15 @@ fn posterior(
             shown = done;
             send(Message::Results(
                 g,
-                Arc::new(results(setup, &all, &shocks, done, total, false)),
+                Arc::new(results(
+                    setup,
+                    &model.model.central,
+                    &all,
+                    &shocks,
+                    done,
+                    total,
+                    false,
+                )),
             ));
         }
     }
@@ -627,9 +643,35 @@ fn shock_fans(
         .collect()
 }
 
-/// Fans and history of every series in display units, and fans of every shock.
+/// The structural shocks of the last `history` observed periods at `theta`, by horizon
+/// (0 is the last observation); none when the data are too short or `L` cannot be inverted.
+fn historical_shocks(setup: &Setup, theta: &Theta, history: usize) -> Vec<(f64, Vec<f64>)> {
+    let first = -((history + theta.p()) as i64) + 1;
+    let values: Vec<_> = (0..setup.n())
+        .map(|i| crate::report::fans::model_value(setup, &[], i))
+        .collect();
+    let rows: Option<Vec<Vec<f64>>> = (first..=0)
+        .map(|t| values.iter().map(|v| v(t)).collect())
+        .collect();
+    let Some(rows) = rows else {
+        return Vec::new();
+    };
+    let Ok(eps) = theta.shocks_of_history(&rows) else {
+        return Vec::new();
+    };
+    let start = first + theta.p() as i64;
+    eps.into_iter()
+        .enumerate()
+        .map(|(k, e)| ((start + k as i64) as f64, e))
+        .filter(|(_, e)| e.iter().all(|v| v.is_finite()))
+        .collect()
+}
+
+/// Fans and history of every series in display units, and fans of every shock with the
+/// model's own historical shocks at the central θ.
 fn results(
     setup: &Setup,
+    central: &Theta,
     paths: &PathSet,
     shocks: &Shocks,
     draws: usize,
@@ -697,12 +739,13 @@ fn results(
         })
         .collect();
     let n = setup.n();
+    let past = historical_shocks(setup, central, history);
     let shocks = (0..n)
         .map(|j| SeriesView {
             name: setup.names[j].clone(),
             subject: Subject::Shock,
             units: Units::Level,
-            history: Vec::new(),
+            history: past.iter().map(|(t, e)| (*t, e[j])).collect(),
             conditional: shock_fans(&shocks.conditional, weights.as_deref(), j, n, h),
             unconditional: shock_fans(&shocks.unconditional, None, j, n, h),
         })

@@ -183,6 +183,23 @@ impl Theta {
             .collect())
     }
 
+    /// The structural shocks behind observed rows (model units, oldest first): for each row
+    /// from the `p`-th on, `ε_t = L⁻¹ (y_t − b₀ − Σ_j B_j y_{t−j})`, one value per shock
+    /// (labelled by series). The model's own historical shocks, at this θ.
+    pub fn shocks_of_history(&self, rows: &[Vec<f64>]) -> Result<Vec<Vec<f64>>, ForecastError> {
+        let linv = self.impact_inverse()?;
+        let p = self.p();
+        Ok((p..rows.len())
+            .map(|t| {
+                let mut u = DVector::from_column_slice(&rows[t]) - &self.intercept;
+                for (j, b) in self.lags.iter().enumerate() {
+                    u.gemv(-1.0, b, &DVector::from_column_slice(&rows[t - 1 - j]), 1.0);
+                }
+                (&linv * u).iter().copied().collect()
+            })
+            .collect())
+    }
+
     /// `M⁻¹ D` for departures `D = y − μ` in the columns: `ε_t = L⁻¹ (d_t − Σ_j B_j d_{t−j})`.
     pub fn shocks_from_departures(&self, d: &DMatrix<f64>) -> Result<DMatrix<f64>, ForecastError> {
         let n = self.n();
@@ -284,6 +301,41 @@ mod tests {
             intercept,
             lags,
             sigma,
+        }
+    }
+
+    /// Rows simulated from known shocks (`y_t = b₀ + Σ_j B_j y_{t−j} + L ε_t`, the VAR's
+    /// defining equation) give those shocks back.
+    #[test]
+    fn historical_shocks_are_the_shocks_that_made_the_rows() {
+        for (n, p, seed) in [(1, 1, 7), (3, 2, 8), (5, 4, 9)] {
+            let params = random_params(n, p, seed);
+            let ordering: Vec<usize> = (0..n).rev().collect();
+            let tail = vec![vec![0.0; n]; p];
+            let theta = Theta::new(params.clone(), &ordering, &tail, 1).unwrap();
+            let mut rng = ChaCha8Rng::seed_from_u64(seed + 100);
+            let mut rows: Vec<DVector<f64>> = (0..p)
+                .map(|_| DVector::from_fn(n, |_, _| StandardNormal.sample(&mut rng)))
+                .collect();
+            let mut made = Vec::new();
+            for _ in 0..40 {
+                let eps = DVector::from_fn(n, |_, _| StandardNormal.sample(&mut rng));
+                let t = rows.len();
+                let mut y = &params.intercept + &theta.impact * &eps;
+                for (j, b) in params.lags.iter().enumerate() {
+                    y += b * &rows[t - 1 - j];
+                }
+                rows.push(y);
+                made.push(eps);
+            }
+            let plain: Vec<Vec<f64>> = rows.iter().map(|r| r.iter().copied().collect()).collect();
+            let got = theta.shocks_of_history(&plain).unwrap();
+            assert_eq!(got.len(), made.len());
+            for (g, m) in got.iter().zip(&made) {
+                for (a, b) in g.iter().zip(m.iter()) {
+                    assert!((a - b).abs() < 1e-10 * (1.0 + b.abs()), "{a} vs {b}");
+                }
+            }
         }
     }
 
