@@ -115,7 +115,9 @@ pub struct TiltyardApp {
     pub settings_open: bool,
     /// The window title last sent to the desktop.
     pub title: String,
-    /// What decided the posterior draws behind the checks shown ([`worker::model_key`]).
+    /// What decides the posterior draws ([`worker::model_key`]) of the job sent last, made
+    /// once when it is sent, and of the job behind the checks shown.
+    sent_model: Option<String>,
     checks_model: Option<String>,
     // Interface.
     pub charts: HashMap<(Subject, usize), ChartMemory>,
@@ -214,6 +216,7 @@ impl TiltyardApp {
             engine_error: None,
             first_update: None,
             timing_edit: false,
+            sent_model: None,
             checks_model: None,
             title: String::new(),
             settings_open: false,
@@ -276,7 +279,7 @@ impl TiltyardApp {
     /// model, data, transforms, horizon, draws, seed or stationarity filter changed): they are
     /// greyed and said to be old.
     pub fn checks_of_another_model(&self) -> bool {
-        self.checks.is_some() && self.checks_model != self.sent.as_ref().map(worker::model_key)
+        self.checks.is_some() && self.checks_model != self.sent_model
     }
 
     /// True while the worker has not finished the newest job.
@@ -309,6 +312,7 @@ impl TiltyardApp {
             cancel: self.cancel.clone(),
         };
         self.sent = Some(self.doc.file.clone());
+        self.sent_model = Some(worker::model_key(&self.doc.file));
         if self.jobs.send(job).is_err() {
             self.engine_error =
                 Some("the engine thread has stopped; save your work and restart".into());
@@ -382,7 +386,7 @@ impl TiltyardApp {
                         self.checked = (f.pins.len(), f.corridors.len());
                     }
                     self.checks = Some(report);
-                    self.checks_model = self.sent.as_ref().map(worker::model_key);
+                    self.checks_model = self.sent_model.clone();
                 }
                 // Fans without the conditions only stand in for having none at all.
                 Message::Results(g, r)
@@ -896,6 +900,7 @@ impl TiltyardApp {
         // The engine starts afresh on the new document, even if its file equals the last one
         // sent (its dataset may sit elsewhere).
         self.sent = None;
+        self.sent_model = None;
         self.state = EngineState::Idle;
         self.model_line.clear();
         self.engine_error = None;

@@ -94,13 +94,12 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
                     }
                     ui.end_row();
                     for view in &results.series {
+                        // The series as people name it, and its units in words.
+                        let (shown, measure) =
+                            (app.shown(&view.name), app.measure(&view.name, view.units));
                         for (c, u) in view.conditional.iter().zip(&view.unconditional) {
-                            ui.label(app.shown(&view.name));
-                            ui.label(
-                                RichText::new(app.measure(&view.name, view.units))
-                                    .small()
-                                    .color(pal.muted),
-                            );
+                            ui.label(&shown);
+                            ui.label(RichText::new(&measure).small().color(pal.muted));
                             ui.label(results.label(c.x).unwrap_or(""));
                             ui.label(RichText::new(format!("{:.2}", c.q[3])).strong());
                             ui.label(format!("{:.2} … {:.2}", c.q[2], c.q[4]));

@@ -206,13 +206,12 @@ pub fn table(ui: &mut egui::Ui, app: &TiltyardApp, pal: &Palette) {
                         let Some(o) = other.series.iter().find(|s| s.name == view.name) else {
                             continue;
                         };
+                        // The series as people name it, and its units in words.
+                        let (shown, measure) =
+                            (app.shown(&view.name), app.measure(&view.name, view.units));
                         for (a, b) in view.conditional.iter().zip(&o.conditional) {
-                            ui.label(app.shown(&view.name));
-                            ui.label(
-                                RichText::new(app.measure(&view.name, view.units))
-                                    .small()
-                                    .color(pal.muted),
-                            );
+                            ui.label(&shown);
+                            ui.label(RichText::new(&measure).small().color(pal.muted));
                             ui.label(first.label(a.x).unwrap_or(""));
                             ui.label(format!("{:.2}", a.q[3]));
                             ui.label(format!("{:.2} … {:.2}", a.q[0], a.q[6]));
