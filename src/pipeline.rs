@@ -230,6 +230,7 @@ pub fn check_central(
     conditions: &Conditions,
     invalid: Vec<Finding>,
 ) -> CheckReport {
+    let history = setup.history().ok();
     check_conditions(
         &model.central,
         conditions,
@@ -237,6 +238,7 @@ pub fn check_central(
         setup.file.seed,
         model.central_label,
         invalid,
+        history.as_ref(),
     )
 }
 

@@ -106,7 +106,14 @@ fn pin_units_that_do_not_fit_are_refused() {
     let msg = load_err(&base(
         r#"pins: [(series: "realgdp", period: "2010Q1", units: difference, value: 1.0)]"#,
     ));
-    assert_mentions(&msg, &["pins[0]", "realgdp difference", "log100"]);
+    assert_mentions(
+        &msg,
+        &[
+            "pins[0]",
+            "realgdp, change on the previous period",
+            "log100",
+        ],
+    );
     let msg = load_err(&base(
         r#"pins: [(series: "realgdp", period: "2010Q1", value: -5.0)]"#,
     ));

@@ -69,12 +69,12 @@ fn unreachable_pin_is_named() {
     assert_eq!(finding.kind, "unreachable_by_drivers");
     assert_eq!(
         finding.conditions,
-        vec!["realgdp level at 2009Q4 = 13000".to_string()]
+        vec!["realgdp at 2009Q4 = 13000".to_string()]
     );
     assert_eq!(finding.fields, vec!["pins[1]".to_string()]);
     let msg = err.to_string();
     assert!(
-        msg.contains("realgdp level at 2009Q4") && msg.contains("tbilrate"),
+        msg.contains("realgdp at 2009Q4") && msg.contains("tbilrate"),
         "{msg}"
     );
     // The engine alone says the same.
@@ -83,10 +83,7 @@ fn unreachable_pin_is_named() {
     let ForecastError::Unreachable { conditions, .. } = &err else {
         panic!("{err}")
     };
-    assert_eq!(
-        conditions,
-        &vec!["realgdp level at 2009Q4 = 13000".to_string()]
-    );
+    assert_eq!(conditions, &vec!["realgdp at 2009Q4 = 13000".to_string()]);
 }
 
 /// θ at the posterior mean.
@@ -157,7 +154,7 @@ fn contradictory_pins_are_named() {
     assert!(
         plan.notes()
             .iter()
-            .any(|n| n.contains("pct_change") && n.contains("implied")),
+            .any(|n| n.contains("% change on the previous period") && n.contains("implied")),
         "{:?}",
         plan.notes()
     );

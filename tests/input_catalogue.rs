@@ -293,7 +293,7 @@ fn broken_scenario_files_name_the_field_or_line() {
         (
             "two pins on one value",
             with_pin("(series: \"policy_rate\", period: \"2026Q4\", value: 9.0)"),
-            vec!["clash", "policy_rate", "2026Q4"],
+            vec!["clash", "Policy rate", "2026Q4", "pins[0]"],
         ),
         (
             "an empty corridor",
@@ -302,7 +302,7 @@ fn broken_scenario_files_name_the_field_or_line() {
                 "    pins: [\n",
                 "    corridors: [(series: \"unemployment\", from: \"2026Q2\", to: \"2026Q3\", lower: 6.0, upper: 5.0)],\n    pins: [\n",
             ),
-            vec!["corridors[0]", "unemployment"],
+            vec!["corridors[0]", "Unemployment rate"],
         ),
         (
             "lags at the integer limit",

@@ -22,49 +22,7 @@ const MEAN_SE: f64 = 4.0;
 const PIN_TOL: f64 = 1e-9;
 
 fn case_setup(fx: &Value, case: &Value, dir: &tempfile::TempDir) -> Setup {
-    let model = fixed_model_ron(&matrix(&fx["params"]), &matrix(&fx["sigma_u"]));
-    let mut pins = Vec::new();
-    for p in case["pins"].as_array().unwrap() {
-        pins.push(format!(
-            "(series: {}, period: {}, units: {}, value: {:e})",
-            p["series"],
-            p["period"],
-            units_ron(&p["units"]),
-            p["value"].as_f64().unwrap()
-        ));
-    }
-    for p in case["shock_pins"].as_array().unwrap() {
-        pins.push(format!(
-            "(shock: {}, period: {}, value: {:e})",
-            p["shock"],
-            p["period"],
-            p["value"].as_f64().unwrap()
-        ));
-    }
-    let ordering: Vec<String> = case["ordering"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .map(|s| s.to_string())
-        .collect();
-    let drivers = match &case["drivers"] {
-        Value::Null => String::new(),
-        d => format!(
-            "drivers: [{}],",
-            d.as_array()
-                .unwrap()
-                .iter()
-                .map(|s| s.to_string())
-                .collect::<Vec<_>>()
-                .join(", ")
-        ),
-    };
-    let extra = format!(
-        "ordering: [{}], {drivers} pins: [{}], draws: 1, seed: 11",
-        ordering.join(", "),
-        pins.join(", ")
-    );
-    let path = write_scenario(dir, &macro_scenario(&model, &extra, 8));
+    let path = write_scenario(dir, &pins_case_scenario(fx, case));
     scenario::load(&path).unwrap()
 }
 

@@ -6,6 +6,8 @@
 //! cancels stale jobs and survives a panic. No file dialog is ever opened.
 #![cfg(feature = "gui")]
 
+mod common;
+
 use std::path::{Path, PathBuf};
 use std::sync::Arc;
 use std::sync::atomic::AtomicBool;
@@ -1032,7 +1034,7 @@ fn the_window_splits_the_scenario_as_the_headless_run_does() {
     );
     // The chart's legend and the table's row.
     assert_eq!(
-        h.query_all_by_label("credit_spread level at 2026Q3 = 3.5")
+        h.query_all_by_label("Corporate credit spread at 2026Q3 = 3.5")
             .count(),
         2
     );
@@ -1047,7 +1049,7 @@ fn the_window_splits_the_scenario_as_the_headless_run_does() {
         std::thread::sleep(Duration::from_millis(20));
     }
     h.run_steps(2);
-    h.get_by_label("without credit_spread level at 2026Q3 = 3.5")
+    h.get_by_label("without Corporate credit spread at 2026Q3 = 3.5")
         .hover();
     let (_, effects) = h.state().effects.clone().unwrap();
     assert_eq!(effects.len(), 5);
@@ -1428,4 +1430,42 @@ fn the_keyboard_enlarges_the_selected_conditions_chart() {
     h.key_press(egui::Key::Escape);
     h.run_steps(2);
     assert_eq!(h.state().enlarged, None);
+}
+
+/// The checks panel shows the severity against history that an independent dense numpy
+/// computation gives for the same fixed VAR, pins and drivers (`tests/fixtures/severity.json`
+/// by `make_severity.py`): the share of windows the scenario goes beyond and the window of
+/// history on a par with it.
+#[test]
+fn the_checks_show_the_severity_against_history() {
+    let fx = common::json("pins_gaussian.json");
+    let reference = common::json("severity.json");
+    let want = &reference["cases"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|c| c["name"] == "drivers")
+        .expect("the drivers case");
+    let case = fx["cases"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|c| c["name"] == "drivers")
+        .unwrap();
+    let dir = tempfile::tempdir().unwrap();
+    let path = common::write_scenario(&dir, &common::pins_case_scenario(&fx, case));
+    let mut h = harness(&path);
+    settle(&mut h);
+    let pct = 100.0 * want["below"].as_f64().unwrap() / want["windows"].as_f64().unwrap();
+    let headline = format!(
+        "Against history: further than {pct:.0}% of the {}-quarter windows",
+        reference["horizon"]
+    );
+    assert!(h.query_by_label(&headline).is_some(), "{headline}");
+    let par = format!(
+        "on a par with {}–{}",
+        want["nearest"]["from"].as_str().unwrap(),
+        want["nearest"]["to"].as_str().unwrap()
+    );
+    assert!(h.query_by_label_contains(&par).is_some(), "{par}");
 }

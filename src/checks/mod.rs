@@ -7,9 +7,11 @@
 //! proposals of the truncated-normal estimator, and a bounded blame search.
 //!
 //! - [`strain`]: χ² tails, the coin calibration, and the report parts;
-//! - [`blame`]: the deletion filter.
+//! - [`blame`]: the deletion filter;
+//! - [`severity`]: the scenario's shocks against the model's historical shocks.
 
 pub mod blame;
+pub mod severity;
 pub mod strain;
 
 use nalgebra::{DMatrix, SymmetricEigen};
@@ -22,6 +24,7 @@ use crate::forecast::{
 };
 use crate::scenario::CheckSettings;
 use crate::truncnorm::{Probability, SolveStatus};
+pub use severity::{History, HistorySeverity};
 pub use strain::{CorridorStrain, PinStrain, Plausibility};
 
 /// How bad a finding is.
@@ -72,6 +75,8 @@ pub struct CheckReport {
     pub pins: Option<PinStrain>,
     pub corridors: Option<CorridorStrain>,
     pub plausibility: Option<Plausibility>,
+    /// The conditions' shocks against the model's historical shocks.
+    pub against_history: Option<HistorySeverity>,
     pub settings: CheckSettings,
 }
 
@@ -107,7 +112,8 @@ const NONDRIVER_DRAWS: usize = 32;
 const NEARLY_REDUNDANT: f64 = 1e10;
 
 /// Check a set of conditions for one θ. `extra` findings (from the scenario layer: bad
-/// conditions that were left out) are carried into the report.
+/// conditions that were left out) are carried into the report; `history` (the model's data)
+/// gives the severity against history.
 pub fn check_conditions(
     theta: &Theta,
     cond: &Conditions,
@@ -115,6 +121,7 @@ pub fn check_conditions(
     seed: u64,
     evaluated_at: &str,
     extra: Vec<Finding>,
+    history: Option<&History>,
 ) -> CheckReport {
     let mut report = CheckReport {
         status: Status::Clear,
@@ -124,6 +131,7 @@ pub fn check_conditions(
         pins: None,
         corridors: None,
         plausibility: None,
+        against_history: None,
         settings: *settings,
     };
     let plan = match Plan::new(theta, cond, None) {
@@ -216,6 +224,14 @@ pub fn check_conditions(
         report
             .notes
             .push("plausibility not computed: the corridors' probability is unknown".into());
+    }
+    if let Some(history) = history.filter(|_| corridor_ok && finite) {
+        match severity::severity(theta, &plan, history, seed) {
+            Ok(s) => report.against_history = s,
+            Err(e) => report
+                .notes
+                .push(format!("severity against history not computed: {e}")),
+        }
     }
     report.settle()
 }

@@ -364,6 +364,20 @@ impl Plan {
         &self.stacked
     }
 
+    /// The departures `t − 𝒢μ` of targets `t = (r; z)` from the unconditional mean.
+    pub fn departures(&self, target: &DVector<f64>) -> DVector<f64> {
+        let m = self.pin_count();
+        let mut d = target.clone();
+        for i in 0..m {
+            // r̃ = r − Rμ, so Rμ = r − r̃.
+            d[i] -= self.rows.values[i] - self.rtilde[i];
+        }
+        for (i, s) in self.smean.iter().enumerate() {
+            d[m + i] -= s;
+        }
+        d
+    }
+
     /// The driver cells (`None`: every shock moves).
     pub fn driver_cells(&self) -> Option<&[usize]> {
         self.cells.as_deref()

@@ -99,6 +99,13 @@ pub fn check_text(report: &CheckReport) -> String {
         ));
         s.push(format!("           {}", p.reading));
     }
+    if let Some(h) = &report.against_history {
+        let about = if h.estimated { "about " } else { "" };
+        s.push(format!(
+            "  history  the scenario's mean shocks have size {about}{:.2} (a window of history: standard normal under the model); {}",
+            h.score, h.reading
+        ));
+    }
     for note in &report.notes {
         s.push(format!("  note     {note}"));
     }

@@ -407,6 +407,9 @@ fn checks(h: &mut String, out: &RunOutcome) {
             p.divergence
         );
     }
+    if let Some(s) = &r.against_history {
+        let _ = writeln!(h, "<p>Against history, {}.</p>", escape(&s.reading));
+    }
     h.push_str("</section>\n");
 }
 

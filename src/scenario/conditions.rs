@@ -81,7 +81,12 @@ impl Setup {
                         known: super::listing(&self.names),
                     }
                 })?;
-                Ok((About::Series(i), format!("{name} {}", units.label())))
+                // As people name it: "House prices, % on a year earlier".
+                let what = match units {
+                    Units::Level => self.shown(i).to_string(),
+                    _ => format!("{}, {}", self.shown(i), units.words()),
+                };
+                Ok((About::Series(i), what))
             }
             (None, Some(name)) => {
                 let j = self.shock_index(name, &format!("{field}.shock"))?;
@@ -92,7 +97,7 @@ impl Setup {
                             .into(),
                     });
                 }
-                Ok((About::Shock(j), format!("{name} shock")))
+                Ok((About::Shock(j), format!("{} shock", self.shown(j))))
             }
             _ => Err(ScenarioError::Invalid {
                 field: field.into(),

@@ -9,7 +9,8 @@ use super::{
     ScenarioError,
     schema::{ModelSpec, ScenarioFile, Units},
 };
-use crate::dataset::{Dataset, DatasetError, Period, Transform};
+use crate::checks::History;
+use crate::dataset::{Dataset, DatasetError, Frequency, Period, Transform};
 use crate::forecast::ParamSource;
 use crate::model::{FitSummary, Params, Regression, Window, estimate_minnesota, posterior::flat};
 
@@ -220,6 +221,30 @@ impl Setup {
             self.dataset.periods[first],
             self.dataset.periods[last],
         )))
+    }
+
+    /// The rows the model's historical shocks come from (model units, oldest first): the
+    /// estimation window, or the whole dataset for fixed coefficients.
+    pub fn history(&self) -> Result<History, ScenarioError> {
+        let window = match &self.file.model {
+            ModelSpec::Minnesota(m) => m.window.as_ref(),
+            ModelSpec::Flat(f) => f.window.as_ref(),
+            ModelSpec::Fixed(_) => None,
+        };
+        let (first, last) = self.window_rows(window)?;
+        Ok(History {
+            rows: (first..=last)
+                .map(|r| self.columns.iter().map(|c| c[r]).collect())
+                .collect(),
+            periods: self.dataset.periods[first..=last]
+                .iter()
+                .map(ToString::to_string)
+                .collect(),
+            period_word: match self.dataset.frequency {
+                Frequency::Quarterly => "quarter",
+                Frequency::Monthly => "month",
+            },
+        })
     }
 
     /// Rows of the estimation window, checked against the lags.

@@ -115,3 +115,51 @@ pub fn macro_scenario(model: &str, extra: &str, horizon: usize) -> String {
         data.display()
     )
 }
+
+/// The scenario text of a case of `pins_gaussian.json`: its fixed VAR on `macro4.csv` with the
+/// case's ordering, drivers and pins, horizon 8.
+pub fn pins_case_scenario(fx: &Value, case: &Value) -> String {
+    let model = fixed_model_ron(&matrix(&fx["params"]), &matrix(&fx["sigma_u"]));
+    let mut pins = Vec::new();
+    for p in case["pins"].as_array().unwrap() {
+        pins.push(format!(
+            "(series: {}, period: {}, units: {}, value: {:e})",
+            p["series"],
+            p["period"],
+            units_ron(&p["units"]),
+            p["value"].as_f64().unwrap()
+        ));
+    }
+    for p in case["shock_pins"].as_array().unwrap() {
+        pins.push(format!(
+            "(shock: {}, period: {}, value: {:e})",
+            p["shock"],
+            p["period"],
+            p["value"].as_f64().unwrap()
+        ));
+    }
+    let ordering: Vec<String> = case["ordering"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|s| s.to_string())
+        .collect();
+    let drivers = match &case["drivers"] {
+        Value::Null => String::new(),
+        d => format!(
+            "drivers: [{}],",
+            d.as_array()
+                .unwrap()
+                .iter()
+                .map(|s| s.to_string())
+                .collect::<Vec<_>>()
+                .join(", ")
+        ),
+    };
+    let extra = format!(
+        "ordering: [{}], {drivers} pins: [{}], draws: 1, seed: 11",
+        ordering.join(", "),
+        pins.join(", ")
+    );
+    macro_scenario(&model, &extra, 8)
+}
