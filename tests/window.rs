@@ -848,7 +848,7 @@ fn arrow_keys_nudge_the_selected_condition() {
     let mut h = harness(&demo_copy(&dir));
     settle(&mut h);
     // pins[0]: credit_spread (series 7) at 2026Q3 = 3.5.
-    h.state_mut().selected = Some(tiltyard::app::chart::CondRef::Pin(0));
+    h.state_mut().selected = Some(tiltyard::app::gesture::CondRef::Pin(0));
     let step = h.state().charts[&(Subject::Series, 7)].step;
     assert!(step > 0.0);
     h.key_press(egui::Key::ArrowUp);
@@ -861,7 +861,7 @@ fn arrow_keys_nudge_the_selected_condition() {
     h.step();
     assert_eq!(h.state().doc.file.pins[0].period, "2026Q3");
     // A corridor moves as a whole: corridors[2] (policy rate, 1 … 3) down one step.
-    h.state_mut().selected = Some(tiltyard::app::chart::CondRef::Corridor(2));
+    h.state_mut().selected = Some(tiltyard::app::gesture::CondRef::Corridor(2));
     h.key_press(egui::Key::ArrowDown);
     h.step();
     let c = h.state().doc.file.corridors[2].clone();
@@ -1023,7 +1023,7 @@ fn the_window_splits_the_scenario_as_the_headless_run_does() {
     // The shock list on the left, and the table's row.
     assert!(h.query_all_by_label("Unemployment rate shock").count() >= 2);
     // No condition is keyed while the split is by shock; by condition, each is.
-    let pin = tiltyard::app::chart::CondRef::Pin(0);
+    let pin = tiltyard::app::gesture::CondRef::Pin(0);
     assert!(tiltyard::app::sources::colour_of(h.state(), pin).is_none());
     h.get_by_label("by condition").click();
     h.run_steps(2);
@@ -1417,7 +1417,7 @@ fn the_keyboard_enlarges_the_selected_conditions_chart() {
     let mut h = harness(&demo_copy(&dir));
     settle(&mut h);
     // pins[1] is on house_prices, series 5.
-    h.state_mut().selected = Some(tiltyard::app::chart::CondRef::Pin(1));
+    h.state_mut().selected = Some(tiltyard::app::gesture::CondRef::Pin(1));
     h.key_press(egui::Key::Enter);
     h.run_steps(2);
     assert_eq!(h.state().enlarged, Some((Subject::Series, 5)));

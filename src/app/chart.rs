@@ -16,112 +16,13 @@
 //! once and then kept steady as fans update: it widens only when something would leave it,
 //! never during a drag, and "re-fit" fits it again.
 
-use egui::{Color32, Pos2, Stroke};
+use egui::{Color32, Stroke};
 use egui_plot::{FilledArea, GridMark, Line, LineStyle, Plot, PlotPoint, Points, Polygon, VLine};
 
+use super::gesture::{ChartAction, CondRef, Drag, Handles, Pick, Ruler, Scene};
 use super::palette::Palette;
-use super::worker::{Results, SeriesView, Subject};
+use super::worker::{FanPoint, Results, SeriesView, Subject};
 use crate::scenario::{Bound, ScenarioFile, Units};
-
-/// A condition of the scenario file, by list and index.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
-pub enum CondRef {
-    Pin(usize),
-    Corridor(usize),
-}
-
-impl CondRef {
-    /// The scenario-file field, as the checks name it.
-    pub fn field(self) -> String {
-        match self {
-            CondRef::Pin(k) => format!("pins[{k}]"),
-            CondRef::Corridor(k) => format!("corridors[{k}]"),
-        }
-    }
-}
-
-/// What a gesture on a chart asks of the document.
-#[derive(Debug, Clone, PartialEq)]
-pub enum ChartAction {
-    BeginGesture,
-    EndGesture,
-    SetPin {
-        pin: usize,
-        value: f64,
-    },
-    /// Shift one bound of a corridor by `delta`, at every period or at `period` only (of
-    /// `periods`).
-    MoveBound {
-        corridor: usize,
-        upper: bool,
-        delta: f64,
-        period: Option<usize>,
-        periods: usize,
-    },
-    /// Move a corridor's first (or last) period by `shift` periods, to `label`.
-    MoveEnd {
-        corridor: usize,
-        last: bool,
-        shift: i64,
-        label: String,
-    },
-    /// A new pin, in the chart's units.
-    AddPin {
-        period: String,
-        units: Units,
-        value: f64,
-    },
-    /// Draw an existing corridor again (a new-corridor drag over periods it holds): its
-    /// periods and both bounds become the drawn ones, in the chart's units.
-    RedrawCorridor {
-        corridor: usize,
-        from: String,
-        to: String,
-        units: Units,
-        lower: f64,
-        upper: f64,
-    },
-    /// A new corridor, in the chart's units.
-    AddCorridor {
-        from: String,
-        to: String,
-        units: Units,
-        lower: f64,
-        upper: f64,
-    },
-    Select(Option<CondRef>),
-    Remove(CondRef),
-    Enlarge,
-}
-
-/// A gesture in progress on one chart.
-#[derive(Debug, Clone, PartialEq)]
-pub enum Drag {
-    /// The pin moves by the pointer's travel from where it was grabbed (so grabbing it
-    /// off-centre does not make it jump): `start` value and pointer, `value` now.
-    Pin {
-        pin: usize,
-        start: f64,
-        start_y: f64,
-        value: f64,
-    },
-    Bound {
-        corridor: usize,
-        upper: bool,
-        period: Option<usize>,
-        last_y: f64,
-    },
-    End {
-        corridor: usize,
-        last: bool,
-        /// Horizon the end now sits at.
-        at: i64,
-    },
-    NewCorridor {
-        start: PlotPoint,
-        now: PlotPoint,
-    },
-}
 
 /// Per-chart state kept between frames.
 #[derive(Debug, Clone, Default)]
@@ -168,10 +69,6 @@ pub struct ChartInput<'a> {
     /// The same series in a second scenario, drawn beside this one's fans.
     pub second: Option<&'a SeriesView>,
 }
-
-/// Pixels within which a pointer picks a handle (a quarter can be under 10 pixels wide and an
-/// edge is one pixel thick: the hit area is much larger than either).
-const PICK: f32 = 10.0;
 
 /// The value range to show for contents spanning `wanted`: the previous range while a drag
 /// lasts or while it holds the contents; else each side the contents pass moves out to them
@@ -291,92 +188,48 @@ fn on_chart(
     }
 }
 
-/// A corridor as drawn: its index, first horizon, and per-period (lower, upper) bounds.
-type Drawn = (usize, i64, Vec<(Option<f64>, Option<f64>)>);
-
-struct Handles {
-    /// Pin index and screen position.
-    pins: Vec<(usize, Pos2)>,
-    /// Corridor index, upper?, period offset, screen segment (x0, x1, y).
-    edges: Vec<(usize, bool, usize, f32, f32, f32)>,
-    /// Corridor index, last?, horizon, screen segment (x, y0, y1) at its outer side.
-    ends: Vec<(usize, bool, i64, f32, f32, f32)>,
-}
-
-impl Handles {
-    /// The handle nearest `pos` within [`PICK`] pixels; pins first, then whichever edge or end
-    /// is nearer.
-    fn pick(&self, pos: Pos2) -> Option<Pick> {
-        let pin = self
-            .pins
-            .iter()
-            .map(|&(k, p)| (k, p.distance(pos)))
-            .filter(|&(_, d)| d <= PICK)
-            .min_by(|a, b| a.1.total_cmp(&b.1));
-        if let Some((k, _)) = pin {
-            return Some(Pick::Pin(k));
-        }
-        let edges = self
-            .edges
-            .iter()
-            .filter(|&&(_, _, _, x0, x1, y)| {
-                pos.x >= x0 && pos.x <= x1 && (pos.y - y).abs() <= PICK
-            })
-            .map(|&(c, upper, period, _, _, y)| ((pos.y - y).abs(), Pick::Edge(c, upper, period)));
-        let ends = self
-            .ends
-            .iter()
-            .filter(|&&(_, _, _, x, y0, y1)| {
-                pos.y >= y0.min(y1) && pos.y <= y0.max(y1) && (pos.x - x).abs() <= PICK
-            })
-            .map(|&(c, last, at, x, ..)| ((pos.x - x).abs(), Pick::End(c, last, at)));
-        edges
-            .chain(ends)
-            .min_by(|a, b| a.0.total_cmp(&b.0))
-            .map(|(_, pick)| pick)
-    }
-}
-
-enum Pick {
-    Pin(usize),
-    Edge(usize, bool, usize),
-    End(usize, bool, i64),
-}
-
-impl Pick {
-    fn condition(&self) -> CondRef {
-        match *self {
-            Pick::Pin(k) => CondRef::Pin(k),
-            Pick::Edge(c, ..) | Pick::End(c, ..) => CondRef::Corridor(c),
-        }
-    }
-}
-
 /// Draw the chart and turn gestures into actions.
 pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> Vec<ChartAction> {
-    let mut actions = Vec::new();
-    let view = input.view;
-    let pal = input.palette;
-    let results = input.results;
-    let h = results.labels.len() as i64 - results.history as i64 - 1;
-    // Value range of the data, for open corridor sides and snapping.
-    let mut lo = f64::INFINITY;
-    let mut hi = f64::NEG_INFINITY;
-    for &(_, v) in &view.history {
-        lo = lo.min(v);
-        hi = hi.max(v);
-    }
-    for f in view.conditional.iter().chain(&view.unconditional) {
-        lo = lo.min(f.q[0]);
-        hi = hi.max(f.q[6]);
-    }
-    if !lo.is_finite() || !hi.is_finite() {
-        (lo, hi) = (0.0, 1.0);
-    }
-    let step = snap_step(hi - lo);
-    memory.step = step;
+    let scene = scene_of(input);
+    let frame = frame_of(input, &scene, memory);
+    let free = ui.input(|i| i.modifiers.shift) == input.snapping;
+    let snap_value = move |y: f64| if free { y } else { snap(y, frame.step) };
+    let label = |t: i64| input.results.label(t as f64).map(str::to_string);
+    let ruler = Ruler {
+        snap: &snap_value,
+        label: &label,
+    };
+    let response = plot_of(input, memory.quiet).show(ui, |pui| {
+        pui.set_auto_bounds(false);
+        pui.set_plot_bounds_x(-(input.results.history as f64) - 0.5..=scene.h as f64 + 0.6);
+        pui.set_plot_bounds_y(frame.lo..=frame.hi);
+        draw_fans(pui, input);
+        let handles = draw_conditions(pui, input, &scene, memory, &frame);
+        if let Some(Drag::NewCorridor { start, now }) = &memory.drag {
+            // Drawn as it will be made: whole future periods, snapped values.
+            let (x0, x1, y0, y1) = scene.drawn_box(*start, *now, &ruler);
+            pui.polygon(
+                Polygon::new("new corridor", period_box(x0 as f64, x1 as f64, y0, y1))
+                    .fill_color(input.palette.corridor.gamma_multiply(0.2))
+                    .stroke(Stroke::new(1.5, input.palette.corridor))
+                    .allow_hover(false),
+            );
+        }
+        handles
+    });
+    memory.transform = Some(response.transform);
+    let mut actions = pointer(ui, &response, &scene, memory, &ruler);
+    context_menu(ui, &response.response, memory, &mut actions);
+    other_units_note(ui, input);
+    actions
+}
 
-    let pins: Vec<(usize, f64, f64)> = input
+/// The pins and corridors of this chart's series (or shock) in its units, in plot values;
+/// only corridors within the forecast are drawn (the checks name the others).
+fn scene_of(input: &ChartInput) -> Scene {
+    let (view, results) = (input.view, input.results);
+    let h = results.labels.len() as i64 - results.history as i64 - 1;
+    let pins = input
         .file
         .pins
         .iter()
@@ -384,8 +237,7 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
         .filter(|(_, p)| p.active && on_chart(&p.series, &p.shock, p.units, view))
         .filter_map(|(k, p)| horizon(results, &p.period).map(|t| (k, t as f64, p.value)))
         .collect();
-    // Corridors: (index, first horizon, per-period (lower, upper)).
-    let corridors: Vec<Drawn> = input
+    let corridors = input
         .file
         .corridors
         .iter()
@@ -393,23 +245,49 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
         .filter(|(_, c)| c.active && on_chart(&c.series, &c.shock, c.units, view))
         .filter_map(|(k, c)| {
             let (a, b) = (horizon(results, &c.from)?, horizon(results, &c.to)?);
-            // Only corridors within the forecast are drawn (the checks name the others).
             if a < 1 || b > h {
                 return None;
             }
             let n = usize::try_from(b - a + 1).ok()?;
-            let lower = bounds(&c.lower, n);
-            let upper = bounds(&c.upper, n);
+            let (lower, upper) = (bounds(&c.lower, n), bounds(&c.upper, n));
             Some((k, a, lower.into_iter().zip(upper).collect()))
         })
         .collect();
+    Scene {
+        pins,
+        corridors,
+        h,
+        units: view.units,
+    }
+}
 
-    let dragging = memory.drag.is_some();
-    // What the chart must hold: the data and fans, the second scenario, every finite bound
-    // and pin; then the range shown, steady while the user works.
-    let (mut want_lo, mut want_hi) = (lo, hi);
-    let extra = pins.iter().map(|p| p.2).chain(
-        corridors
+/// The value range shown and the snapping step.
+struct Frame {
+    lo: f64,
+    hi: f64,
+    step: f64,
+}
+
+/// The chart's value range: what it must hold (the data and fans, the second scenario, every
+/// finite bound and pin), shown steadily while the user works ([`steady_range`]); and the
+/// snapping step of the data's range.
+fn frame_of(input: &ChartInput, scene: &Scene, memory: &mut ChartMemory) -> Frame {
+    let view = input.view;
+    let data = view.history.iter().map(|&(_, v)| v).chain(
+        view.conditional
+            .iter()
+            .chain(&view.unconditional)
+            .flat_map(|f| [f.q[0], f.q[6]]),
+    );
+    let (mut lo, mut hi) = span(data);
+    if !lo.is_finite() || !hi.is_finite() {
+        (lo, hi) = (0.0, 1.0);
+    }
+    let step = snap_step(hi - lo);
+    memory.step = step;
+    let conditions = scene.pins.iter().map(|p| p.2).chain(
+        scene
+            .corridors
             .iter()
             .flat_map(|d| d.2.iter().flat_map(|(l, u)| [*l, *u]))
             .flatten(),
@@ -418,28 +296,33 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
         .second
         .into_iter()
         .flat_map(|v| v.conditional.iter().flat_map(|f| [f.q[0], f.q[6]]));
-    for v in extra.chain(second).filter(|v| v.is_finite()) {
-        want_lo = want_lo.min(v);
-        want_hi = want_hi.max(v);
-    }
-    memory.wanted = (want_lo, want_hi);
+    let (c_lo, c_hi) = span(conditions.chain(second));
+    memory.wanted = (lo.min(c_lo), hi.max(c_hi));
     let previous = memory
         .range
         .filter(|r| r.2 == view.units)
         .map(|(a, b, _)| (a, b));
-    let (y_lo, y_hi) = steady_range(previous, memory.wanted, dragging || input.any_drag);
-    memory.range = Some((y_lo, y_hi, view.units));
-    // Open corridor sides run past the frame.
-    let pad = 0.15 * (y_hi - y_lo);
-    let (open_lo, open_hi) = (y_lo - pad, y_hi + pad);
-    let free = ui.input(|i| i.modifiers.shift) == input.snapping;
-    let free_or_snap = |y: f64| if free { y } else { snap(y, step) };
-    let label_results = results;
-    let label_view = view;
-    let quiet = memory.quiet;
-    // Both views show the same past: the data, or the model's historical shocks.
-    let first_x = -(results.history as f64) - 0.5;
-    let plot = Plot::new(("chart", view.subject, input.index))
+    let dragging = memory.drag.is_some() || input.any_drag;
+    let (lo, hi) = steady_range(previous, memory.wanted, dragging);
+    memory.range = Some((lo, hi, view.units));
+    Frame { lo, hi, step }
+}
+
+/// Smallest and largest finite value (infinite when there is none).
+fn span(values: impl Iterator<Item = f64>) -> (f64, f64) {
+    values
+        .filter(|v| v.is_finite())
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), v| {
+            (lo.min(v), hi.max(v))
+        })
+}
+
+/// The plot: fixed (no pan or zoom), dated axis, units on the value axis, and a readout of
+/// both fans' quantiles at the hovered period (held back while `quiet`).
+fn plot_of<'a>(input: &'a ChartInput, quiet: bool) -> Plot<'a> {
+    let results = input.results;
+    let view = input.view;
+    Plot::new(("chart", view.subject, input.index))
         .height(input.height)
         .allow_drag(false)
         .allow_zoom(false)
@@ -451,226 +334,199 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
         .y_axis_label(input.measure)
         .y_grid_spacer(egui_plot::uniform_grid_spacer(steps_125))
         .x_axis_formatter(move |mark: GridMark, _| {
-            label_results
+            results
                 .label(mark.value)
                 .filter(|_| (mark.value - mark.value.round()).abs() < 1e-9)
                 .unwrap_or("")
                 .to_string()
         })
         .label_formatter(move |pos| {
-            if quiet {
-                return None;
-            }
             let p = match pos {
                 egui_plot::HoverPosition::NearDataPoint { position, .. } => *position,
                 egui_plot::HoverPosition::Elsewhere { position } => *position,
             };
-            let date = label_results.label(p.x)?;
-            let mut text = format!("{date}   pointer at {:.3}", p.y);
-            let at = |fans: &[super::worker::FanPoint]| {
-                fans.iter()
-                    .find(|f| (f.x - p.x.round()).abs() < 0.5)
-                    .copied()
-            };
-            if let Some(f) = at(&label_view.conditional) {
-                text.push_str(&format!(
-                    "\nscenario: median {:.3}\n  50% {:.3} … {:.3}\n  90% {:.3} … {:.3}",
-                    f.q[3], f.q[2], f.q[4], f.q[0], f.q[6]
-                ));
-            }
-            if let Some(f) = at(&label_view.unconditional) {
-                let what = match label_view.subject {
-                    Subject::Series => "without conditions",
-                    Subject::Shock => "usual N(0, 1)",
-                };
-                text.push_str(&format!(
-                    "\n{what}: median {:.3}\n  90% {:.3} … {:.3}",
-                    f.q[3], f.q[0], f.q[6]
-                ));
-            }
-            Some(text)
-        });
-    let response = plot.show(ui, |pui| {
-        pui.set_auto_bounds(false);
-        pui.set_plot_bounds_x(first_x..=h as f64 + 0.6);
-        pui.set_plot_bounds_y(y_lo..=y_hi);
-        let fan_colour = if input.stale { pal.stale } else { pal.fan };
-        // Unconditional fan, muted, then the conditional one.
-        let xs: Vec<f64> = view.unconditional.iter().map(|f| f.x).collect();
-        let band = |k0: usize, k1: usize, v: &[super::worker::FanPoint]| {
-            (
-                v.iter().map(|f| f.q[k0]).collect::<Vec<_>>(),
-                v.iter().map(|f| f.q[k1]).collect::<Vec<_>>(),
-            )
+            (!quiet).then(|| readout(results, view, p)).flatten()
+        })
+}
+
+/// The hover readout at `p`: the period, the pointer's value, and both fans' quantiles there.
+fn readout(results: &Results, view: &SeriesView, p: PlotPoint) -> Option<String> {
+    let date = results.label(p.x)?;
+    let mut text = format!("{date}   pointer at {:.3}", p.y);
+    let at = |fans: &[FanPoint]| {
+        fans.iter()
+            .find(|f| (f.x - p.x.round()).abs() < 0.5)
+            .copied()
+    };
+    if let Some(f) = at(&view.conditional) {
+        text.push_str(&format!(
+            "\nscenario: median {:.3}\n  50% {:.3} … {:.3}\n  90% {:.3} … {:.3}",
+            f.q[3], f.q[2], f.q[4], f.q[0], f.q[6]
+        ));
+    }
+    if let Some(f) = at(&view.unconditional) {
+        let what = match view.subject {
+            Subject::Series => "without conditions",
+            Subject::Shock => "usual N(0, 1)",
         };
-        let (u0, u1) = band(0, 6, &view.unconditional);
-        pui.add(
-            FilledArea::new("unconditional 90%", &xs, &u0, &u1)
-                .fill_color(pal.muted.gamma_multiply(0.35))
-                .allow_hover(false),
-        );
-        pui.line(
-            Line::new(
-                "unconditional median",
-                view.unconditional
-                    .iter()
-                    .map(|f| [f.x, f.q[3]])
-                    .collect::<Vec<_>>(),
-            )
+        text.push_str(&format!(
+            "\n{what}: median {:.3}\n  90% {:.3} … {:.3}",
+            f.q[3], f.q[0], f.q[6]
+        ));
+    }
+    Some(text)
+}
+
+/// History, the unconditional fan (muted) behind the conditional one, the second scenario,
+/// and the line at the last observation.
+fn draw_fans(pui: &mut egui_plot::PlotUi, input: &ChartInput) {
+    let (view, pal) = (input.view, input.palette);
+    let fan_colour = if input.stale { pal.stale } else { pal.fan };
+    let band = |k0: usize, k1: usize, v: &[FanPoint]| {
+        (
+            v.iter().map(|f| f.q[k0]).collect::<Vec<_>>(),
+            v.iter().map(|f| f.q[k1]).collect::<Vec<_>>(),
+        )
+    };
+    let median = |v: &[FanPoint]| v.iter().map(|f| [f.x, f.q[3]]).collect::<Vec<_>>();
+    let xs: Vec<f64> = view.unconditional.iter().map(|f| f.x).collect();
+    let (u0, u1) = band(0, 6, &view.unconditional);
+    pui.add(
+        FilledArea::new("unconditional 90%", &xs, &u0, &u1)
+            .fill_color(pal.muted.gamma_multiply(0.35))
+            .allow_hover(false),
+    );
+    pui.line(
+        Line::new("unconditional median", median(&view.unconditional))
             .color(pal.muted)
             .style(LineStyle::dashed_loose())
             .width(1.2),
+    );
+    let xs: Vec<f64> = view.conditional.iter().map(|f| f.x).collect();
+    for (k0, k1, alpha) in [(0, 6, 0.22), (1, 5, 0.30), (2, 4, 0.42)] {
+        let (a, b) = band(k0, k1, &view.conditional);
+        pui.add(
+            FilledArea::new("conditional band", &xs, &a, &b)
+                .fill_color(fan_colour.gamma_multiply(alpha))
+                .allow_hover(false),
         );
-        let xs: Vec<f64> = view.conditional.iter().map(|f| f.x).collect();
-        for (k0, k1, alpha) in [(0, 6, 0.22), (1, 5, 0.30), (2, 4, 0.42)] {
-            let (a, b) = band(k0, k1, &view.conditional);
-            pui.add(
-                FilledArea::new("conditional band", &xs, &a, &b)
-                    .fill_color(fan_colour.gamma_multiply(alpha))
-                    .allow_hover(false),
-            );
-        }
-        pui.line(
-            Line::new(
-                "conditional median",
-                view.conditional
-                    .iter()
-                    .map(|f| [f.x, f.q[3]])
-                    .collect::<Vec<_>>(),
-            )
+    }
+    pui.line(
+        Line::new("conditional median", median(&view.conditional))
             .color(fan_colour)
             .width(2.0),
-        );
-        if let Some(other) = input.second {
-            // The second scenario: its median, and its 90% band as two thin lines.
-            let line = |name: &str, k: usize, width: f32| {
-                Line::new(
-                    name.to_string(),
-                    other
-                        .conditional
-                        .iter()
-                        .map(|f| [f.x, f.q[k]])
-                        .collect::<Vec<_>>(),
-                )
-                .color(pal.second)
-                .width(width)
-                .allow_hover(false)
-            };
-            pui.line(line("second scenario 5%", 0, 1.0));
-            pui.line(line("second scenario 95%", 6, 1.0));
-            pui.line(line("second scenario median", 3, 2.0));
-        }
-        pui.line(
-            Line::new(
-                "history",
-                view.history
-                    .iter()
-                    .map(|&(x, y)| [x, y])
-                    .collect::<Vec<_>>(),
-            )
-            .color(pal.history)
-            .width(1.6),
-        );
-        pui.vline(
-            VLine::new("last observation", 0.0)
-                .color(pal.muted)
-                .width(1.0),
-        );
-
-        let t = *pui.transform();
-        let mut handles = Handles {
-            pins: Vec::new(),
-            edges: Vec::new(),
-            ends: Vec::new(),
-        };
-        for (c, first, periods) in &corridors {
-            let cref = CondRef::Corridor(*c);
-            let selected = input.selected == Some(cref) || memory.hover == Some(cref);
-            let edge = (input.status)(cref).unwrap_or(pal.corridor);
-            for (k, (l, u)) in periods.iter().enumerate() {
-                let x = (*first + k as i64) as f64;
-                let (yl, yu) = (l.unwrap_or(open_lo), u.unwrap_or(open_hi));
-                pui.polygon(
-                    Polygon::new("corridor", period_box(x, x, yl, yu))
-                        .fill_color(pal.corridor.gamma_multiply(0.12))
-                        .stroke(Stroke::new(if selected { 2.5 } else { 1.2 }, edge))
-                        .allow_hover(false),
-                );
-                let x0 = t.position_from_point_x(x - 0.5);
-                let x1 = t.position_from_point_x(x + 0.5);
-                if let Some(v) = l {
-                    handles
-                        .edges
-                        .push((*c, false, k, x0, x1, t.position_from_point_y(*v)));
-                }
-                if let Some(v) = u {
-                    handles
-                        .edges
-                        .push((*c, true, k, x0, x1, t.position_from_point_y(*v)));
-                }
-                // The outer sides of the first and last periods move the ends.
-                let (y0, y1) = (t.position_from_point_y(yl), t.position_from_point_y(yu));
-                let last = *first + periods.len() as i64 - 1;
-                if k == 0 {
-                    let xe = t.position_from_point_x(x - 0.45);
-                    handles.ends.push((*c, false, *first, xe, y0, y1));
-                }
-                if k + 1 == periods.len() {
-                    let xe = t.position_from_point_x(x + 0.45);
-                    handles.ends.push((*c, true, last, xe, y0, y1));
-                }
-            }
-        }
-        for &(k, x, v) in &pins {
-            let cref = CondRef::Pin(k);
-            let ring = (input.status)(cref);
-            let selected = input.selected == Some(cref) || memory.hover == Some(cref);
-            if let Some(ring) = ring {
-                // A ring two pixels thick.
-                for radius in [9.5, 10.5] {
-                    pui.points(
-                        Points::new("pin status", vec![[x, v]])
-                            .radius(radius)
-                            .color(ring)
-                            .filled(false)
-                            .allow_hover(false),
-                    );
-                }
-            }
-            pui.points(
-                Points::new("pin", vec![[x, v]])
-                    .shape(egui_plot::MarkerShape::Diamond)
-                    .radius(if selected { 8.0 } else { 6.5 })
-                    .color(pal.pin)
-                    .filled(true),
-            );
-            handles
-                .pins
-                .push((k, t.position_from_point(&PlotPoint::new(x, v))));
-        }
-        if let Some(Drag::NewCorridor { start, now }) = &memory.drag {
-            // Drawn as it will be made: whole future periods, snapped values.
-            let (x0, x1) = (
-                start.x.min(now.x).round().max(1.0),
-                start.x.max(now.x).round().min(h as f64),
-            );
-            let (y0, y1) = (
-                free_or_snap(start.y.min(now.y)),
-                free_or_snap(start.y.max(now.y)),
-            );
-            pui.polygon(
-                Polygon::new("new corridor", period_box(x0, x1, y0, y1))
-                    .fill_color(pal.corridor.gamma_multiply(0.2))
-                    .stroke(Stroke::new(1.5, pal.corridor))
+    );
+    if let Some(other) = input.second {
+        // The second scenario: its median, and its 90% band as two thin lines.
+        for (name, k, width) in [
+            ("second scenario 5%", 0, 1.0),
+            ("second scenario 95%", 6, 1.0),
+            ("second scenario median", 3, 2.0),
+        ] {
+            let points: Vec<[f64; 2]> = other.conditional.iter().map(|f| [f.x, f.q[k]]).collect();
+            pui.line(
+                Line::new(name, points)
+                    .color(pal.second)
+                    .width(width)
                     .allow_hover(false),
             );
         }
-        (handles, t)
-    });
-    let (handles, t) = response.inner;
-    memory.transform = Some(response.transform);
-    let r = &response.response;
-    let (pointer, press, modifiers, primary_released) = ui.input(|i| {
+    }
+    let history: Vec<[f64; 2]> = view.history.iter().map(|&(x, y)| [x, y]).collect();
+    pui.line(Line::new("history", history).color(pal.history).width(1.6));
+    pui.vline(
+        VLine::new("last observation", 0.0)
+            .color(pal.muted)
+            .width(1.0),
+    );
+}
+
+/// The corridors (a box per period; open sides run past the frame) and pins (a diamond, a
+/// ring when a check names it), with their handles on screen.
+fn draw_conditions(
+    pui: &mut egui_plot::PlotUi,
+    input: &ChartInput,
+    scene: &Scene,
+    memory: &ChartMemory,
+    frame: &Frame,
+) -> Handles {
+    let pal = input.palette;
+    let t = *pui.transform();
+    let mut handles = Handles::default();
+    let pad = 0.15 * (frame.hi - frame.lo);
+    let (open_lo, open_hi) = (frame.lo - pad, frame.hi + pad);
+    let marked = |cref| input.selected == Some(cref) || memory.hover == Some(cref);
+    for (c, first, periods) in &scene.corridors {
+        let cref = CondRef::Corridor(*c);
+        let width = if marked(cref) { 2.5 } else { 1.2 };
+        let edge = (input.status)(cref).unwrap_or(pal.corridor);
+        for (k, (l, u)) in periods.iter().enumerate() {
+            let x = (*first + k as i64) as f64;
+            let (yl, yu) = (l.unwrap_or(open_lo), u.unwrap_or(open_hi));
+            pui.polygon(
+                Polygon::new("corridor", period_box(x, x, yl, yu))
+                    .fill_color(pal.corridor.gamma_multiply(0.12))
+                    .stroke(Stroke::new(width, edge))
+                    .allow_hover(false),
+            );
+            let x0 = t.position_from_point_x(x - 0.5);
+            let x1 = t.position_from_point_x(x + 0.5);
+            for (upper, v) in [(false, l), (true, u)] {
+                if let Some(v) = v {
+                    let y = t.position_from_point_y(*v);
+                    handles.edges.push((*c, upper, k, x0, x1, y));
+                }
+            }
+            // The outer sides of the first and last periods move the ends.
+            let (y0, y1) = (t.position_from_point_y(yl), t.position_from_point_y(yu));
+            if k == 0 {
+                let xe = t.position_from_point_x(x - 0.45);
+                handles.ends.push((*c, false, *first, xe, y0, y1));
+            }
+            if k + 1 == periods.len() {
+                let xe = t.position_from_point_x(x + 0.45);
+                handles.ends.push((*c, true, x as i64, xe, y0, y1));
+            }
+        }
+    }
+    for &(k, x, v) in &scene.pins {
+        let cref = CondRef::Pin(k);
+        if let Some(ring) = (input.status)(cref) {
+            // A ring two pixels thick.
+            for radius in [9.5, 10.5] {
+                pui.points(
+                    Points::new("pin status", vec![[x, v]])
+                        .radius(radius)
+                        .color(ring)
+                        .filled(false)
+                        .allow_hover(false),
+                );
+            }
+        }
+        pui.points(
+            Points::new("pin", vec![[x, v]])
+                .shape(egui_plot::MarkerShape::Diamond)
+                .radius(if marked(cref) { 8.0 } else { 6.5 })
+                .color(pal.pin)
+                .filled(true),
+        );
+        let at = t.position_from_point(&PlotPoint::new(x, v));
+        handles.pins.push((k, at));
+    }
+    handles
+}
+
+/// What the pointer does this frame: the cursor, and a gesture's start, course and end, or a
+/// click, as actions ([`Scene`] decides them; this only reads egui's input).
+fn pointer(
+    ui: &egui::Ui,
+    response: &egui_plot::PlotResponse<Handles>,
+    scene: &Scene,
+    memory: &mut ChartMemory,
+    ruler: &Ruler,
+) -> Vec<ChartAction> {
+    let (handles, t, r) = (&response.inner, &response.transform, &response.response);
+    let (pointer, press, modifiers, released) = ui.input(|i| {
         (
             i.pointer.interact_pos(),
             i.pointer.press_origin(),
@@ -681,207 +537,29 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
     let hovered = pointer
         .filter(|p| r.rect.contains(*p))
         .and_then(|p| handles.pick(p));
-    // The cursor says what a drag would do.
-    let cursor = match (&memory.drag, &hovered) {
-        (Some(Drag::NewCorridor { .. }), _) => Some(egui::CursorIcon::Crosshair),
-        (Some(Drag::End { .. }), _) | (None, Some(Pick::End(..))) => {
-            Some(egui::CursorIcon::ResizeHorizontal)
-        }
-        (Some(_), _) | (None, Some(_)) => Some(egui::CursorIcon::ResizeVertical),
-        (None, None) => None,
-    };
-    if let Some(c) = cursor {
+    if let Some(c) = cursor(memory.drag.as_ref(), hovered) {
         ui.ctx().set_cursor_icon(c);
     }
-    let value_at = |p: Pos2| t.value_from_position(p);
-
-    // Start of a gesture.
+    let mut actions = Vec::new();
     if r.drag_started()
         && let Some(origin) = press
     {
-        let at = value_at(origin);
-        match handles.pick(origin) {
-            Some(pick) => {
-                memory.drag = Some(match pick {
-                    Pick::Pin(k) => {
-                        let value = pins.iter().find(|p| p.0 == k).map_or(at.y, |p| p.2);
-                        Drag::Pin {
-                            pin: k,
-                            start: value,
-                            start_y: at.y,
-                            value,
-                        }
-                    }
-                    Pick::Edge(c, upper, k) => Drag::Bound {
-                        corridor: c,
-                        upper,
-                        period: modifiers.command.then_some(k),
-                        last_y: at.y,
-                    },
-                    Pick::End(c, last, at) => Drag::End {
-                        corridor: c,
-                        last,
-                        at,
-                    },
-                });
-                actions.push(ChartAction::Select(Some(pick.condition())));
-                actions.push(ChartAction::BeginGesture);
-            }
-            None if at.x.round() >= 1.0 => {
-                memory.drag = Some(Drag::NewCorridor { start: at, now: at });
-            }
-            None => {}
-        }
+        let pick = handles.pick(origin);
+        let (drag, started) = scene.begin(pick, t.value_from_position(origin), modifiers.command);
+        memory.drag = drag;
+        actions.extend(started);
     }
-    // The gesture goes on.
     if let (Some(drag), Some(p)) = (memory.drag.as_mut(), pointer) {
-        let at = value_at(p);
-        match drag {
-            Drag::Pin {
-                pin,
-                start,
-                start_y,
-                value,
-            } => {
-                let v = free_or_snap(*start + at.y - *start_y);
-                if at.y != *start_y && v != *value {
-                    actions.push(ChartAction::SetPin {
-                        pin: *pin,
-                        value: v,
-                    });
-                    *value = v;
-                }
-            }
-            Drag::Bound {
-                corridor,
-                upper,
-                period,
-                last_y,
-            } => {
-                // Move by whole steps of the pointer's travel (any travel with Shift).
-                let travel = at.y - *last_y;
-                let delta = free_or_snap(travel);
-                if delta != 0.0 {
-                    let periods = corridors
-                        .iter()
-                        .find(|(c, ..)| c == corridor)
-                        .map_or(0, |d| d.2.len());
-                    actions.push(ChartAction::MoveBound {
-                        corridor: *corridor,
-                        upper: *upper,
-                        delta,
-                        period: *period,
-                        periods,
-                    });
-                    *last_y += delta;
-                }
-            }
-            Drag::End {
-                corridor,
-                last,
-                at: end,
-            } => {
-                // Keep the end within the forecast and on its side of the other end.
-                let other =
-                    corridors
-                        .iter()
-                        .find(|(c, ..)| c == corridor)
-                        .map(|(_, first, periods)| {
-                            if *last {
-                                *first
-                            } else {
-                                first + periods.len() as i64 - 1
-                            }
-                        });
-                let x = at.x.round() as i64;
-                let x = match (other, *last) {
-                    (Some(o), true) => x.clamp(o, h),
-                    (Some(o), false) => x.clamp(1, o),
-                    (None, _) => *end,
-                };
-                if x != *end
-                    && let Some(label) = results.label(x as f64)
-                {
-                    actions.push(ChartAction::MoveEnd {
-                        corridor: *corridor,
-                        last: *last,
-                        shift: x - *end,
-                        label: label.to_string(),
-                    });
-                    *end = x;
-                }
-            }
-            Drag::NewCorridor { now, .. } => *now = at,
-        }
+        actions.extend(scene.follow(drag, t.value_from_position(p), ruler));
     }
-    // The gesture ends.
-    if primary_released && let Some(drag) = memory.drag.take() {
-        match drag {
-            Drag::NewCorridor { start, now } => {
-                let (x0, x1) = (
-                    start.x.min(now.x).round().max(1.0),
-                    start.x.max(now.x).round().min(h as f64),
-                );
-                let (y0, y1) = (
-                    free_or_snap(start.y.min(now.y)),
-                    free_or_snap(start.y.max(now.y)),
-                );
-                // Over periods a corridor on this chart already holds, the drag draws that
-                // corridor again rather than stacking a second one on it.
-                let under = corridors.iter().find(|(_, first, periods)| {
-                    let last = first + periods.len() as i64 - 1;
-                    (x0 as i64) <= last && (x1 as i64) >= *first
-                });
-                if x1 >= x0
-                    && y1 > y0
-                    && let (Some(from), Some(to)) = (results.label(x0), results.label(x1))
-                {
-                    let (from, to, units) = (from.to_string(), to.to_string(), view.units);
-                    actions.push(match under {
-                        Some(&(corridor, ..)) => ChartAction::RedrawCorridor {
-                            corridor,
-                            from,
-                            to,
-                            units,
-                            lower: y0,
-                            upper: y1,
-                        },
-                        None => ChartAction::AddCorridor {
-                            from,
-                            to,
-                            units,
-                            lower: y0,
-                            upper: y1,
-                        },
-                    });
-                }
-            }
-            _ => actions.push(ChartAction::EndGesture),
-        }
+    if released && let Some(drag) = memory.drag.take() {
+        actions.extend(scene.release(drag, ruler));
     }
-    // Clicks: Ctrl+click places a pin, a click on a handle selects, elsewhere deselects.
     if r.clicked()
         && let Some(p) = pointer
     {
-        let at = value_at(p);
-        if modifiers.command {
-            let x = at.x.round();
-            // A second click on a period that has a pin selects it (no duplicate pins).
-            if let Some(&(k, ..)) = pins.iter().find(|p| p.1 == x) {
-                actions.push(ChartAction::Select(Some(CondRef::Pin(k))));
-            } else if x >= 1.0
-                && x <= h as f64
-                && let Some(period) = results.label(x)
-            {
-                actions.push(ChartAction::AddPin {
-                    period: period.to_string(),
-                    units: view.units,
-                    value: free_or_snap(at.y),
-                });
-            }
-        } else {
-            actions.push(ChartAction::Select(handles.pick(p).map(|k| k.condition())));
-        }
+        let at = t.value_from_position(p);
+        actions.extend(scene.click(at, handles.pick(p), modifiers.command, ruler));
     }
     if r.double_clicked() && !modifiers.command {
         actions.push(ChartAction::Enlarge);
@@ -889,6 +567,31 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
     if r.secondary_clicked() {
         memory.context = pointer.and_then(|p| handles.pick(p)).map(|k| k.condition());
     }
+    memory.hover = hovered.map(|p| p.condition());
+    memory.quiet = hovered.is_some() || memory.drag.is_some();
+    actions
+}
+
+/// The cursor says what a drag would do.
+fn cursor(drag: Option<&Drag>, hovered: Option<Pick>) -> Option<egui::CursorIcon> {
+    match (drag, hovered) {
+        (Some(Drag::NewCorridor { .. }), _) => Some(egui::CursorIcon::Crosshair),
+        (Some(Drag::End { .. }), _) | (None, Some(Pick::End(..))) => {
+            Some(egui::CursorIcon::ResizeHorizontal)
+        }
+        (Some(_), _) | (None, Some(_)) => Some(egui::CursorIcon::ResizeVertical),
+        (None, None) => None,
+    }
+}
+
+/// The menu of a right-clicked handle: remove its condition. While it is open the hover
+/// readout is held back (it is drawn above menus and would hide them).
+fn context_menu(
+    ui: &egui::Ui,
+    r: &egui::Response,
+    memory: &mut ChartMemory,
+    actions: &mut Vec<ChartAction>,
+) {
     if let Some(cref) = memory.context {
         r.context_menu(|ui| {
             let what = match cref {
@@ -905,35 +608,38 @@ pub fn show(ui: &mut egui::Ui, input: &ChartInput, memory: &mut ChartMemory) -> 
     if !menu_open {
         memory.context = None;
     }
-    memory.quiet = hovered.is_some() || memory.drag.is_some() || menu_open;
-    memory.hover = hovered.map(|p| p.condition());
-    let elsewhere_units = |series: &Option<String>, units: Units| {
+    memory.quiet |= menu_open;
+}
+
+/// A note under the chart when the series has conditions in other units (they are in the
+/// table, not on this chart).
+fn other_units_note(ui: &mut egui::Ui, input: &ChartInput) {
+    let view = input.view;
+    let elsewhere = |series: &Option<String>, units: Units| {
         view.subject == Subject::Series
             && series.as_deref() == Some(view.name.as_str())
             && units != view.units
     };
-    let elsewhere = input
-        .file
+    let file = input.file;
+    let count = file
         .pins
         .iter()
-        .filter(|p| p.active && elsewhere_units(&p.series, p.units))
+        .filter(|p| p.active && elsewhere(&p.series, p.units))
         .count()
-        + input
-            .file
+        + file
             .corridors
             .iter()
-            .filter(|c| c.active && elsewhere_units(&c.series, c.units))
+            .filter(|c| c.active && elsewhere(&c.series, c.units))
             .count();
-    if elsewhere > 0 {
+    if count > 0 {
         ui.label(
             egui::RichText::new(format!(
-                "{elsewhere} condition(s) on this series in other units: see the table"
+                "{count} condition(s) on this series in other units: see the table"
             ))
             .small()
-            .color(pal.muted),
+            .color(input.palette.muted),
         );
     }
-    actions
 }
 
 #[cfg(test)]

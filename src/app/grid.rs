@@ -9,7 +9,8 @@
 use egui::RichText;
 
 use super::TiltyardApp;
-use super::chart::{self, ChartInput, CondRef};
+use super::chart::{self, ChartInput};
+use super::gesture::{ChartAction, CondRef};
 use super::legend::Legend;
 use super::palette::Palette;
 use super::panels::{severity_colour, shock_order, units_box};
@@ -211,7 +212,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
                             "enlarge"
                         };
                         if ui.small_button(label).clicked() {
-                            actions.push((view.name.clone(), chart::ChartAction::Enlarge));
+                            actions.push((view.name.clone(), ChartAction::Enlarge));
                         }
                         refit = ui
                             .small_button("re-fit")

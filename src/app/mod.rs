@@ -16,8 +16,10 @@
 pub mod chart;
 pub mod chooser;
 pub mod document;
+pub mod edits;
 pub mod export;
 pub mod files;
+pub mod gesture;
 pub mod grid;
 pub mod legend;
 pub mod narrative;
@@ -37,13 +39,14 @@ use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::mpsc::{Receiver, Sender, channel};
 use std::time::{Duration, Instant};
 
-use chart::{ChartAction, ChartMemory, CondRef};
+use chart::ChartMemory;
 use document::Document;
 use files::{Answer, Chores, Dialogs, PathPicker, Purpose};
+use gesture::{ChartAction, CondRef};
 use worker::{EngineState, Job, Message, Results, Sources, Subject};
 
 use crate::checks::{CheckReport, Severity};
-use crate::scenario::{Bound, CorridorSpec, PinSpec, ScenarioFile};
+use crate::scenario::{CorridorSpec, PinSpec, ScenarioFile};
 
 /// Time the window spends draining the worker's messages per frame.
 const DRAIN_BUDGET: Duration = Duration::from_millis(4);
@@ -445,93 +448,12 @@ impl TiltyardApp {
         self.charts.values().any(|m| m.drag.is_some())
     }
 
-    /// Apply an action of the chart of series or shock `name` to the document.
+    /// Apply an action of the chart of series or shock `name`: edits go to the document (one
+    /// undo step each, or one per gesture), the rest to the view.
     pub fn apply(&mut self, subject: Subject, name: &str, action: ChartAction) {
-        let (series, shock) = match subject {
-            Subject::Series => (Some(name.to_string()), None),
-            Subject::Shock => (None, Some(name.to_string())),
-        };
         match action {
             ChartAction::BeginGesture => self.doc.begin_gesture(),
             ChartAction::EndGesture => self.doc.end_gesture(),
-            ChartAction::SetPin { pin, value } => self.doc.edit(|f| {
-                if let Some(p) = f.pins.get_mut(pin) {
-                    p.value = value;
-                }
-            }),
-            ChartAction::MoveBound {
-                corridor,
-                upper,
-                delta,
-                period,
-                periods,
-            } => self.doc.edit(|f| {
-                if let Some(c) = f.corridors.get_mut(corridor) {
-                    move_bound(c, upper, delta, period, periods);
-                }
-            }),
-            ChartAction::MoveEnd {
-                corridor,
-                last,
-                shift,
-                label,
-            } => self.doc.edit(|f| {
-                if let Some(c) = f.corridors.get_mut(corridor) {
-                    move_end(c, last, shift, label);
-                }
-            }),
-            ChartAction::AddPin {
-                period,
-                units,
-                value,
-            } => self.add_pin(PinSpec {
-                series,
-                shock,
-                period,
-                units,
-                value,
-                active: true,
-            }),
-            ChartAction::AddCorridor {
-                from,
-                to,
-                units,
-                lower,
-                upper,
-            } => self.add_corridor(CorridorSpec {
-                series,
-                shock,
-                from,
-                to,
-                units,
-                lower: Some(Bound::Same(lower)),
-                upper: Some(Bound::Same(upper)),
-                active: true,
-            }),
-            ChartAction::RedrawCorridor {
-                corridor,
-                from,
-                to,
-                units,
-                lower,
-                upper,
-            } => {
-                self.doc.edit(|f| {
-                    if let Some(c) = f.corridors.get_mut(corridor) {
-                        c.from = from;
-                        c.to = to;
-                        c.units = units;
-                        // An open side stays open; a bound becomes the drawn one.
-                        if c.lower.is_some() {
-                            c.lower = Some(Bound::Same(lower));
-                        }
-                        if c.upper.is_some() {
-                            c.upper = Some(Bound::Same(upper));
-                        }
-                    }
-                });
-                self.selected = Some(CondRef::Corridor(corridor));
-            }
             ChartAction::Select(s) => self.selected = s,
             ChartAction::Remove(cref) => self.remove(cref),
             ChartAction::Enlarge => {
@@ -543,6 +465,14 @@ impl TiltyardApp {
                     .position(|s| s.name == name)
                     .map(|i| (subject, i));
                 self.enlarged = if self.enlarged == i { None } else { i };
+            }
+            edit => {
+                let mut select = None;
+                self.doc
+                    .edit(|f| select = edits::apply(f, subject, name, edit));
+                if select.is_some() {
+                    self.selected = select;
+                }
             }
         }
     }
@@ -706,29 +636,8 @@ impl TiltyardApp {
                 .contains(&t)
                 .then(|| results.label(t as f64).map(str::to_string))?
         };
-        self.doc.edit(|f| match cref {
-            CondRef::Pin(k) => {
-                if let Some(p) = f.pins.get_mut(k) {
-                    if steps != 0 {
-                        p.value = chart::tidy(p.value + delta);
-                    }
-                    if let Some(label) = shifted(&p.period) {
-                        p.period = label;
-                    }
-                }
-            }
-            CondRef::Corridor(k) => {
-                if let Some(c) = f.corridors.get_mut(k) {
-                    for upper in [false, true].into_iter().filter(|_| steps != 0) {
-                        move_bound(c, upper, delta, None, 0);
-                    }
-                    if let (Some(from), Some(to)) = (shifted(&c.from), shifted(&c.to)) {
-                        c.from = from;
-                        c.to = to;
-                    }
-                }
-            }
-        });
+        self.doc
+            .edit(|f| edits::nudge(f, cref, (steps != 0).then_some(delta), &shifted));
     }
 
     /// Save to the document's path (atomically, on the chores' thread; the recovery file goes
@@ -1101,73 +1010,6 @@ impl TiltyardApp {
 impl eframe::App for TiltyardApp {
     fn ui(&mut self, ui: &mut egui::Ui, _frame: &mut eframe::Frame) {
         TiltyardApp::ui(self, ui);
-    }
-}
-
-/// Shift one side of a corridor of `periods` periods by `delta`, at every period or at one
-/// (which turns the side into per-period bounds).
-fn move_bound(
-    c: &mut CorridorSpec,
-    upper: bool,
-    delta: f64,
-    period: Option<usize>,
-    periods: usize,
-) {
-    let side = if upper { &mut c.upper } else { &mut c.lower };
-    match (side.as_mut(), period) {
-        (Some(Bound::Same(v)), None) => *v = chart::tidy(*v + delta),
-        (Some(Bound::Each(list)), None) => {
-            for v in list.iter_mut().flatten() {
-                *v = chart::tidy(*v + delta);
-            }
-        }
-        (Some(Bound::Same(v)), Some(k)) => {
-            let n = periods.max(k + 1);
-            let mut list = vec![Some(*v); n];
-            if let Some(x) = list[k].as_mut() {
-                *x = chart::tidy(*x + delta);
-            }
-            *side = Some(Bound::Each(list));
-        }
-        (Some(Bound::Each(list)), Some(k)) => {
-            if let Some(Some(x)) = list.get_mut(k) {
-                *x = chart::tidy(*x + delta);
-            }
-        }
-        (None, _) => {}
-    }
-}
-
-/// Move the first (or last) period of a corridor by `shift` periods to `label`; per-period
-/// bounds gain copies of their end value or lose the periods left behind.
-pub(super) fn move_end(c: &mut CorridorSpec, last: bool, shift: i64, label: String) {
-    let grow = if last { shift } else { -shift };
-    for side in [&mut c.lower, &mut c.upper] {
-        let Some(Bound::Each(list)) = side.as_mut() else {
-            continue;
-        };
-        let n = grow.unsigned_abs() as usize;
-        if grow > 0 {
-            let fill = if last { list.last() } else { list.first() };
-            let fill = fill.copied().flatten();
-            if last {
-                list.extend(std::iter::repeat_n(fill, n));
-            } else {
-                list.splice(0..0, std::iter::repeat_n(fill, n));
-            }
-        } else {
-            let n = n.min(list.len().saturating_sub(1));
-            if last {
-                list.truncate(list.len() - n);
-            } else {
-                list.drain(..n);
-            }
-        }
-    }
-    if last {
-        c.to = label;
-    } else {
-        c.from = label;
     }
 }
 

@@ -4,8 +4,8 @@
 
 use egui::{Color32, RichText};
 
-use super::chart::CondRef;
 use super::files::Purpose;
+use super::gesture::CondRef;
 use super::palette::Palette;
 use super::worker::{EngineState, Subject};
 use super::{AfterSave, Prompt, TiltyardApp, table};

@@ -35,7 +35,7 @@ pub fn condition_colour(k: usize) -> Color32 {
 }
 
 /// The colour of a condition in the split by condition, when that split is on show.
-pub fn colour_of(app: &TiltyardApp, cref: super::chart::CondRef) -> Option<Color32> {
+pub fn colour_of(app: &TiltyardApp, cref: super::gesture::CondRef) -> Option<Color32> {
     let (_, sources) = app.sources.as_ref()?;
     if !(app.pane == super::grid::Pane::Sources && app.sources_view.by_condition) {
         return None;

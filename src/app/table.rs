@@ -4,7 +4,7 @@
 use egui::{RichText, Ui};
 
 use super::TiltyardApp;
-use super::chart::CondRef;
+use super::gesture::CondRef;
 use super::palette::Palette;
 use crate::checks::Severity;
 use crate::dataset::{Frequency, Period};
@@ -532,7 +532,7 @@ fn apply_one(app: &mut TiltyardApp, e: Edit) {
                     if let (Some(a), Some(b)) = (at(&before), at(&now))
                         && a != b
                     {
-                        super::move_end(&mut c, last, b - a, now);
+                        super::edits::move_end(&mut c, last, b - a, now);
                     }
                 }
             }
