@@ -345,7 +345,7 @@ fn child_frames(args: &[&str]) -> String {
         std::hint::black_box(h.ctx.tessellate(shapes, 1.0));
         frames.push(t.elapsed());
         let app = h.state();
-        if !app.busy() && app.results.is_some() {
+        if !app.busy() && app.session.results.is_some() {
             break;
         }
         std::thread::sleep(Duration::from_millis(5));

@@ -98,13 +98,13 @@ fn settle(h: &mut Harness<'static, TiltyardApp>) {
     loop {
         h.step();
         let app = h.state();
-        if !app.busy() && app.results.is_some() {
+        if !app.busy() && app.session.results.is_some() {
             break;
         }
         assert!(
             start.elapsed() < Duration::from_secs(120),
             "the engine did not finish: {:?}",
-            app.state
+            app.session.state
         );
         std::thread::sleep(Duration::from_millis(20));
     }
@@ -117,7 +117,7 @@ fn screen(h: &Harness<'static, TiltyardApp>, i: usize, x: f64, y: f64) -> Pos2 {
 }
 
 fn screen_of(h: &Harness<'static, TiltyardApp>, s: Subject, i: usize, x: f64, y: f64) -> Pos2 {
-    let t = h.state().charts[&(s, i)]
+    let t = h.state().view.charts[&(s, i)]
         .transform
         .expect("the chart was drawn");
     t.position_from_point(&PlotPoint::new(x, y))
@@ -138,7 +138,7 @@ fn drag(h: &mut Harness<'static, TiltyardApp>, from: Pos2, to: Pos2) {
 }
 
 fn horizon(h: &Harness<'static, TiltyardApp>, label: &str) -> f64 {
-    let r = h.state().results.clone().unwrap();
+    let r = h.state().session.results.clone().unwrap();
     tiltyard::app::chart::horizon(&r, label).unwrap() as f64
 }
 
@@ -156,12 +156,15 @@ fn opening_a_scenario_shows_its_series_and_fans() {
         assert!(h.query_by_label(raw).is_none(), "{raw} is not shown");
     }
     let app = h.state();
-    let r = app.results.as_ref().unwrap();
+    let r = app.session.results.as_ref().unwrap();
     assert_eq!(r.series.len(), 10);
-    assert!(matches!(app.state, EngineState::Done { draws: 100, .. }));
+    assert!(matches!(
+        app.session.state,
+        EngineState::Done { draws: 100, .. }
+    ));
     assert!(!r.preview);
     // The checks are shown, and the caution.
-    assert!(app.checks.is_some());
+    assert!(app.session.checks.is_some());
     assert!(
         h.query_by_label_contains("not predictions or advice")
             .is_some()
@@ -326,9 +329,9 @@ fn model_settings_re_estimate_in_the_background() {
     let mut h = harness(&demo_copy(&dir));
     settle(&mut h);
     assert!(
-        h.state().model_line.contains("VAR(2)"),
+        h.state().session.model_line.contains("VAR(2)"),
         "{}",
-        h.state().model_line
+        h.state().session.model_line
     );
     h.get_by_label("Model settings…").click();
     h.run_steps(2);
@@ -350,9 +353,9 @@ fn model_settings_re_estimate_in_the_background() {
     assert!(h.query_by_label(stale).is_some());
     settle(&mut h);
     assert!(
-        h.state().model_line.contains("VAR(3)"),
+        h.state().session.model_line.contains("VAR(3)"),
         "{}",
-        h.state().model_line
+        h.state().session.model_line
     );
     assert!(h.query_by_label(stale).is_none());
     // The estimation window, typed in the panel, applies on Enter: 2000Q1–2025Q4 is 104
@@ -364,7 +367,7 @@ fn model_settings_re_estimate_in_the_background() {
     assert!(h.state().doc.file == *h.state().sent().unwrap());
     h.key_press(egui::Key::Enter);
     settle(&mut h);
-    let line = h.state().model_line.clone();
+    let line = h.state().session.model_line.clone();
     assert!(
         line.contains("2000Q1–2025Q4") && line.contains("T = 101"),
         "{line}"
@@ -376,8 +379,8 @@ fn model_settings_re_estimate_in_the_background() {
     settle(&mut h);
     let sent = h.state().sent().unwrap().clone();
     assert_eq!(sent.series[0].transform, tiltyard::dataset::Transform::AsIs);
-    assert!(h.state().engine_error.is_none());
-    assert_eq!(h.state().results.as_ref().unwrap().draws, 100);
+    assert!(h.state().session.engine_error.is_none());
+    assert_eq!(h.state().session.results.as_ref().unwrap().draws, 100);
 }
 
 /// A corridor's upper edge moves at every period; Ctrl on its lower edge moves one period
@@ -435,7 +438,7 @@ fn corridor_edges_and_ends_move() {
     assert_eq!(lower.len(), 6);
     // The engine takes the edited corridor: no invalid condition.
     settle(&mut h);
-    let checks = h.state().checks.clone().unwrap();
+    let checks = h.state().session.checks.clone().unwrap();
     assert!(
         checks
             .findings
@@ -465,9 +468,9 @@ fn the_shocks_view_draws_shocks_and_takes_conditions_on_them() {
     settle(&mut h);
     h.get_by_label("Structural shocks").click();
     h.run_steps(3);
-    assert_eq!(h.state().view, Subject::Shock);
+    assert_eq!(h.state().view.subject, Subject::Shock);
     // The past half shows the model's historical shocks, one per observed period shown.
-    let r = h.state().results.clone().unwrap();
+    let r = h.state().session.results.clone().unwrap();
     for view in &r.shocks {
         assert_eq!(view.history.len(), r.history, "{}", view.name);
         assert!(view.history.iter().all(|(t, e)| *t <= 0.0 && e.is_finite()));
@@ -503,7 +506,7 @@ fn the_shocks_view_draws_shocks_and_takes_conditions_on_them() {
         })
     });
     settle(&mut h);
-    let r = h.state().results.clone().unwrap();
+    let r = h.state().session.results.clone().unwrap();
     assert_eq!(r.draws, 100);
     let shock = |name: &str| r.shocks.iter().find(|s| s.name == name).unwrap();
     // Unconditional fans: 10 shocks × 12 periods, independent cells; the per-cell standard
@@ -557,20 +560,21 @@ fn a_clashing_scenario_opens_on_its_clash() {
     std::fs::write(&path, scenario::to_text(&file)).unwrap();
     let mut h = harness(&path);
     let start = Instant::now();
-    while h.state().state != EngineState::Clashing || h.state().results.is_none() {
+    while h.state().session.state != EngineState::Clashing || h.state().session.results.is_none() {
         h.step();
         assert!(
             start.elapsed() < Duration::from_secs(120),
             "{:?}",
-            h.state().state
+            h.state().session.state
         );
         std::thread::sleep(Duration::from_millis(20));
     }
     h.run_steps(2);
     let app = h.state();
     assert!(app.stale());
-    assert!(app.results.as_ref().unwrap().without_conditions);
+    assert!(app.session.results.as_ref().unwrap().without_conditions);
     let clash = app
+        .session
         .checks
         .as_ref()
         .unwrap()
@@ -831,11 +835,11 @@ fn a_new_scenario_starts_from_a_dataset() {
     assert_eq!(app.doc.file.series.len(), 10);
     assert!(app.doc.file.pins.is_empty() && app.doc.file.corridors.is_empty());
     assert_eq!(app.doc.path, dir.path().join("economy-scenario.ron"));
-    let r = app.results.as_ref().unwrap();
+    let r = app.session.results.as_ref().unwrap();
     assert_eq!((r.series.len(), r.draws), (10, 100));
     assert_eq!(r.series[0].conditional.len(), 8, "two years of quarters");
     assert_eq!(
-        app.checks.as_ref().unwrap().status,
+        app.session.checks.as_ref().unwrap().status,
         tiltyard::checks::Status::Clear
     );
 }
@@ -848,8 +852,8 @@ fn arrow_keys_nudge_the_selected_condition() {
     let mut h = harness(&demo_copy(&dir));
     settle(&mut h);
     // pins[0]: credit_spread (series 7) at 2026Q3 = 3.5.
-    h.state_mut().selected = Some(tiltyard::app::gesture::CondRef::Pin(0));
-    let step = h.state().charts[&(Subject::Series, 7)].step;
+    h.state_mut().view.selected = Some(tiltyard::app::gesture::CondRef::Pin(0));
+    let step = h.state().view.charts[&(Subject::Series, 7)].step;
     assert!(step > 0.0);
     h.key_press(egui::Key::ArrowUp);
     h.key_press(egui::Key::ArrowRight);
@@ -861,11 +865,11 @@ fn arrow_keys_nudge_the_selected_condition() {
     h.step();
     assert_eq!(h.state().doc.file.pins[0].period, "2026Q3");
     // A corridor moves as a whole: corridors[2] (policy rate, 1 … 3) down one step.
-    h.state_mut().selected = Some(tiltyard::app::gesture::CondRef::Corridor(2));
+    h.state_mut().view.selected = Some(tiltyard::app::gesture::CondRef::Corridor(2));
     h.key_press(egui::Key::ArrowDown);
     h.step();
     let c = h.state().doc.file.corridors[2].clone();
-    let step = h.state().charts[&(Subject::Series, 3)].step;
+    let step = h.state().view.charts[&(Subject::Series, 3)].step;
     assert_eq!(
         c.lower,
         Some(scenario::Bound::Same(tiltyard::app::chart::tidy(
@@ -878,10 +882,10 @@ fn arrow_keys_nudge_the_selected_condition() {
             3.0 - step
         )))
     );
-    assert!(h.state().snapping);
+    assert!(h.state().view.snapping);
     h.key_press(egui::Key::G);
     h.step();
-    assert!(!h.state().snapping);
+    assert!(!h.state().view.snapping);
 }
 
 /// The window's fans, streamed in blocks, are the headless run's fans: the same paths, to the
@@ -898,7 +902,7 @@ fn the_window_draws_the_same_fans_as_the_headless_run() {
         let out = tiltyard::run::run(&mut setup, &Default::default()).unwrap();
         let mut h = harness(&path);
         settle(&mut h);
-        let r = h.state().results.clone().unwrap();
+        let r = h.state().session.results.clone().unwrap();
         assert_eq!(r.draws, 100);
         assert_eq!(r.effective_draws.is_some(), reweight);
         let mut compared = 0;
@@ -994,9 +998,9 @@ fn new_asks_about_unsaved_changes_first() {
     settle(&mut h);
     // New again gives the same file: the engine still draws it.
     h.state_mut().new_scenario();
-    assert!(h.state().results.is_none());
+    assert!(h.state().session.results.is_none());
     settle(&mut h);
-    assert!(h.state().checks.is_some());
+    assert!(h.state().session.checks.is_some());
 }
 
 /// "Where it comes from" shows the headless run's attribution (the same draws, split the same
@@ -1011,6 +1015,7 @@ fn the_window_splits_the_scenario_as_the_headless_run_does() {
     settle(&mut h);
     let (_, sources) = h
         .state()
+        .session
         .sources
         .clone()
         .expect("the split came with the draws");
@@ -1018,7 +1023,7 @@ fn the_window_splits_the_scenario_as_the_headless_run_does() {
     assert_eq!(sources.statistics, out.summary);
     h.get_by_label("Where it comes from").click();
     h.run_steps(2);
-    assert_eq!(h.state().pane, tiltyard::app::grid::Pane::Sources);
+    assert_eq!(h.state().view.pane, tiltyard::app::grid::Pane::Sources);
     h.get_by_label("total").hover();
     // The shock list on the left, and the table's row.
     assert!(h.query_all_by_label("Unemployment rate shock").count() >= 2);
@@ -1027,7 +1032,7 @@ fn the_window_splits_the_scenario_as_the_headless_run_does() {
     assert!(tiltyard::app::sources::colour_of(h.state(), pin).is_none());
     h.get_by_label("by condition").click();
     h.run_steps(2);
-    assert!(h.state().sources_view.by_condition);
+    assert!(h.state().view.sources_view.by_condition);
     assert_eq!(
         tiltyard::app::sources::colour_of(h.state(), pin),
         Some(tiltyard::app::sources::condition_colour(0))
@@ -1040,7 +1045,7 @@ fn the_window_splits_the_scenario_as_the_headless_run_does() {
     );
     // Leave one out follows in the background.
     let start = Instant::now();
-    while h.state().effects.is_none() {
+    while h.state().session.effects.is_none() {
         assert!(
             start.elapsed() < Duration::from_secs(60),
             "no leave-one-out effects"
@@ -1051,13 +1056,13 @@ fn the_window_splits_the_scenario_as_the_headless_run_does() {
     h.run_steps(2);
     h.get_by_label("without Corporate credit spread at 2026Q3 = 3.5")
         .hover();
-    let (_, effects) = h.state().effects.clone().unwrap();
+    let (_, effects) = h.state().session.effects.clone().unwrap();
     assert_eq!(effects.len(), 5);
     assert!(effects.iter().all(|e| e.shift.is_ok()));
     // Back to the charts.
     h.get_by_label("Series paths").click();
     h.run_steps(2);
-    assert_eq!(h.state().pane, tiltyard::app::grid::Pane::Charts);
+    assert_eq!(h.state().view.pane, tiltyard::app::grid::Pane::Charts);
 }
 
 /// A second scenario on the same series is drawn beside the document, its conditions are set
@@ -1112,7 +1117,7 @@ fn a_second_scenario_is_compared_in_the_window() {
     );
     h.get_by_label("Difference").click();
     h.run_steps(2);
-    assert_eq!(h.state().pane, tiltyard::app::grid::Pane::Difference);
+    assert_eq!(h.state().view.pane, tiltyard::app::grid::Pane::Difference);
     h.get_by_label("second: median").hover();
     // Both scenarios' statistics side by side.
     h.get_by_label("this one").hover();
@@ -1126,7 +1131,7 @@ fn a_second_scenario_is_compared_in_the_window() {
     h.get_by_label("stop comparing").click();
     h.run_steps(2);
     assert!(h.state().second.is_none());
-    assert_eq!(h.state().pane, tiltyard::app::grid::Pane::Charts);
+    assert_eq!(h.state().view.pane, tiltyard::app::grid::Pane::Charts);
 }
 
 /// The table of paths: every series and period with its median and bands, copied to the
@@ -1141,9 +1146,9 @@ fn the_table_of_paths_is_copied_and_saved() {
     settle(&mut h);
     h.get_by_label("Table").click();
     h.run_steps(2);
-    assert_eq!(h.state().pane, tiltyard::app::grid::Pane::Table);
+    assert_eq!(h.state().view.pane, tiltyard::app::grid::Pane::Table);
     h.get_by_label("unconditional median").hover();
-    let r = h.state().results.clone().unwrap();
+    let r = h.state().session.results.clone().unwrap();
     let text = tiltyard::app::paths_table::csv_text(&r);
     assert_eq!(text.lines().count(), 1 + 10 * 12 + 1);
     assert!(text.ends_with(&format!("# {}\n", tiltyard::report::CAUTION)));
@@ -1302,7 +1307,7 @@ fn the_axes_stay_put_when_the_fans_update() {
     let ranges = |h: &Harness<'static, TiltyardApp>| -> Ranges {
         (0..10)
             .map(|i| {
-                let m = &h.state().charts[&(Subject::Series, i)];
+                let m = &h.state().view.charts[&(Subject::Series, i)];
                 let b = m.transform.expect("drawn").bounds().to_owned();
                 let (lo, hi, _) = m.range.expect("fitted");
                 ((lo, hi), (b.min()[1], b.max()[1]), m.wanted)
@@ -1417,19 +1422,19 @@ fn the_keyboard_enlarges_the_selected_conditions_chart() {
     let mut h = harness(&demo_copy(&dir));
     settle(&mut h);
     // pins[1] is on house_prices, series 5.
-    h.state_mut().selected = Some(tiltyard::app::gesture::CondRef::Pin(1));
+    h.state_mut().view.selected = Some(tiltyard::app::gesture::CondRef::Pin(1));
     h.key_press(egui::Key::Enter);
     h.run_steps(2);
-    assert_eq!(h.state().enlarged, Some((Subject::Series, 5)));
+    assert_eq!(h.state().view.enlarged, Some((Subject::Series, 5)));
     assert!(h.query_by_label("back to all").is_some());
     h.key_press(egui::Key::Enter);
     h.run_steps(2);
-    assert_eq!(h.state().enlarged, None);
+    assert_eq!(h.state().view.enlarged, None);
     h.key_press(egui::Key::Enter);
     h.run_steps(2);
     h.key_press(egui::Key::Escape);
     h.run_steps(2);
-    assert_eq!(h.state().enlarged, None);
+    assert_eq!(h.state().view.enlarged, None);
 }
 
 /// The checks panel shows the severity against history that an independent dense numpy

@@ -114,31 +114,32 @@ const CHART_CHROME: f32 = 36.0;
 
 /// The controls above the grid (one row that never changes height) and the charts.
 pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
-    app.grid.sync(&app.doc.file);
-    let subject = app.view;
+    app.view.grid.sync(&app.doc.file);
+    let subject = app.view.subject;
     let names: Vec<String> = match subject {
         Subject::Series => app
+            .view
             .grid
             .order
             .iter()
-            .filter(|n| !app.hidden.contains(*n))
+            .filter(|n| !app.view.hidden.contains(*n))
             .cloned()
             .collect(),
         Subject::Shock => shock_order(app),
     };
-    let (page_names, pages) = app.grid.page_of(&names);
+    let (page_names, pages) = app.view.grid.page_of(&names);
     controls(ui, app, pal, pages);
-    if app.pane == Pane::Difference && app.second.is_none() {
-        app.pane = Pane::Charts;
+    if app.view.pane == Pane::Difference && app.second.is_none() {
+        app.view.pane = Pane::Charts;
     }
-    match app.pane {
+    match app.view.pane {
         Pane::Sources => return super::sources::show(ui, app, pal),
         Pane::Difference => return super::second::table(ui, app, pal),
         Pane::Table => return super::paths_table::show(ui, app, pal),
         Pane::Charts => {}
     }
-    let Some(results) = app.results.clone() else {
-        let text = match app.state {
+    let Some(results) = app.session.results.clone() else {
+        let text = match app.session.state {
             EngineState::Failed => "No fans: the engine stopped on the error named above.",
             _ => "The fans appear here as soon as the engine has the first draws.",
         };
@@ -152,6 +153,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
         Subject::Shock => &results.shocks,
     };
     let enlarged = app
+        .view
         .enlarged
         .filter(|&(s, i)| s == subject && i < views.len())
         .map(|(_, i)| i);
@@ -183,11 +185,11 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
         let per_row = ui.available_height() / rows as f32 - CHART_CHROME;
         per_row.clamp(190.0, 420.0)
     };
-    let height = match app.grid.height {
+    let height = match app.view.grid.height {
         Some(kept) if app.dragging() => kept,
         _ => fitted,
     };
-    app.grid.height = Some(height);
+    app.view.grid.height = Some(height);
     let any_drag = app.dragging();
     let mut actions = Vec::new();
     egui::ScrollArea::vertical().show(ui, |ui| {
@@ -222,7 +224,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
                             )
                             .clicked();
                     });
-                    let mut memory = app.charts.remove(&(subject, i)).unwrap_or_default();
+                    let mut memory = app.view.charts.remove(&(subject, i)).unwrap_or_default();
                     if refit {
                         memory.range = None;
                     }
@@ -239,11 +241,11 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
                         results: &results,
                         file: &app.doc.file,
                         stale: app.stale(),
-                        selected: app.selected,
+                        selected: app.view.selected,
                         status: &status,
                         height,
                         palette: pal,
-                        snapping: app.snapping,
+                        snapping: app.view.snapping,
                         second: (subject == Subject::Series)
                             .then(|| {
                                 app.second
@@ -256,7 +258,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
                     for a in chart::show(col, &input, &mut memory) {
                         actions.push((view.name.clone(), a));
                     }
-                    app.charts.insert((subject, i), memory);
+                    app.view.charts.insert((subject, i), memory);
                 }
             });
             ui.add_space(6.0);
@@ -273,60 +275,60 @@ fn controls(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette, pages: usiz
     // Wrapped when the panel is narrow; the page label has a fixed width, so the row keeps
     // its height as pages turn.
     ui.horizontal_wrapped(|ui| {
-        let charts = app.pane == Pane::Charts;
+        let charts = app.view.pane == Pane::Charts;
         for (subject, label) in [
             (Subject::Series, "Series paths"),
             (Subject::Shock, "Structural shocks"),
         ] {
-            if ui.selectable_label(charts && app.view == subject, label).clicked() {
-                app.view = subject;
-                app.pane = Pane::Charts;
+            if ui.selectable_label(charts && app.view.subject == subject, label).clicked() {
+                app.view.subject = subject;
+                app.view.pane = Pane::Charts;
             }
         }
         if ui
-            .selectable_label(app.pane == Pane::Sources, "Where it comes from")
+            .selectable_label(app.view.pane == Pane::Sources, "Where it comes from")
             .on_hover_text("The scenario's move away from the unconditional forecast, split by structural shock or by condition")
             .clicked()
         {
-            app.pane = Pane::Sources;
+            app.view.pane = Pane::Sources;
         }
         if ui
-            .selectable_label(app.pane == Pane::Table, "Table")
+            .selectable_label(app.view.pane == Pane::Table, "Table")
             .on_hover_text("The fans as numbers: medians and bands by series and period")
             .clicked()
         {
-            app.pane = Pane::Table;
+            app.view.pane = Pane::Table;
         }
         if app.second.is_some()
             && ui
-                .selectable_label(app.pane == Pane::Difference, "Difference")
+                .selectable_label(app.view.pane == Pane::Difference, "Difference")
                 .on_hover_text("This scenario against the second one, by series and period")
                 .clicked()
         {
-            app.pane = Pane::Difference;
+            app.view.pane = Pane::Difference;
         }
-        if app.pane != Pane::Charts {
+        if app.view.pane != Pane::Charts {
             return;
         }
         ui.separator();
         let find = ui
             .add(
-                egui::TextEdit::singleline(&mut app.grid.filter)
+                egui::TextEdit::singleline(&mut app.view.grid.filter)
                     .hint_text("find a chart")
                     .desired_width(120.0),
             )
             .accessible_name("find a chart");
         if find.changed() {
-            app.grid.page = 0;
+            app.view.grid.page = 0;
         }
         ui.separator();
-        let page = app.grid.page;
+        let page = app.view.grid.page;
         if ui
             .add_enabled(page > 0, egui::Button::new("previous").small())
             .on_hover_text("Page Up")
             .clicked()
         {
-            app.grid.page -= 1;
+            app.view.grid.page -= 1;
         }
         ui.add_sized(
             [80.0, ui.spacing().interact_size.y],
@@ -337,27 +339,27 @@ fn controls(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette, pages: usiz
             .on_hover_text("Page Down")
             .clicked()
         {
-            app.grid.page += 1;
+            app.view.grid.page += 1;
         }
         egui::ComboBox::from_id_salt("charts per page")
-            .selected_text(format!("{} a page", app.grid.per_page))
+            .selected_text(format!("{} a page", app.view.grid.per_page))
             .show_ui(ui, |ui| {
                 for size in PAGE_SIZES {
-                    ui.selectable_value(&mut app.grid.per_page, size, format!("{size} a page"));
+                    ui.selectable_value(&mut app.view.grid.per_page, size, format!("{size} a page"));
                 }
             })
             .response
             .accessible_name("charts per page");
-        if app.view == Subject::Series
+        if app.view.subject == Subject::Series
             && ui
                 .small_button("conditioned first")
                 .on_hover_text("Put the series with pins or corridors at the front")
                 .clicked()
         {
-            app.grid.conditioned_first(&app.doc.file);
+            app.view.grid.conditioned_first(&app.doc.file);
         }
     });
-    if app.pane != Pane::Charts {
+    if app.view.pane != Pane::Charts {
         return;
     }
     let (up, down) = ui.input(|i| {
@@ -368,20 +370,20 @@ fn controls(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette, pages: usiz
     });
     if !ui.ctx().egui_wants_keyboard_input() {
         if up {
-            app.grid.page = app.grid.page.saturating_sub(1);
+            app.view.grid.page = app.view.grid.page.saturating_sub(1);
         }
-        if down && app.grid.page + 1 < pages {
-            app.grid.page += 1;
+        if down && app.view.grid.page + 1 < pages {
+            app.view.grid.page += 1;
         }
     }
     ui.horizontal(|ui| {
-        if app.stale() && app.results.is_some() {
-            let what = if app.results.as_ref().is_some_and(|r| r.without_conditions) {
+        if app.stale() && app.session.results.is_some() {
+            let what = if app.session.results.as_ref().is_some_and(|r| r.without_conditions) {
                 "the greyed fans are the model's forecast without any conditions"
             } else {
                 "the greyed fans are the last that could be drawn"
             };
-            let why = match app.state {
+            let why = match app.session.state {
                 EngineState::Failed => "The engine stopped on an error",
                 _ => "The conditions clash",
             };
@@ -393,7 +395,7 @@ fn controls(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette, pages: usiz
             );
             return;
         }
-        let hint = match app.view {
+        let hint = match app.view.subject {
             Subject::Series => {
                 "drag across future periods: corridor · Ctrl+click: pin · arrows: nudge the selected"
             }
@@ -403,18 +405,20 @@ fn controls(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette, pages: usiz
         };
         ui.add(egui::Label::new(RichText::new(hint).small().color(pal.muted)).truncate());
     });
-    if app.results.is_none() {
+    if app.session.results.is_none() {
         return;
     }
     let second = app.second.as_ref().map(|s| s.name().to_string());
-    let greyed = match app.results.as_ref() {
+    let greyed = match app.session.results.as_ref() {
         Some(r) if r.without_conditions => "without the conditions",
         _ => "last fans drawn",
     };
     let legend = Legend {
-        subject: app.view,
+        subject: app.view.subject,
         stale: app.stale().then_some(greyed),
-        second: second.as_deref().filter(|_| app.view == Subject::Series),
+        second: second
+            .as_deref()
+            .filter(|_| app.view.subject == Subject::Series),
     };
     super::legend::show(ui, &legend, pal);
 }

@@ -29,23 +29,23 @@ pub mod paths_table;
 pub mod second;
 pub mod settings;
 pub mod sources;
+pub mod state;
 pub mod table;
 pub mod worker;
 
-use std::collections::{HashMap, HashSet};
 use std::path::{Path, PathBuf};
 use std::sync::Arc;
 use std::sync::atomic::{AtomicBool, Ordering};
-use std::sync::mpsc::{Receiver, Sender, channel};
+use std::sync::mpsc::channel;
 use std::time::{Duration, Instant};
 
-use chart::ChartMemory;
 use document::Document;
 use files::{Answer, Chores, Dialogs, PathPicker, Purpose};
 use gesture::{ChartAction, CondRef};
-use worker::{EngineState, Job, Message, Results, Sources, Subject};
+use state::{Session, View};
+use worker::{EngineState, Job, Message, Subject};
 
-use crate::checks::{CheckReport, Severity};
+use crate::checks::Severity;
 use crate::scenario::{CorridorSpec, PinSpec, ScenarioFile};
 
 /// Time the window spends draining the worker's messages per frame.
@@ -76,65 +76,21 @@ pub enum AfterSave {
 
 /// The window's state.
 pub struct TiltyardApp {
+    /// The scenario being edited: what is saved and undone.
     pub doc: Document,
+    /// The engine's side: jobs sent, and what came back.
+    pub session: Session,
+    /// How the window shows it all: charts, panes, the selection.
+    pub view: View,
     /// The last problem to show (a failed open or save).
     pub notice: Option<String>,
-    // Worker.
-    jobs: Sender<Job>,
-    messages: Receiver<Message>,
-    generation: u64,
-    cancel: Arc<AtomicBool>,
-    sent: Option<ScenarioFile>,
-    job_started: Instant,
-    // What the worker said for the current generation (results are kept until replaced).
-    pub results: Option<Arc<Results>>,
-    /// The last attribution, and the generation it belongs to (older ones are shown as such).
-    pub sources: Option<(u64, Arc<Sources>)>,
-    /// Each condition's effect on the medians (leave one out), and its generation.
-    pub effects: Option<(u64, Arc<Vec<crate::attribution::leave_one_out::Effect>>)>,
-    /// The attribution view in place of the chart grid, and what it shows.
-    pub sources_view: sources::SourcesView,
-    /// What the centre shows: charts, where the scenario comes from, or the differences.
-    pub pane: grid::Pane,
     /// A briefing pack being written.
     pub export: Option<export::Export>,
     /// A second scenario shown beside the document (read-only), and its fans.
     pub second: Option<second::Second>,
-    pub checks: Option<Box<CheckReport>>,
-    /// How many pins and corridors the scenario had when it was checked (the findings name
-    /// conditions by position, so they colour nothing once the lists change).
-    checked: (usize, usize),
-    pub state: EngineState,
-    pub model_line: String,
-    pub engine_error: Option<String>,
-    /// Time from the last edit to its first fans (none for a document's first job: that is
-    /// an opening, not an edit).
-    pub first_update: Option<Duration>,
-    /// The job running is an edit's (not a document's first).
-    timing_edit: bool,
     /// The narrative's draft and the conditions it was last checked against.
     pub narrative: narrative::NarrativeState,
-    /// The model settings' window is open.
-    pub settings_open: bool,
-    /// The window title last sent to the desktop.
-    pub title: String,
-    /// What decides the posterior draws ([`worker::model_key`]) of the job sent last, made
-    /// once when it is sent, and of the job behind the checks shown.
-    sent_model: Option<String>,
-    checks_model: Option<String>,
-    // Interface.
-    pub charts: HashMap<(Subject, usize), ChartMemory>,
-    pub hidden: HashSet<String>,
-    /// The chart grid's order, search and page.
-    pub grid: grid::GridView,
-    /// What the series list is narrowed to.
-    pub list_filter: String,
-    pub selected: Option<CondRef>,
-    /// Series charts or shock charts.
-    pub view: Subject,
-    /// Values dragged on charts snap to readable steps.
-    pub snapping: bool,
-    pub enlarged: Option<(Subject, usize)>,
+    // The document's life: prompts, dialogs, saves, recovery.
     pub prompt: Option<Prompt>,
     dialogs: Dialogs,
     chores: Chores,
@@ -193,44 +149,15 @@ impl TiltyardApp {
             Err(e) => Some(format!("the engine thread could not start: {e}")),
         };
         let prompt = files::newer_recovery(path).map(|r| Prompt::Recover { edits: Box::new(r) });
-        let grid_view = grid::GridView::for_file(&doc.file);
         let narrative = narrative::NarrativeState::for_file(&doc.file);
         TiltyardApp {
-            grid: grid_view,
+            session: Session::new(jobs, messages),
+            view: View::for_file(&doc.file),
             doc,
             notice,
-            jobs,
-            messages,
-            generation: 0,
-            cancel: Arc::new(AtomicBool::new(false)),
-            sent: None,
-            job_started: Instant::now(),
-            results: None,
-            sources: None,
-            effects: None,
-            sources_view: sources::SourcesView::default(),
             second: None,
             export: None,
-            pane: grid::Pane::Charts,
-            checks: None,
-            checked: (0, 0),
-            state: EngineState::Idle,
-            model_line: String::new(),
-            engine_error: None,
-            first_update: None,
-            timing_edit: false,
-            sent_model: None,
-            checks_model: None,
-            title: String::new(),
-            settings_open: false,
             narrative,
-            charts: HashMap::new(),
-            hidden: HashSet::new(),
-            list_filter: String::new(),
-            selected: None,
-            view: Subject::Series,
-            snapping: true,
-            enlarged: None,
             prompt,
             dialogs: Dialogs::new(picker),
             chores: Chores::start(),
@@ -249,12 +176,12 @@ impl TiltyardApp {
 
     /// The generation of the newest job sent.
     pub fn generation(&self) -> u64 {
-        self.generation
+        self.session.generation
     }
 
     /// The scenario as last sent to the engine.
     pub fn sent(&self) -> Option<&ScenarioFile> {
-        self.sent.as_ref()
+        self.session.sent.as_ref()
     }
 
     /// A series as people name it (its label in the scenario file, else its column name).
@@ -282,42 +209,42 @@ impl TiltyardApp {
     /// model, data, transforms, horizon, draws, seed or stationarity filter changed): they are
     /// greyed and said to be old.
     pub fn checks_of_another_model(&self) -> bool {
-        self.checks.is_some() && self.checks_model != self.sent_model
+        self.session.checks.is_some() && self.session.checks_model != self.session.sent_model
     }
 
     /// True while the worker has not finished the newest job.
     pub fn busy(&self) -> bool {
-        self.sent.as_ref() != Some(&self.doc.file)
+        self.session.sent.as_ref() != Some(&self.doc.file)
             || !matches!(
-                self.state,
+                self.session.state,
                 EngineState::Done { .. } | EngineState::Clashing | EngineState::Failed
             )
     }
 
     /// Send the scenario to the worker if it changed since the last job.
     fn dispatch(&mut self) {
-        if self.sent.as_ref() == Some(&self.doc.file) {
+        if self.session.sent.as_ref() == Some(&self.doc.file) {
             return;
         }
-        self.cancel.store(true, Ordering::Relaxed);
-        self.cancel = Arc::new(AtomicBool::new(false));
-        self.generation += 1;
-        self.job_started = Instant::now();
-        self.first_update = None;
-        self.timing_edit = self.sent.is_some();
-        self.engine_error = None;
+        self.session.cancel.store(true, Ordering::Relaxed);
+        self.session.cancel = Arc::new(AtomicBool::new(false));
+        self.session.generation += 1;
+        self.session.job_started = Instant::now();
+        self.session.first_update = None;
+        self.session.timing_edit = self.session.sent.is_some();
+        self.session.engine_error = None;
         // Until the worker reports on the new job, the old job's state no longer applies.
-        self.state = EngineState::Idle;
+        self.session.state = EngineState::Idle;
         let job = Job {
-            generation: self.generation,
+            generation: self.session.generation,
             file: self.doc.file.clone(),
             path: self.doc.path.clone(),
-            cancel: self.cancel.clone(),
+            cancel: self.session.cancel.clone(),
         };
-        self.sent = Some(self.doc.file.clone());
-        self.sent_model = Some(worker::model_key(&self.doc.file));
-        if self.jobs.send(job).is_err() {
-            self.engine_error =
+        self.session.sent = Some(self.doc.file.clone());
+        self.session.sent_model = Some(worker::model_key(&self.doc.file));
+        if self.session.jobs.send(job).is_err() {
+            self.session.engine_error =
                 Some("the engine thread has stopped; save your work and restart".into());
         }
     }
@@ -377,34 +304,48 @@ impl TiltyardApp {
         }
         let start = Instant::now();
         while start.elapsed() < DRAIN_BUDGET {
-            let Ok(message) = self.messages.try_recv() else {
+            let Ok(message) = self.session.messages.try_recv() else {
                 break;
             };
             match message {
-                Message::State(g, s) if g == self.generation => self.state = s,
-                Message::Model(g, line) if g == self.generation => self.model_line = line,
-                Message::Checks(g, report) if g == self.generation => {
+                Message::State(g, s) if g == self.session.generation => self.session.state = s,
+                Message::Model(g, line) if g == self.session.generation => {
+                    self.session.model_line = line
+                }
+                Message::Checks(g, report) if g == self.session.generation => {
                     // The checks are of the scenario last sent (the newest generation).
-                    if let Some(f) = &self.sent {
-                        self.checked = (f.pins.len(), f.corridors.len());
+                    if let Some(f) = &self.session.sent {
+                        self.session.checked = (f.pins.len(), f.corridors.len());
                     }
-                    self.checks = Some(report);
-                    self.checks_model = self.sent_model.clone();
+                    self.session.checks = Some(report);
+                    self.session.checks_model = self.session.sent_model.clone();
                 }
                 // Fans without the conditions only stand in for having none at all.
                 Message::Results(g, r)
-                    if g == self.generation
+                    if g == self.session.generation
                         && !(r.without_conditions
-                            && self.results.as_ref().is_some_and(|x| !x.without_conditions)) =>
+                            && self
+                                .session
+                                .results
+                                .as_ref()
+                                .is_some_and(|x| !x.without_conditions)) =>
                 {
-                    if self.timing_edit {
-                        self.first_update.get_or_insert(self.job_started.elapsed());
+                    if self.session.timing_edit {
+                        self.session
+                            .first_update
+                            .get_or_insert(self.session.job_started.elapsed());
                     }
-                    self.results = Some(r);
+                    self.session.results = Some(r);
                 }
-                Message::Sources(g, s) if g == self.generation => self.sources = Some((g, s)),
-                Message::LeaveOneOut(g, e) if g == self.generation => self.effects = Some((g, e)),
-                Message::Failed(g, text) if g == self.generation => self.engine_error = Some(text),
+                Message::Sources(g, s) if g == self.session.generation => {
+                    self.session.sources = Some((g, s))
+                }
+                Message::LeaveOneOut(g, e) if g == self.session.generation => {
+                    self.session.effects = Some((g, e))
+                }
+                Message::Failed(g, text) if g == self.session.generation => {
+                    self.session.engine_error = Some(text)
+                }
                 _ => {}
             }
         }
@@ -413,9 +354,9 @@ impl TiltyardApp {
     /// The status colour of a condition from the checks.
     pub fn status_of(&self, cref: CondRef) -> Option<Severity> {
         let field = cref.field();
-        let checks = self.checks.as_ref()?;
+        let checks = self.session.checks.as_ref()?;
         let f = &self.doc.file;
-        if self.checked != (f.pins.len(), f.corridors.len()) {
+        if self.session.checked != (f.pins.len(), f.corridors.len()) {
             return None;
         }
         let mut worst = None;
@@ -435,7 +376,10 @@ impl TiltyardApp {
 
     /// True when the shown fans are from before a clash or a failure.
     pub fn stale(&self) -> bool {
-        matches!(self.state, EngineState::Clashing | EngineState::Failed)
+        matches!(
+            self.session.state,
+            EngineState::Clashing | EngineState::Failed
+        )
     }
 
     /// True while a file dialog is up (the window waits for it, without blocking).
@@ -445,7 +389,7 @@ impl TiltyardApp {
 
     /// True while a handle or a new corridor is being dragged on some chart.
     pub fn dragging(&self) -> bool {
-        self.charts.values().any(|m| m.drag.is_some())
+        self.view.charts.values().any(|m| m.drag.is_some())
     }
 
     /// Apply an action of the chart of series or shock `name`: edits go to the document (one
@@ -454,7 +398,7 @@ impl TiltyardApp {
         match action {
             ChartAction::BeginGesture => self.doc.begin_gesture(),
             ChartAction::EndGesture => self.doc.end_gesture(),
-            ChartAction::Select(s) => self.selected = s,
+            ChartAction::Select(s) => self.view.selected = s,
             ChartAction::Remove(cref) => self.remove(cref),
             ChartAction::Enlarge => {
                 let i = self
@@ -464,14 +408,14 @@ impl TiltyardApp {
                     .iter()
                     .position(|s| s.name == name)
                     .map(|i| (subject, i));
-                self.enlarged = if self.enlarged == i { None } else { i };
+                self.view.enlarged = if self.view.enlarged == i { None } else { i };
             }
             edit => {
                 let mut select = None;
                 self.doc
                     .edit(|f| select = edits::apply(f, subject, name, edit));
                 if select.is_some() {
-                    self.selected = select;
+                    self.view.selected = select;
                 }
             }
         }
@@ -480,13 +424,13 @@ impl TiltyardApp {
     /// Add a pin (one undo step) and select it.
     pub fn add_pin(&mut self, pin: PinSpec) {
         self.doc.edit(|f| f.pins.push(pin));
-        self.selected = Some(CondRef::Pin(self.doc.file.pins.len() - 1));
+        self.view.selected = Some(CondRef::Pin(self.doc.file.pins.len() - 1));
     }
 
     /// Add a corridor (one undo step) and select it.
     pub fn add_corridor(&mut self, corridor: CorridorSpec) {
         self.doc.edit(|f| f.corridors.push(corridor));
-        self.selected = Some(CondRef::Corridor(self.doc.file.corridors.len() - 1));
+        self.view.selected = Some(CondRef::Corridor(self.doc.file.corridors.len() - 1));
     }
 
     /// Remove a condition (one undo step).
@@ -500,7 +444,7 @@ impl TiltyardApp {
             }
             _ => {}
         });
-        self.selected = None;
+        self.view.selected = None;
     }
 
     fn shortcuts(&mut self, ctx: &egui::Context) {
@@ -547,22 +491,22 @@ impl TiltyardApp {
         // goes back to all.
         let (enter, escape) = ctx.input(|i| (plain(i, Key::Enter), plain(i, Key::Escape)));
         if enter % 2 == 1
-            && let Some(chart) = self.selected.and_then(|c| self.chart_of(c))
+            && let Some(chart) = self.view.selected.and_then(|c| self.chart_of(c))
         {
-            self.view = chart.0;
-            self.enlarged = if self.enlarged == Some(chart) {
+            self.view.subject = chart.0;
+            self.view.enlarged = if self.view.enlarged == Some(chart) {
                 None
             } else {
                 Some(chart)
             };
         }
         if escape > 0 {
-            self.enlarged = None;
+            self.view.enlarged = None;
         }
         if toggle % 2 == 1 {
-            self.snapping = !self.snapping;
+            self.view.snapping = !self.view.snapping;
         }
-        if let Some(cref) = self.selected {
+        if let Some(cref) = self.view.selected {
             let steps = i32::try_from(up - down).unwrap_or(0);
             let periods = right - left;
             if steps != 0 || periods != 0 {
@@ -578,7 +522,7 @@ impl TiltyardApp {
         if do_save {
             self.save(None);
         }
-        if delete && let Some(cref) = self.selected {
+        if delete && let Some(cref) = self.view.selected {
             self.remove(cref);
         }
     }
@@ -604,7 +548,7 @@ impl TiltyardApp {
     /// Move a condition by `steps` of its chart's snapping step (a corridor's bounds all
     /// together) and by `periods` in time, staying within the forecast.
     pub fn nudge(&mut self, cref: CondRef, steps: i32, periods: i64) {
-        let Some(results) = self.results.clone() else {
+        let Some(results) = self.session.results.clone() else {
             return;
         };
         let f = &self.doc.file;
@@ -623,7 +567,7 @@ impl TiltyardApp {
         };
         let step = chart
             .filter(|_| same_units)
-            .and_then(|c| self.charts.get(&c))
+            .and_then(|c| self.view.charts.get(&c))
             .map(|m| m.step)
             .filter(|&s| s > 0.0)
             .unwrap_or_else(|| chart::snap_step(5.0 * units.map_or(1.0, |u| u.1.max(1.0))));
@@ -808,25 +752,25 @@ impl TiltyardApp {
         self.after_save_as = None;
         // The engine starts afresh on the new document, even if its file equals the last one
         // sent (its dataset may sit elsewhere).
-        self.sent = None;
-        self.sent_model = None;
-        self.state = EngineState::Idle;
-        self.model_line.clear();
-        self.engine_error = None;
-        self.first_update = None;
-        self.selected = None;
-        self.enlarged = None;
-        self.results = None;
-        self.sources = None;
-        self.effects = None;
+        self.session.sent = None;
+        self.session.sent_model = None;
+        self.session.state = EngineState::Idle;
+        self.session.model_line.clear();
+        self.session.engine_error = None;
+        self.session.first_update = None;
+        self.view.selected = None;
+        self.view.enlarged = None;
+        self.session.results = None;
+        self.session.sources = None;
+        self.session.effects = None;
         self.second = None;
-        self.pane = grid::Pane::Charts;
-        self.checks = None;
+        self.view.pane = grid::Pane::Charts;
+        self.session.checks = None;
         self.notice = None;
-        self.charts.clear();
-        self.hidden.clear();
-        self.grid = grid::GridView::for_file(&self.doc.file);
-        self.list_filter.clear();
+        self.view.charts.clear();
+        self.view.hidden.clear();
+        self.view.grid = grid::GridView::for_file(&self.doc.file);
+        self.view.list_filter.clear();
     }
 
     /// Let the unsaved edits go: on close at once, otherwise once the next scenario is there.
@@ -872,7 +816,7 @@ impl TiltyardApp {
                     ));
                 }
                 Some(Answer::ExportTable(p)) => {
-                    if let Some(r) = &self.results {
+                    if let Some(r) = &self.session.results {
                         self.chores.write(p, paths_table::csv_text(r));
                     }
                 }

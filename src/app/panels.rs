@@ -151,7 +151,7 @@ fn top_bar(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
             egui::Label::new(RichText::new(short_path(&app.doc.path)).color(pal.muted)).truncate(),
         )
         .on_hover_text(app.doc.path.display().to_string());
-        let (text, colour) = engine_text(&app.state, pal);
+        let (text, colour) = engine_text(&app.session.state, pal);
         ui.add_sized(
             [260.0, ui.spacing().interact_size.y],
             egui::Label::new(RichText::new(text).color(colour).strong()).truncate(),
@@ -161,14 +161,17 @@ fn top_bar(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
         ui.with_layout(egui::Layout::right_to_left(egui::Align::Center), |ui| {
             theme_switch(ui);
             ui.separator();
-            ui.add(egui::Label::new(RichText::new(&app.model_line).color(pal.muted)).truncate());
+            ui.add(
+                egui::Label::new(RichText::new(&app.session.model_line).color(pal.muted))
+                    .truncate(),
+            );
         });
     });
     super::narrative::show(ui, app, pal);
     if let Some(n) = &app.notice {
         ui.colored_label(pal.clash, n);
     }
-    if let Some(e) = &app.engine_error {
+    if let Some(e) = &app.session.engine_error {
         ui.colored_label(pal.clash, e);
     }
 }
@@ -194,10 +197,10 @@ fn window_title(ui: &egui::Ui, app: &mut TiltyardApp, state: &str) {
         app.doc.file.name,
         short_path(&app.doc.path)
     );
-    if app.title != title {
+    if app.view.title != title {
         ui.ctx()
             .send_viewport_cmd(egui::ViewportCommand::Title(title.clone()));
-        app.title = title;
+        app.view.title = title;
     }
 }
 
@@ -251,7 +254,7 @@ fn engine_text(state: &EngineState, pal: &Palette) -> (String, Color32) {
 
 fn footer(ui: &mut egui::Ui, app: &TiltyardApp, pal: &Palette) {
     ui.horizontal_wrapped(|ui| {
-        if let Some(r) = &app.results {
+        if let Some(r) = &app.session.results {
             let what = if r.without_conditions {
                 "forecast without the conditions, at the posterior mean".to_string()
             } else if r.preview {
@@ -282,12 +285,12 @@ fn footer(ui: &mut egui::Ui, app: &TiltyardApp, pal: &Palette) {
         }
         ui.label(format!("seed {}", app.doc.file.seed));
         ui.separator();
-        ui.label(if app.snapping {
+        ui.label(if app.view.snapping {
             "values snap (G: off)"
         } else {
             "free values (G: snap)"
         });
-        if let Some(t) = app.first_update {
+        if let Some(t) = app.session.first_update {
             ui.separator();
             ui.label(format!(
                 "first fans {:.0} ms after the edit",
@@ -301,12 +304,12 @@ fn footer(ui: &mut egui::Ui, app: &TiltyardApp, pal: &Palette) {
 fn series_list(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     ui.strong("Series");
     ui.add(
-        egui::TextEdit::singleline(&mut app.list_filter)
+        egui::TextEdit::singleline(&mut app.view.list_filter)
             .hint_text("find a series")
             .desired_width(f32::INFINITY),
     )
     .accessible_name("find a series");
-    let wanted = app.list_filter.to_lowercase();
+    let wanted = app.view.list_filter.to_lowercase();
     let names: Vec<(String, Units)> = app
         .doc
         .file
@@ -327,7 +330,7 @@ fn series_list(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
             .clicked()
         {
             for (name, _) in &names {
-                app.hidden.remove(name);
+                app.view.hidden.remove(name);
             }
         }
         if ui
@@ -336,7 +339,7 @@ fn series_list(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
             .clicked()
         {
             for (name, _) in &names {
-                app.hidden.insert(name.clone());
+                app.view.hidden.insert(name.clone());
             }
         }
     });
@@ -345,12 +348,12 @@ fn series_list(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     }
     for (name, units) in &names {
         ui.horizontal(|ui| {
-            let mut shown = !app.hidden.contains(name);
+            let mut shown = !app.view.hidden.contains(name);
             if ui.checkbox(&mut shown, app.shown(name)).changed() {
                 if shown {
-                    app.hidden.remove(name);
+                    app.view.hidden.remove(name);
                 } else {
-                    app.hidden.insert(name.clone());
+                    app.view.hidden.insert(name.clone());
                 }
             }
             ui.label(
@@ -479,8 +482,8 @@ pub(super) fn shock_order(app: &TiltyardApp) -> Vec<String> {
 
 fn checks(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     ui.strong("Checks");
-    let Some(report) = app.checks.clone() else {
-        let text = match app.state {
+    let Some(report) = app.session.checks.clone() else {
+        let text = match app.session.state {
             EngineState::Failed => "none: the engine stopped before it could check (see above)",
             _ => "waiting for the engine…",
         };
@@ -491,7 +494,7 @@ fn checks(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     // and said so.
     let old = app.checks_of_another_model();
     if old {
-        let text = match app.state {
+        let text = match app.session.state {
             EngineState::Failed => {
                 "the model could not be run with the changed settings: these checks are from before"
             }
@@ -547,7 +550,7 @@ fn checks(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
             .on_hover_text("Click to select the first condition named here")
             .clicked();
         if clicked {
-            app.selected = f.fields.iter().find_map(|field| parse_field(field));
+            app.view.selected = f.fields.iter().find_map(|field| parse_field(field));
         }
     }
     if let Some(c) = &report.corridors {

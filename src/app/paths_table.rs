@@ -44,7 +44,7 @@ pub fn csv_text(results: &Results) -> String {
 
 /// The table, with Copy and Save buttons.
 pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
-    let Some(results) = app.results.clone() else {
+    let Some(results) = app.session.results.clone() else {
         ui.label(
             RichText::new("The table fills in as soon as the engine has the first draws.")
                 .color(pal.muted),
@@ -72,7 +72,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     egui::ScrollArea::both()
         .id_salt("paths table")
         .show(ui, |ui| {
-            if let Some((_, sources)) = &app.sources {
+            if let Some((_, sources)) = &app.session.sources {
                 statistics(ui, &sources.statistics, pal);
                 ui.add_space(10.0);
                 ui.strong("Paths by period");

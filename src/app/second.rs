@@ -131,7 +131,7 @@ pub fn panel(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
             stop = true;
         }
     });
-    let other_periods = match (&second.results, &app.results) {
+    let other_periods = match (&second.results, &app.session.results) {
         (Some(r), Some(own)) => r.last != own.last,
         _ => false,
     };
@@ -165,7 +165,7 @@ pub fn panel(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
 /// The differences by series and period: each scenario's median and 90% band, and the median
 /// of the second minus that of the document.
 pub fn table(ui: &mut egui::Ui, app: &TiltyardApp, pal: &Palette) {
-    let (Some(second), Some(first)) = (&app.second, &app.results) else {
+    let (Some(second), Some(first)) = (&app.second, &app.session.results) else {
         return;
     };
     let Some(other) = second.comparable(first) else {
@@ -184,7 +184,7 @@ pub fn table(ui: &mut egui::Ui, app: &TiltyardApp, pal: &Palette) {
     egui::ScrollArea::both()
         .id_salt("difference table")
         .show(ui, |ui| {
-            if let (Some((_, mine)), Some(theirs)) = (&app.sources, &second.sources) {
+            if let (Some((_, mine)), Some(theirs)) = (&app.session.sources, &second.sources) {
                 statistics(ui, &mine.statistics, &theirs.statistics, pal);
                 ui.add_space(10.0);
                 ui.strong("By period");

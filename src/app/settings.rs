@@ -20,20 +20,20 @@ use crate::scenario::{LargestRoot, ModelSpec};
 /// scrolling past the series.
 pub fn show(ui: &mut Ui, app: &mut TiltyardApp, pal: &Palette) {
     if ui
-        .selectable_label(app.settings_open, "Model settings…")
+        .selectable_label(app.view.settings_open, "Model settings…")
         .on_hover_text("The prior, lags, estimation window, draws, seed, transforms and ordering")
         .clicked()
     {
-        app.settings_open = !app.settings_open;
+        app.view.settings_open = !app.view.settings_open;
     }
-    let mut open = app.settings_open;
+    let mut open = app.view.settings_open;
     egui::Window::new("Model settings")
         .open(&mut open)
         .default_width(360.0)
         .default_pos(ui.max_rect().left_top() + egui::vec2(12.0, 28.0))
         .vscroll(true)
         .show(ui.ctx(), |ui| body(ui, app, pal));
-    app.settings_open &= open;
+    app.view.settings_open &= open;
 }
 
 fn body(ui: &mut Ui, app: &mut TiltyardApp, pal: &Palette) {

@@ -36,8 +36,8 @@ pub fn condition_colour(k: usize) -> Color32 {
 
 /// The colour of a condition in the split by condition, when that split is on show.
 pub fn colour_of(app: &TiltyardApp, cref: super::gesture::CondRef) -> Option<Color32> {
-    let (_, sources) = app.sources.as_ref()?;
-    if !(app.pane == super::grid::Pane::Sources && app.sources_view.by_condition) {
+    let (_, sources) = app.session.sources.as_ref()?;
+    if !(app.view.pane == super::grid::Pane::Sources && app.view.sources_view.by_condition) {
         return None;
     }
     let field = cref.field();
@@ -126,7 +126,7 @@ fn parts(
 pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     let names: Vec<String> = app.doc.file.series.iter().map(|s| s.name.clone()).collect();
     let shown: Vec<String> = names.iter().map(|n| app.shown(n)).collect();
-    let Some((generation, sources)) = app.sources.clone() else {
+    let Some((generation, sources)) = app.session.sources.clone() else {
         ui.label(
             RichText::new(
                 "The split appears here once the engine has all the posterior draws of the scenario.",
@@ -142,8 +142,8 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
         return;
     }
     let outdated = generation != app.generation() || app.busy();
-    let view = &mut app.sources_view;
-    let first = app.grid.order.first().cloned().unwrap_or_default();
+    let view = &mut app.view.sources_view;
+    let first = app.view.grid.order.first().cloned().unwrap_or_default();
     let chosen = view
         .series
         .clone()
@@ -189,7 +189,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     let list = parts(&sources, &shown, i, by_condition, pal);
     let a = &sources.attribution;
     let total = series_part(a.n, &sources.units[i].0, &a.total, i);
-    let labels: Vec<String> = match &app.results {
+    let labels: Vec<String> = match &app.session.results {
         Some(r) => (1..=a.h)
             .map(|t| r.label(t as f64).unwrap_or("").to_string())
             .collect(),
@@ -206,7 +206,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
 fn effects(ui: &mut egui::Ui, app: &TiltyardApp, i: usize, labels: &[String], pal: &Palette) {
     ui.add_space(8.0);
     ui.strong("If one condition were switched off");
-    let Some((generation, effects)) = &app.effects else {
+    let Some((generation, effects)) = &app.session.effects else {
         ui.label(
             RichText::new("Being measured in the background, after the draws…")
                 .small()

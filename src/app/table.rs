@@ -62,10 +62,11 @@ pub fn conditions(ui: &mut Ui, app: &mut TiltyardApp, pal: &Palette) {
         .map(|s| (s.name.clone(), s.shown().to_string()))
         .collect();
     let per_year = app
+        .session
         .results
         .as_ref()
         .map_or(4, |r| r.last.freq.periods_per_year());
-    let freq = app.results.as_ref().map(|r| r.last.freq);
+    let freq = app.session.results.as_ref().map(|r| r.last.freq);
     let mut edits = Vec::new();
     for (k, pin) in file.pins.iter().enumerate() {
         let cref = CondRef::Pin(k);
@@ -101,10 +102,14 @@ fn row_frame(
     let stroke_colour = match status {
         Some(Severity::Clash) => pal.clash,
         Some(Severity::Strain) => pal.strain,
-        None if app.selected == Some(cref) => ui.visuals().selection.bg_fill,
+        None if app.view.selected == Some(cref) => ui.visuals().selection.bg_fill,
         None => ui.visuals().widgets.noninteractive.bg_stroke.color,
     };
-    let width = if app.selected == Some(cref) { 2.0 } else { 1.0 };
+    let width = if app.view.selected == Some(cref) {
+        2.0
+    } else {
+        1.0
+    };
     let frame = egui::Frame::group(ui.style())
         .stroke(egui::Stroke::new(width, stroke_colour))
         .show(ui, |ui| {
@@ -522,7 +527,7 @@ fn apply_one(app: &mut TiltyardApp, e: Edit) {
         }),
         Edit::Corridor(k, mut c) => {
             // Per-period bounds follow a typed change of the first or last period.
-            if let (Some(old), Some(r)) = (app.doc.file.corridors.get(k), &app.results) {
+            if let (Some(old), Some(r)) = (app.doc.file.corridors.get(k), &app.session.results) {
                 let at = |label: &str| super::chart::horizon(r, label);
                 let ends = [
                     (false, old.from.clone(), c.from.clone()),
@@ -543,10 +548,11 @@ fn apply_one(app: &mut TiltyardApp, e: Edit) {
             })
         }
         Edit::Remove(cref) => app.remove(cref),
-        Edit::Select(cref) => app.selected = Some(cref),
+        Edit::Select(cref) => app.view.selected = Some(cref),
         Edit::AddPin => {
             let first = first_future(app);
             let median = app
+                .session
                 .results
                 .as_ref()
                 .and_then(|r| r.series.first())
@@ -565,7 +571,8 @@ fn apply_one(app: &mut TiltyardApp, e: Edit) {
 
 /// The first forecast period's label, if the engine has said what it is.
 fn first_future(app: &TiltyardApp) -> String {
-    app.results
+    app.session
+        .results
         .as_ref()
         .and_then(|r| r.label(1.0).map(str::to_string))
         .unwrap_or_default()
