@@ -14,7 +14,7 @@ use super::gesture::{ChartAction, CondRef};
 use super::legend::Legend;
 use super::palette::Palette;
 use super::panels::{severity_colour, shock_order, units_box};
-use super::worker::{EngineState, Subject};
+use super::worker::{EngineState, Results, SeriesView, Subject};
 use crate::scenario::ScenarioFile;
 
 /// What the centre of the window shows.
@@ -177,88 +177,19 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     } else {
         ((width / 360.0).floor() as usize).clamp(1, 4)
     };
-    // A few charts share the height there is (up to a comfortable size); many scroll.
-    let rows = shown.len().div_ceil(columns);
-    let fitted = if enlarged.is_some() {
-        (ui.available_height() - 60.0).max(240.0)
-    } else {
-        let per_row = ui.available_height() / rows as f32 - CHART_CHROME;
-        per_row.clamp(190.0, 420.0)
-    };
-    let height = match app.view.grid.height {
-        Some(kept) if app.dragging() => kept,
-        _ => fitted,
-    };
-    app.view.grid.height = Some(height);
-    let any_drag = app.dragging();
+    let height = chart_height(ui, app, shown.len().div_ceil(columns), enlarged.is_some());
     let mut actions = Vec::new();
     egui::ScrollArea::vertical().show(ui, |ui| {
         for row in shown.chunks(columns) {
             ui.columns(columns, |cols| {
                 for (col, &i) in cols.iter_mut().zip(row) {
-                    let view = &views[i];
-                    let mut refit = false;
-                    col.horizontal(|ui| {
-                        match subject {
-                            Subject::Series => {
-                                ui.strong(app.shown(&view.name));
-                                units_box(ui, app, i, &view.name);
-                            }
-                            Subject::Shock => {
-                                ui.strong(format!("{} shock", app.shown(&view.name)));
-                            }
-                        }
-                        let label = if enlarged == Some(i) {
-                            "back to all"
-                        } else {
-                            "enlarge"
-                        };
-                        if ui.small_button(label).clicked() {
-                            actions.push((view.name.clone(), ChartAction::Enlarge));
-                        }
-                        refit = ui
-                            .small_button("re-fit")
-                            .on_hover_text(
-                                "Fit the value range to what the chart holds now (it otherwise \
-                                 stays put as the fans update, and only widens)",
-                            )
-                            .clicked();
-                    });
-                    let mut memory = app.view.charts.remove(&(subject, i)).unwrap_or_default();
-                    if refit {
-                        memory.range = None;
-                    }
-                    let status = |r: CondRef| app.status_of(r).map(|s| severity_colour(pal, s));
-                    let measure = match subject {
-                        Subject::Series => app.measure(&view.name, view.units),
-                        Subject::Shock => "standard deviations".to_string(),
-                    };
-                    let input = ChartInput {
-                        any_drag,
+                    let place = Place {
                         index: i,
-                        measure: &measure,
-                        view,
-                        results: &results,
-                        file: &app.doc.file,
-                        stale: app.stale(),
-                        selected: app.view.selected,
-                        status: &status,
                         height,
-                        palette: pal,
-                        snapping: app.view.snapping,
-                        second: (subject == Subject::Series)
-                            .then(|| {
-                                app.second
-                                    .as_ref()
-                                    .and_then(|s| s.comparable(&results))
-                                    .and_then(|r| r.series.iter().find(|v| v.name == view.name))
-                            })
-                            .flatten(),
+                        enlarged: enlarged == Some(i),
                     };
-                    for a in chart::show(col, &input, &mut memory) {
-                        actions.push((view.name.clone(), a));
-                    }
-                    app.view.charts.insert((subject, i), memory);
+                    let done = one_chart(col, app, pal, &results, &views[i], place);
+                    actions.extend(done.into_iter().map(|a| (views[i].name.clone(), a)));
                 }
             });
             ui.add_space(6.0);
@@ -269,99 +200,217 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     }
 }
 
+/// The height of each chart: a few charts share the height there is (up to a comfortable
+/// size), many scroll; kept during a drag.
+fn chart_height(ui: &egui::Ui, app: &mut TiltyardApp, rows: usize, enlarged: bool) -> f32 {
+    let fitted = if enlarged {
+        (ui.available_height() - 60.0).max(240.0)
+    } else {
+        let per_row = ui.available_height() / rows as f32 - CHART_CHROME;
+        per_row.clamp(190.0, 420.0)
+    };
+    let height = match app.view.grid.height {
+        Some(kept) if app.dragging() => kept,
+        _ => fitted,
+    };
+    app.view.grid.height = Some(height);
+    height
+}
+
+/// Where a chart sits in the grid.
+#[derive(Clone, Copy)]
+struct Place {
+    index: usize,
+    height: f32,
+    enlarged: bool,
+}
+
+/// One chart with its header (name, units, enlarge, re-fit); the actions it asks for.
+fn one_chart(
+    col: &mut egui::Ui,
+    app: &mut TiltyardApp,
+    pal: &Palette,
+    results: &Results,
+    view: &SeriesView,
+    place: Place,
+) -> Vec<ChartAction> {
+    let (subject, i) = (app.view.subject, place.index);
+    let mut actions = Vec::new();
+    let mut refit = false;
+    col.horizontal(|ui| {
+        match subject {
+            Subject::Series => {
+                ui.strong(app.shown(&view.name));
+                units_box(ui, app, i, &view.name);
+            }
+            Subject::Shock => {
+                ui.strong(format!("{} shock", app.shown(&view.name)));
+            }
+        }
+        let label = if place.enlarged {
+            "back to all"
+        } else {
+            "enlarge"
+        };
+        if ui.small_button(label).clicked() {
+            actions.push(ChartAction::Enlarge);
+        }
+        refit = ui
+            .small_button("re-fit")
+            .on_hover_text(
+                "Fit the value range to what the chart holds now (it otherwise \
+                 stays put as the fans update, and only widens)",
+            )
+            .clicked();
+    });
+    let mut memory = app.view.charts.remove(&(subject, i)).unwrap_or_default();
+    if refit {
+        memory.range = None;
+    }
+    let status = |r: CondRef| app.status_of(r).map(|s| severity_colour(pal, s));
+    let measure = match subject {
+        Subject::Series => app.measure(&view.name, view.units),
+        Subject::Shock => "standard deviations".to_string(),
+    };
+    let second = app
+        .second
+        .as_ref()
+        .filter(|_| subject == Subject::Series)
+        .and_then(|s| s.comparable(results))
+        .and_then(|r| r.series.iter().find(|v| v.name == view.name));
+    let input = ChartInput {
+        any_drag: app.dragging(),
+        index: i,
+        measure: &measure,
+        view,
+        results,
+        file: &app.doc.file,
+        stale: app.stale(),
+        selected: app.view.selected,
+        status: &status,
+        height: place.height,
+        palette: pal,
+        snapping: app.view.snapping,
+        second,
+    };
+    actions.extend(chart::show(col, &input, &mut memory));
+    app.view.charts.insert((subject, i), memory);
+    actions
+}
+
 /// The view switch, the search and the pager in one row; then why the fans are greyed, or
 /// how to draw on them, in a second row of its own.
 fn controls(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette, pages: usize) {
     // Wrapped when the panel is narrow; the page label has a fixed width, so the row keeps
     // its height as pages turn.
     ui.horizontal_wrapped(|ui| {
-        let charts = app.view.pane == Pane::Charts;
-        for (subject, label) in [
-            (Subject::Series, "Series paths"),
-            (Subject::Shock, "Structural shocks"),
-        ] {
-            if ui.selectable_label(charts && app.view.subject == subject, label).clicked() {
-                app.view.subject = subject;
-                app.view.pane = Pane::Charts;
-            }
-        }
-        if ui
-            .selectable_label(app.view.pane == Pane::Sources, "Where it comes from")
-            .on_hover_text("The scenario's move away from the unconditional forecast, split by structural shock or by condition")
-            .clicked()
-        {
-            app.view.pane = Pane::Sources;
-        }
-        if ui
-            .selectable_label(app.view.pane == Pane::Table, "Table")
-            .on_hover_text("The fans as numbers: medians and bands by series and period")
-            .clicked()
-        {
-            app.view.pane = Pane::Table;
-        }
-        if app.second.is_some()
-            && ui
-                .selectable_label(app.view.pane == Pane::Difference, "Difference")
-                .on_hover_text("This scenario against the second one, by series and period")
-                .clicked()
-        {
-            app.view.pane = Pane::Difference;
-        }
-        if app.view.pane != Pane::Charts {
-            return;
-        }
-        ui.separator();
-        let find = ui
-            .add(
-                egui::TextEdit::singleline(&mut app.view.grid.filter)
-                    .hint_text("find a chart")
-                    .desired_width(120.0),
-            )
-            .accessible_name("find a chart");
-        if find.changed() {
-            app.view.grid.page = 0;
-        }
-        ui.separator();
-        let page = app.view.grid.page;
-        if ui
-            .add_enabled(page > 0, egui::Button::new("previous").small())
-            .on_hover_text("Page Up")
-            .clicked()
-        {
-            app.view.grid.page -= 1;
-        }
-        ui.add_sized(
-            [80.0, ui.spacing().interact_size.y],
-            egui::Label::new(format!("page {} of {pages}", page + 1)),
-        );
-        if ui
-            .add_enabled(page + 1 < pages, egui::Button::new("next").small())
-            .on_hover_text("Page Down")
-            .clicked()
-        {
-            app.view.grid.page += 1;
-        }
-        egui::ComboBox::from_id_salt("charts per page")
-            .selected_text(format!("{} a page", app.view.grid.per_page))
-            .show_ui(ui, |ui| {
-                for size in PAGE_SIZES {
-                    ui.selectable_value(&mut app.view.grid.per_page, size, format!("{size} a page"));
-                }
-            })
-            .response
-            .accessible_name("charts per page");
-        if app.view.subject == Subject::Series
-            && ui
-                .small_button("conditioned first")
-                .on_hover_text("Put the series with pins or corridors at the front")
-                .clicked()
-        {
-            app.view.grid.conditioned_first(&app.doc.file);
+        pane_tabs(ui, app);
+        if app.view.pane == Pane::Charts {
+            page_controls(ui, app, pages);
         }
     });
     if app.view.pane != Pane::Charts {
         return;
     }
+    page_keys(ui, app, pages);
+    hint_row(ui, app, pal);
+    legend_row(ui, app, pal);
+}
+
+/// The views of the centre: series or shock charts, where it comes from, the table, the
+/// difference from a second scenario.
+fn pane_tabs(ui: &mut egui::Ui, app: &mut TiltyardApp) {
+    let charts = app.view.pane == Pane::Charts;
+    for (subject, label) in [
+        (Subject::Series, "Series paths"),
+        (Subject::Shock, "Structural shocks"),
+    ] {
+        if ui
+            .selectable_label(charts && app.view.subject == subject, label)
+            .clicked()
+        {
+            app.view.subject = subject;
+            app.view.pane = Pane::Charts;
+        }
+    }
+    if ui
+        .selectable_label(app.view.pane == Pane::Sources, "Where it comes from")
+        .on_hover_text("The scenario's move away from the unconditional forecast, split by structural shock or by condition")
+        .clicked()
+    {
+        app.view.pane = Pane::Sources;
+    }
+    if ui
+        .selectable_label(app.view.pane == Pane::Table, "Table")
+        .on_hover_text("The fans as numbers: medians and bands by series and period")
+        .clicked()
+    {
+        app.view.pane = Pane::Table;
+    }
+    if app.second.is_some()
+        && ui
+            .selectable_label(app.view.pane == Pane::Difference, "Difference")
+            .on_hover_text("This scenario against the second one, by series and period")
+            .clicked()
+    {
+        app.view.pane = Pane::Difference;
+    }
+}
+
+/// Search, pages and page size of the chart grid, and "conditioned first".
+fn page_controls(ui: &mut egui::Ui, app: &mut TiltyardApp, pages: usize) {
+    ui.separator();
+    let find = ui
+        .add(
+            egui::TextEdit::singleline(&mut app.view.grid.filter)
+                .hint_text("find a chart")
+                .desired_width(120.0),
+        )
+        .accessible_name("find a chart");
+    if find.changed() {
+        app.view.grid.page = 0;
+    }
+    ui.separator();
+    let page = app.view.grid.page;
+    if ui
+        .add_enabled(page > 0, egui::Button::new("previous").small())
+        .on_hover_text("Page Up")
+        .clicked()
+    {
+        app.view.grid.page -= 1;
+    }
+    ui.add_sized(
+        [80.0, ui.spacing().interact_size.y],
+        egui::Label::new(format!("page {} of {pages}", page + 1)),
+    );
+    if ui
+        .add_enabled(page + 1 < pages, egui::Button::new("next").small())
+        .on_hover_text("Page Down")
+        .clicked()
+    {
+        app.view.grid.page += 1;
+    }
+    egui::ComboBox::from_id_salt("charts per page")
+        .selected_text(format!("{} a page", app.view.grid.per_page))
+        .show_ui(ui, |ui| {
+            for size in PAGE_SIZES {
+                ui.selectable_value(&mut app.view.grid.per_page, size, format!("{size} a page"));
+            }
+        })
+        .response
+        .accessible_name("charts per page");
+    if app.view.subject == Subject::Series
+        && ui
+            .small_button("conditioned first")
+            .on_hover_text("Put the series with pins or corridors at the front")
+            .clicked()
+    {
+        app.view.grid.conditioned_first(&app.doc.file);
+    }
+}
+
+/// Page Up and Page Down turn the pages (unless a text field has the keyboard).
+fn page_keys(ui: &mut egui::Ui, app: &mut TiltyardApp, pages: usize) {
     let (up, down) = ui.input(|i| {
         (
             i.key_pressed(egui::Key::PageUp),
@@ -376,6 +425,10 @@ fn controls(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette, pages: usiz
             app.view.grid.page += 1;
         }
     }
+}
+
+/// One line under the controls: why the fans are greyed, or how to edit on the charts.
+fn hint_row(ui: &mut egui::Ui, app: &TiltyardApp, pal: &Palette) {
     ui.horizontal(|ui| {
         if app.stale() && app.session.results.is_some() {
             let what = if app.session.results.as_ref().is_some_and(|r| r.without_conditions) {
@@ -405,6 +458,10 @@ fn controls(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette, pages: usiz
         };
         ui.add(egui::Label::new(RichText::new(hint).small().color(pal.muted)).truncate());
     });
+}
+
+/// The legend of the charts, once there are fans.
+fn legend_row(ui: &mut egui::Ui, app: &TiltyardApp, pal: &Palette) {
     if app.session.results.is_none() {
         return;
     }

@@ -9,7 +9,7 @@ use super::gesture::CondRef;
 use super::palette::Palette;
 use super::worker::{EngineState, Subject};
 use super::{AfterSave, Prompt, TiltyardApp, table};
-use crate::checks::{Severity, Status};
+use crate::checks::{CheckReport, Severity, Status};
 use crate::report::CAUTION;
 use crate::scenario::Units;
 
@@ -47,6 +47,8 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp) {
                 super::settings::show(ui, app, &pal);
                 ui.separator();
                 series_list(ui, app, &pal);
+                ui.separator();
+                shock_list(ui, app, &pal);
             });
         });
     egui::Panel::right("conditions")
@@ -66,85 +68,106 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp) {
 
 fn top_bar(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     ui.horizontal_wrapped(|ui| {
-        // A long name is cut to fit (whole on hover), so the buttons keep one row.
-        ui.scope(|ui| {
-            ui.set_max_width(430.0);
-            ui.add(
-                egui::Label::new(RichText::new(&app.doc.file.name).heading()).truncate(),
-            )
-            .on_hover_text(&app.doc.file.name);
-        });
-        // The file and its state in a fixed width, so the buttons never move.
-        let (state, colour) = if app.saving {
-            ("saving…", pal.muted)
-        } else if app.doc.untitled {
-            ("not saved yet", pal.strain)
-        } else if app.doc.is_dirty() {
-            ("unsaved changes", pal.strain)
-        } else {
-            ("saved", pal.muted)
-        };
-        ui.add_sized(
-            [110.0, ui.spacing().interact_size.y],
-            egui::Label::new(RichText::new(state).color(colour)),
-        )
-        .on_hover_text(app.doc.path.display().to_string());
-        window_title(ui, app, state);
+        name_and_state(ui, app, pal);
         ui.separator();
-        if ui
-            .button("New")
-            .on_hover_text("A blank scenario on the same data and model")
-            .clicked()
-        {
-            app.ask(AfterSave::New);
-        }
-        if ui
-            .button("New from data…")
-            .on_hover_text("A new scenario on a dataset (CSV) you pick")
-            .clicked()
-        {
-            app.ask(AfterSave::NewFromData);
-        }
-        if ui.button("Open…").clicked() {
-            app.ask(AfterSave::Open);
-        }
-        if ui.button("Save").clicked() {
-            app.save(None);
-        }
-        if ui.button("Save as…").clicked() {
-            app.pick(Purpose::SaveAs);
-        }
-        let exporting = app.export.is_some();
-        if ui
-            .add_enabled(!exporting, egui::Button::new("Export pack…"))
-            .on_hover_text("Write the briefing pack (charts, tables, one page to read or print) into a folder you pick")
-            .clicked()
-        {
-            app.pick(Purpose::ExportPack);
-        }
-        if ui
-            .button("Compare with…")
-            .on_hover_text("Draw a second scenario on the same series beside this one")
-            .clicked()
-        {
-            app.pick(Purpose::Compare);
-        }
-        ui.separator();
-        if ui
-            .add_enabled(app.doc.can_undo(), egui::Button::new("Undo"))
-            .clicked()
-        {
-            app.doc.undo();
-        }
-        if ui
-            .add_enabled(app.doc.can_redo(), egui::Button::new("Redo"))
-            .clicked()
-        {
-            app.doc.redo();
-        }
+        file_buttons(ui, app);
     });
-    // The engine's state in a slot of its own width, so that its changing text never moves
-    // the rest of the window (the charts must not shift under a drag).
+    status_line(ui, app, pal);
+    super::narrative::show(ui, app, pal);
+    if let Some(n) = &app.notice {
+        ui.colored_label(pal.clash, n);
+    }
+    if let Some(e) = &app.session.engine_error {
+        ui.colored_label(pal.clash, e);
+    }
+}
+
+/// The scenario's name (cut to fit, whole on hover) and whether it is saved, in a fixed
+/// width so that the buttons never move; the window title follows.
+fn name_and_state(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
+    // A long name is cut to fit (whole on hover), so the buttons keep one row.
+    ui.scope(|ui| {
+        ui.set_max_width(430.0);
+        ui.add(egui::Label::new(RichText::new(&app.doc.file.name).heading()).truncate())
+            .on_hover_text(&app.doc.file.name);
+    });
+    // The file and its state in a fixed width, so the buttons never move.
+    let (state, colour) = if app.saving {
+        ("saving…", pal.muted)
+    } else if app.doc.untitled {
+        ("not saved yet", pal.strain)
+    } else if app.doc.is_dirty() {
+        ("unsaved changes", pal.strain)
+    } else {
+        ("saved", pal.muted)
+    };
+    ui.add_sized(
+        [110.0, ui.spacing().interact_size.y],
+        egui::Label::new(RichText::new(state).color(colour)),
+    )
+    .on_hover_text(app.doc.path.display().to_string());
+    window_title(ui, app, state);
+}
+
+/// New, open, save, export, compare, undo and redo.
+fn file_buttons(ui: &mut egui::Ui, app: &mut TiltyardApp) {
+    if ui
+        .button("New")
+        .on_hover_text("A blank scenario on the same data and model")
+        .clicked()
+    {
+        app.ask(AfterSave::New);
+    }
+    if ui
+        .button("New from data…")
+        .on_hover_text("A new scenario on a dataset (CSV) you pick")
+        .clicked()
+    {
+        app.ask(AfterSave::NewFromData);
+    }
+    if ui.button("Open…").clicked() {
+        app.ask(AfterSave::Open);
+    }
+    if ui.button("Save").clicked() {
+        app.save(None);
+    }
+    if ui.button("Save as…").clicked() {
+        app.pick(Purpose::SaveAs);
+    }
+    let exporting = app.export.is_some();
+    if ui
+        .add_enabled(!exporting, egui::Button::new("Export pack…"))
+        .on_hover_text("Write the briefing pack (charts, tables, one page to read or print) into a folder you pick")
+        .clicked()
+    {
+        app.pick(Purpose::ExportPack);
+    }
+    if ui
+        .button("Compare with…")
+        .on_hover_text("Draw a second scenario on the same series beside this one")
+        .clicked()
+    {
+        app.pick(Purpose::Compare);
+    }
+    ui.separator();
+    if ui
+        .add_enabled(app.doc.can_undo(), egui::Button::new("Undo"))
+        .clicked()
+    {
+        app.doc.undo();
+    }
+    if ui
+        .add_enabled(app.doc.can_redo(), egui::Button::new("Redo"))
+        .clicked()
+    {
+        app.doc.redo();
+    }
+}
+
+/// The file's short path, the engine's state and the model line, each in a slot of its own
+/// width, so that changing text never moves the rest of the window (the charts must not
+/// shift under a drag).
+fn status_line(ui: &mut egui::Ui, app: &TiltyardApp, pal: &Palette) {
     ui.horizontal(|ui| {
         ui.add_sized(
             [200.0, ui.spacing().interact_size.y],
@@ -167,13 +190,6 @@ fn top_bar(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
             );
         });
     });
-    super::narrative::show(ui, app, pal);
-    if let Some(n) = &app.notice {
-        ui.colored_label(pal.clash, n);
-    }
-    if let Some(e) = &app.session.engine_error {
-        ui.colored_label(pal.clash, e);
-    }
 }
 
 /// The last two parts of a path ("scenarios-demo/adverse.ron"), the way people name a file
@@ -366,7 +382,11 @@ fn series_list(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
             }
         });
     }
-    ui.separator();
+}
+
+/// The shocks in identification order, ticked when they drive the scenario (a change is one
+/// undo step; all ticked means every shock drives).
+fn shock_list(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     ui.strong("Shocks (identification order)");
     ui.label(
         RichText::new(
@@ -528,6 +548,12 @@ fn checks(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
             .small()
             .color(pal.muted),
     );
+    findings(ui, app, &report, pal);
+    readings(ui, &report, pal);
+}
+
+/// Each finding in a frame of its colour; a click selects the first condition it names.
+fn findings(ui: &mut egui::Ui, app: &mut TiltyardApp, report: &CheckReport, pal: &Palette) {
     for f in &report.findings {
         let colour = severity_colour(pal, f.severity);
         let frame = egui::Frame::group(ui.style()).stroke(egui::Stroke::new(1.0, colour));
@@ -553,6 +579,10 @@ fn checks(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
             app.view.selected = f.fields.iter().find_map(|field| parse_field(field));
         }
     }
+}
+
+/// The probabilities and the severity readings under the findings, and the notes.
+fn readings(ui: &mut egui::Ui, report: &CheckReport, pal: &Palette) {
     if let Some(c) = &report.corridors {
         ui.label(format!(
             "Corridors given the pins: probability 10^{:.2} ({}, ±{:.0}%), every shock free",

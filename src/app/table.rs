@@ -409,6 +409,22 @@ fn bound_editor(
     label: &dyn Fn(usize) -> String,
     edits: &mut Vec<Edit>,
 ) -> bool {
+    let mut changed = side(ui, id, bound, periods, edits);
+    if let Some(Bound::Each(list)) = bound {
+        changed |= per_period(ui, id, list, label, edits);
+    }
+    changed
+}
+
+/// A side's first row: open or bounded, the switch between one value and one per period,
+/// and the one value.
+fn side(
+    ui: &mut Ui,
+    id: (&str, usize),
+    bound: &mut Option<Bound>,
+    periods: Option<usize>,
+    edits: &mut Vec<Edit>,
+) -> bool {
     let mut changed = false;
     ui.horizontal(|ui| {
         ui.label(RichText::new(id.0).small());
@@ -449,61 +465,70 @@ fn bound_editor(
             changed |= r.changed();
         }
     });
-    if let Some(Bound::Each(list)) = bound {
-        let values: Vec<f64> = list.iter().flatten().copied().collect();
-        let range = match (values.first(), values.last()) {
-            (Some(a), Some(b)) => format!("{a} … {b}"),
-            _ => "all open".into(),
-        };
-        let header = format!("{} periods, {range}", list.len());
-        egui::CollapsingHeader::new(RichText::new(header).small())
-            .id_salt(("per period", id.0, id.1))
-            .default_open(list.len() <= UNFOLDED_PERIODS)
-            .show(ui, |ui| {
-                egui::Grid::new(("bounds", id.0, id.1))
-                    .num_columns(PERIODS_PER_ROW)
-                    .spacing([10.0, 2.0])
-                    .show(ui, |ui| {
-                        for (i, v) in list.iter_mut().enumerate() {
-                            // A period's label and its value stay together.
-                            ui.horizontal(|ui| {
-                                ui.label(RichText::new(label(i)).small());
-                                match v {
-                                    Some(x) => {
-                                        let r = ui
-                                            .add(
-                                                egui::DragValue::new(x).speed(0.01).max_decimals(4),
-                                            )
-                                            .accessible_name(format!(
-                                                "{} bound, period {}",
-                                                id.0,
-                                                i + 1
-                                            ));
-                                        gesture(&r, edits);
-                                        changed |= r.changed();
-                                    }
-                                    None => {
-                                        if ui
-                                            .small_button("open")
-                                            .on_hover_text(format!(
-                                                "{} is open on this side; click to bound it",
-                                                label(i)
-                                            ))
-                                            .clicked()
-                                        {
-                                            *v = Some(0.0);
-                                            changed = true;
-                                        }
+    changed
+}
+
+/// Per-period bounds, folded when there are many: each period's label beside its value, a
+/// few to a row, an open period as a button that bounds it.
+fn per_period(
+    ui: &mut Ui,
+    id: (&str, usize),
+    list: &mut [Option<f64>],
+    label: &dyn Fn(usize) -> String,
+    edits: &mut Vec<Edit>,
+) -> bool {
+    let mut changed = false;
+    let values: Vec<f64> = list.iter().flatten().copied().collect();
+    let range = match (values.first(), values.last()) {
+        (Some(a), Some(b)) => format!("{a} … {b}"),
+        _ => "all open".into(),
+    };
+    let header = format!("{} periods, {range}", list.len());
+    egui::CollapsingHeader::new(RichText::new(header).small())
+        .id_salt(("per period", id.0, id.1))
+        .default_open(list.len() <= UNFOLDED_PERIODS)
+        .show(ui, |ui| {
+            egui::Grid::new(("bounds", id.0, id.1))
+                .num_columns(PERIODS_PER_ROW)
+                .spacing([10.0, 2.0])
+                .show(ui, |ui| {
+                    for (i, v) in list.iter_mut().enumerate() {
+                        // A period's label and its value stay together.
+                        ui.horizontal(|ui| {
+                            ui.label(RichText::new(label(i)).small());
+                            match v {
+                                Some(x) => {
+                                    let r = ui
+                                        .add(egui::DragValue::new(x).speed(0.01).max_decimals(4))
+                                        .accessible_name(format!(
+                                            "{} bound, period {}",
+                                            id.0,
+                                            i + 1
+                                        ));
+                                    gesture(&r, edits);
+                                    changed |= r.changed();
+                                }
+                                None => {
+                                    if ui
+                                        .small_button("open")
+                                        .on_hover_text(format!(
+                                            "{} is open on this side; click to bound it",
+                                            label(i)
+                                        ))
+                                        .clicked()
+                                    {
+                                        *v = Some(0.0);
+                                        changed = true;
                                     }
                                 }
-                            });
-                            if (i + 1) % PERIODS_PER_ROW == 0 {
-                                ui.end_row();
                             }
+                        });
+                        if (i + 1) % PERIODS_PER_ROW == 0 {
+                            ui.end_row();
                         }
-                    });
-            });
-    }
+                    }
+                });
+        });
     changed
 }
 

@@ -325,7 +325,6 @@ fn process(
     send(Message::State(g, EngineState::Checking));
     let report = check_central(&setup, &model.model, &conditions, invalid);
     let clashes = report.clashes();
-    let findings = report.findings.len();
     send(Message::Checks(g, Box::new(report.clone())));
     if clashes {
         send(Message::State(g, EngineState::Clashing));
@@ -343,65 +342,95 @@ fn process(
         None | Some(Err(crate::forecast::ForecastError::Cancelled)) => Ok(()),
         Some(Err(e)) => Err(e.to_string()),
         Some(Ok(paths)) if fixed => {
-            let Some(model) = cache.as_ref() else {
-                return Err("no model".into());
-            };
             if paths.conditional.len() > PREVIEW_PATHS {
                 publish(model, &paths, false).map_err(text)?;
             }
-            let central = std::slice::from_ref(&model.model.central);
-            let count = paths.attempted;
-            if let Some(sources) = Sources::new(&setup, central, &conditions, &paths, count)? {
-                send(Message::Sources(g, Arc::new(sources)));
-            }
-            send(Message::State(
-                g,
-                EngineState::Done {
-                    draws: 0,
-                    seconds: start.elapsed().as_secs_f64(),
-                    set_aside: 0,
-                },
-            ));
-            // Fixed coefficients: the effects on up to 1,000 of the central θ's paths.
-            let paths = (setup.file.draws * setup.file.paths_per_draw).min(1000);
-            let single = ThetaSet::single(model.model.central.clone());
-            effects(
+            finish_fixed(
                 &setup,
-                &single,
+                &model.model.central,
                 &conditions,
-                sampling(&setup.file, paths),
+                &paths,
                 job,
                 send,
-            )?;
-            Ok(())
+                start,
+            )
         }
-        Some(Ok(_)) => {
-            let Some(model) = cache.as_mut() else {
-                return Err("no model".into());
-            };
-            if model.thetas.is_none() {
-                send(Message::State(g, EngineState::Drawing));
-                match model.model.draw(&setup, setup.file.draws, &job.cancel) {
-                    Ok(set) => model.thetas = Some(set),
-                    Err(PipelineError::Forecast(ForecastError::Cancelled)) => return Ok(()),
-                    Err(e) => return Err(e.to_string()),
-                }
-            }
-            if let Some(set) = &model.thetas {
-                let mut report = report;
-                check_draws(&setup, &mut report, set, &conditions);
-                if report.findings.len() > findings {
-                    let clashes = report.clashes();
-                    send(Message::Checks(g, Box::new(report)));
-                    if clashes {
-                        send(Message::State(g, EngineState::Clashing));
-                        return Ok(());
-                    }
-                }
-            }
-            posterior(&setup, model, &conditions, job, send, start)
+        Some(Ok(_)) => finish_estimated(&setup, model, &conditions, report, job, send, start),
+    }
+}
+
+/// Fixed coefficients, once the checks are clear: the split of the scenario, done, then
+/// each condition's effect on up to 1,000 of the central θ's paths.
+fn finish_fixed(
+    setup: &Setup,
+    central_theta: &Theta,
+    conditions: &Conditions,
+    paths: &PathSet,
+    job: &Job,
+    send: &dyn Fn(Message),
+    start: Instant,
+) -> Result<(), String> {
+    let g = job.generation;
+    let central = std::slice::from_ref(central_theta);
+    let count = paths.attempted;
+    if let Some(sources) = Sources::new(setup, central, conditions, paths, count)? {
+        send(Message::Sources(g, Arc::new(sources)));
+    }
+    send(Message::State(
+        g,
+        EngineState::Done {
+            draws: 0,
+            seconds: start.elapsed().as_secs_f64(),
+            set_aside: 0,
+        },
+    ));
+    // Fixed coefficients: the effects on up to 1,000 of the central θ's paths.
+    let paths = (setup.file.draws * setup.file.paths_per_draw).min(1000);
+    let single = ThetaSet::single(central_theta.clone());
+    effects(
+        setup,
+        &single,
+        conditions,
+        sampling(&setup.file, paths),
+        job,
+        send,
+    )?;
+    Ok(())
+}
+
+/// An estimated model, once the checks at the central θ are clear: the posterior draws (made
+/// once per model), the checks on the first of them, then the sampling.
+fn finish_estimated(
+    setup: &Setup,
+    model: &mut ModelCache,
+    conditions: &Conditions,
+    mut report: CheckReport,
+    job: &Job,
+    send: &dyn Fn(Message),
+    start: Instant,
+) -> Result<(), String> {
+    let g = job.generation;
+    if model.thetas.is_none() {
+        send(Message::State(g, EngineState::Drawing));
+        match model.model.draw(setup, setup.file.draws, &job.cancel) {
+            Ok(set) => model.thetas = Some(set),
+            Err(PipelineError::Forecast(ForecastError::Cancelled)) => return Ok(()),
+            Err(e) => return Err(e.to_string()),
         }
     }
+    if let Some(set) = &model.thetas {
+        let findings = report.findings.len();
+        check_draws(setup, &mut report, set, conditions);
+        if report.findings.len() > findings {
+            let clashes = report.clashes();
+            send(Message::Checks(g, Box::new(report)));
+            if clashes {
+                send(Message::State(g, EngineState::Clashing));
+                return Ok(());
+            }
+        }
+    }
+    posterior(setup, model, conditions, job, send, start)
 }
 
 fn estimate(setup: &Setup, key: String) -> Result<ModelCache, String> {
