@@ -1463,8 +1463,9 @@ fn the_checks_show_the_severity_against_history() {
     settle(&mut h);
     let pct = 100.0 * want["below"].as_f64().unwrap() / want["windows"].as_f64().unwrap();
     let headline = format!(
-        "Against history: further than {pct:.0}% of the {}-quarter windows",
-        reference["horizon"]
+        "Against history: further than {pct:.0}% of the {}-quarter windows since {}",
+        reference["horizon"],
+        want["history_from"].as_str().unwrap()
     );
     assert!(h.query_by_label(&headline).is_some(), "{headline}");
     let par = format!(

@@ -146,6 +146,21 @@ pub fn steps_125(input: egui_plot::GridInput) -> [f64; 3] {
     [s, next(s), next(next(s))]
 }
 
+/// Date grid steps in whole periods that keep the same period of the year under every mark
+/// (counted from the last observation): one period, then 1, 2, 10, 20… years, each a
+/// multiple of the one before; the finest at least the plot's smallest step.
+pub fn period_steps(per_year: usize, input: egui_plot::GridInput) -> [f64; 3] {
+    let y = per_year as f64;
+    let years = (0..8).flat_map(|k| [1.0, 2.0].map(|m| m * y * 10f64.powi(k)));
+    let steps: Vec<f64> = std::iter::once(1.0).chain(years).collect();
+    let first = steps
+        .iter()
+        .position(|&s| s >= input.base_step_size)
+        .unwrap_or(steps.len() - 3)
+        .min(steps.len() - 3);
+    [steps[first], steps[first + 1], steps[first + 2]]
+}
+
 /// The box drawn over periods `x0…x1` between values `y0` and `y1` (a little narrower than
 /// the periods, so that neighbouring boxes stay apart).
 fn period_box(x0: f64, x1: f64, y0: f64, y1: f64) -> Vec<[f64; 2]> {
@@ -333,6 +348,9 @@ fn plot_of<'a>(input: &'a ChartInput, quiet: bool) -> Plot<'a> {
         .y_axis_min_width(36.0)
         .y_axis_label(input.measure)
         .y_grid_spacer(egui_plot::uniform_grid_spacer(steps_125))
+        .x_grid_spacer(egui_plot::uniform_grid_spacer(move |g| {
+            period_steps(results.last.freq.periods_per_year(), g)
+        }))
         .x_axis_formatter(move |mark: GridMark, _| {
             results
                 .label(mark.value)
@@ -662,6 +680,29 @@ mod tests {
 
     /// Steps are 1, 2 or 5 times a power of ten near a fiftieth of the range, and snapped
     /// values print as typed (decimal arithmetic by hand).
+    #[test]
+    fn date_steps_keep_the_period_of_the_year() {
+        let at = |base: f64, per_year: usize| {
+            let input = egui_plot::GridInput {
+                bounds: (-100.0, 40.0),
+                base_step_size: base,
+            };
+            period_steps(per_year, input)
+        };
+        assert_eq!(at(0.5, 4), [1.0, 4.0, 8.0]);
+        assert_eq!(at(3.0, 4), [4.0, 8.0, 40.0]);
+        assert_eq!(at(9.0, 4), [40.0, 80.0, 400.0]);
+        assert_eq!(at(2.0, 12), [12.0, 24.0, 120.0]);
+        assert_eq!(at(13.0, 12), [24.0, 120.0, 240.0]);
+        // Each step a multiple of the one before.
+        for base in [0.3, 1.5, 5.0, 30.0, 300.0] {
+            for per_year in [4, 12] {
+                let s = at(base, per_year);
+                assert!(s[0] >= base && s[1] % s[0] == 0.0 && s[2] % s[1] == 0.0);
+            }
+        }
+    }
+
     #[test]
     fn steps_and_snapped_values_are_readable() {
         assert_eq!(snap_step(10.0), 0.2);

@@ -200,6 +200,9 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     }
 }
 
+/// Width of the page group (previous, "page N of M", next).
+const PAGE_GROUP_WIDTH: f32 = 210.0;
+
 /// The height of each chart: a few charts share the height there is (up to a comfortable
 /// size), many scroll; kept during a drag.
 fn chart_height(ui: &egui::Ui, app: &mut TiltyardApp, rows: usize, enlarged: bool) -> f32 {
@@ -371,25 +374,32 @@ fn page_controls(ui: &mut egui::Ui, app: &mut TiltyardApp, pages: usize) {
         app.view.grid.page = 0;
     }
     ui.separator();
-    let page = app.view.grid.page;
-    if ui
-        .add_enabled(page > 0, egui::Button::new("previous").small())
-        .on_hover_text("Page Up")
-        .clicked()
-    {
-        app.view.grid.page -= 1;
+    // The page group stays on one row when the controls wrap (a row too short for it ends
+    // before it, so that it never runs past the panel).
+    if ui.max_rect().right() - ui.cursor().left() < PAGE_GROUP_WIDTH {
+        ui.end_row();
     }
-    ui.add_sized(
-        [80.0, ui.spacing().interact_size.y],
-        egui::Label::new(format!("page {} of {pages}", page + 1)),
-    );
-    if ui
-        .add_enabled(page + 1 < pages, egui::Button::new("next").small())
-        .on_hover_text("Page Down")
-        .clicked()
-    {
-        app.view.grid.page += 1;
-    }
+    ui.horizontal(|ui| {
+        let page = app.view.grid.page;
+        if ui
+            .add_enabled(page > 0, egui::Button::new("previous").small())
+            .on_hover_text("Page Up")
+            .clicked()
+        {
+            app.view.grid.page -= 1;
+        }
+        ui.add_sized(
+            [80.0, ui.spacing().interact_size.y],
+            egui::Label::new(format!("page {} of {pages}", page + 1)),
+        );
+        if ui
+            .add_enabled(page + 1 < pages, egui::Button::new("next").small())
+            .on_hover_text("Page Down")
+            .clicked()
+        {
+            app.view.grid.page += 1;
+        }
+    });
     egui::ComboBox::from_id_salt("charts per page")
         .selected_text(format!("{} a page", app.view.grid.per_page))
         .show_ui(ui, |ui| {

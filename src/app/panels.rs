@@ -605,12 +605,7 @@ fn readings(ui: &mut egui::Ui, report: &CheckReport, pal: &Palette) {
         ui.label(RichText::new(&p.reading).small().italics());
     }
     if let Some(s) = &report.against_history {
-        ui.label(format!(
-            "Against history: further than {:.0}% of the {}-{} windows",
-            100.0 * s.share_exceeded,
-            s.window_length,
-            s.period_word
-        ));
+        ui.label(format!("Against history: {}", s.headline()));
         ui.label(RichText::new(&s.reading).small().italics());
     }
     for note in &report.notes {

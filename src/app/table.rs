@@ -398,6 +398,8 @@ fn corridor_row(
 const UNFOLDED_PERIODS: usize = 8;
 /// Per-period bounds in a row of the table.
 const PERIODS_PER_ROW: usize = 4;
+/// Width of one period's label and value, for fitting the rows to the panel.
+const PERIOD_CELL: f32 = 100.0;
 
 /// One side of a corridor: open, one value, or one value per period (each labelled with its
 /// period, in a grid of a few a row, folded when there are many).
@@ -488,8 +490,14 @@ fn per_period(
         .id_salt(("per period", id.0, id.1))
         .default_open(list.len() <= UNFOLDED_PERIODS)
         .show(ui, |ui| {
+            // Four periods a row (a year of quarters) where the panel has room, else two or
+            // one: the panel never widens for them.
+            let per_row = [PERIODS_PER_ROW, 2, 1]
+                .into_iter()
+                .find(|&k| k as f32 * PERIOD_CELL <= ui.available_width())
+                .unwrap_or(1);
             egui::Grid::new(("bounds", id.0, id.1))
-                .num_columns(PERIODS_PER_ROW)
+                .num_columns(per_row)
                 .spacing([10.0, 2.0])
                 .show(ui, |ui| {
                     for (i, v) in list.iter_mut().enumerate() {
@@ -523,7 +531,7 @@ fn per_period(
                                 }
                             }
                         });
-                        if (i + 1) % PERIODS_PER_ROW == 0 {
+                        if (i + 1) % per_row == 0 {
                             ui.end_row();
                         }
                     }

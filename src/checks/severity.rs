@@ -161,6 +161,26 @@ fn mean_shocks(theta: &Theta, plan: &Plan, seed: u64) -> Result<DVector<f64>, Fo
     Ok(eps.column(0).into_owned())
 }
 
+impl HistorySeverity {
+    /// One line: "further than 97% of the 12-quarter windows since 1990Q3", or "beyond every
+    /// 12-quarter window since 1990Q3 (the furthest went 30% as far)".
+    pub fn headline(&self) -> String {
+        let windows = format!("{}-{} window", self.window_length, self.period_word);
+        let since = &self.history_from;
+        if self.share_exceeded >= 1.0 {
+            format!(
+                "beyond every {windows} since {since} (the furthest went {:.0}% as far)",
+                100.0 * self.largest.score / self.score
+            )
+        } else {
+            format!(
+                "further than {:.0}% of the {windows}s since {since}",
+                100.0 * self.share_exceeded
+            )
+        }
+    }
+}
+
 /// "Further than in 97% of the 131 windows of 12 quarters in the model's history
 /// (1990Q3–2025Q4); on a par with 2008Q3–2011Q2."
 fn reading(s: &HistorySeverity) -> String {
