@@ -113,6 +113,18 @@ pub fn apply(
     }
 }
 
+/// Let shock `name` drive the scenario or not, keeping the drivers in identification order
+/// (`order`); all shocks ticked means every shock drives (no list).
+pub fn set_driver(f: &mut ScenarioFile, order: &[String], name: &str, on: bool) {
+    let mut d = f.drivers.clone().unwrap_or_else(|| order.to_vec());
+    d.retain(|x| x != name);
+    if on {
+        d.push(name.to_string());
+    }
+    d.sort_by_key(|x| order.iter().position(|o| o == x));
+    f.drivers = (d.len() != order.len()).then_some(d);
+}
+
 /// Move a condition's value by `delta` (a corridor's bounds all together) and its periods to
 /// where `shifted` takes them (a corridor only when both ends stay within the forecast).
 pub fn nudge(
@@ -302,6 +314,21 @@ mod tests {
         assert_eq!(f.corridors[0].lower, None);
         assert_eq!(f.corridors[0].upper, Some(Bound::Same(2.5)));
         assert_eq!(f.corridors[0].from, "2026Q2");
+    }
+
+    #[test]
+    fn drivers_keep_the_identification_order() {
+        let mut f = file();
+        let order: Vec<String> = ["a", "b", "c"].map(String::from).to_vec();
+        f.drivers = None;
+        set_driver(&mut f, &order, "b", false);
+        assert_eq!(f.drivers, Some(vec!["a".to_string(), "c".to_string()]));
+        set_driver(&mut f, &order, "a", false);
+        set_driver(&mut f, &order, "a", true);
+        assert_eq!(f.drivers, Some(vec!["a".to_string(), "c".to_string()]));
+        // Every shock ticked again: no list.
+        set_driver(&mut f, &order, "b", true);
+        assert_eq!(f.drivers, None);
     }
 
     #[test]

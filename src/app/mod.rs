@@ -6,8 +6,10 @@
 //! pick), saves and the recovery file all run on threads of their own and report by channel.
 //!
 //! - [`document`]: the scenario being edited, undo/redo, atomic saves, the recovery file;
-//! - [`worker`]: the engine thread and its messages;
-//! - [`chart`]: one series' or shock's chart and its gestures;
+//!   [`edits`]: the changes gestures, nudges and panels make to it, as plain functions;
+//! - [`state`]: the engine session (jobs sent, what came back) and the view (panes, charts,
+//!   selection); [`worker`]: the engine thread and its messages;
+//! - [`chart`]: one series' or shock's chart; [`gesture`]: its gestures as pure functions;
 //! - [`panels`]: the bars and side panels; [`table`]: the conditions table;
 //!   [`settings`]: the model settings;
 //! - [`files`]: dialogs, saves and recovery writes off the window's thread; [`palette`]:

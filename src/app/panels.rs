@@ -419,20 +419,8 @@ fn shock_list(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
         });
     }
     if let Some((name, on)) = toggle {
-        app.doc.edit(|f| {
-            let mut d = f.drivers.clone().unwrap_or_else(|| order.clone());
-            d.retain(|x| x != &name);
-            if on {
-                d.push(name.clone());
-            }
-            // Keep the identification order; all shocks ticked means "every shock drives".
-            d.sort_by_key(|x| order.iter().position(|o| o == x));
-            f.drivers = if d.len() == order.len() {
-                None
-            } else {
-                Some(d)
-            };
-        });
+        app.doc
+            .edit(|f| super::edits::set_driver(f, &order, &name, on));
     }
 }
 
