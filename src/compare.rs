@@ -154,7 +154,7 @@ pub fn condition_changes(a: &ScenarioFile, b: &ScenarioFile) -> Vec<Change> {
     }
     let drivers = |f: &ScenarioFile| match &f.drivers {
         None => "every shock drives".to_string(),
-        Some(d) => format!("drivers: {}", d.join(", ")),
+        Some(d) => format!("drivers: {}", crate::scenario::describe_drivers(d)),
     };
     if a.drivers != b.drivers {
         out.push(Change::Changed {

@@ -224,7 +224,7 @@ pub fn summary(setup: &Setup, out: &RunOutcome) -> String {
     let drivers = match &file.drivers {
         None => "all shocks drive".to_string(),
         Some(d) if d.is_empty() => "no shocks drive".to_string(),
-        Some(d) => format!("drivers: {}", d.join(", ")),
+        Some(d) => format!("drivers: {}", crate::scenario::describe_drivers(d)),
     };
     let met = |ok: bool| {
         if ok {

@@ -58,7 +58,13 @@ fn parts_add_up_and_the_total_is_the_mean_shift() {
     );
     let moved = |j: usize| a.by_shock[j].iter().any(|v| v.abs() > 1e-9);
     for (j, name) in setup.names.iter().enumerate() {
-        let drives = setup.file.drivers.as_ref().unwrap().contains(name);
+        let drives = setup
+            .file
+            .drivers
+            .as_ref()
+            .unwrap()
+            .iter()
+            .any(|d| d.shock() == name);
         assert_eq!(moved(j), drives, "shock {name}");
     }
     // The total averages Δ_θ = W(E[z] − 𝒢μ_θ) over the draws. Each path was made from an
@@ -143,7 +149,7 @@ fn baseline_one_pin(drivers: Option<Vec<String>>) -> Setup {
     let mut file = scenario::read(&path).unwrap();
     file.draws = 80;
     file.pins.truncate(1);
-    file.drivers = drivers;
+    file.drivers = drivers.map(|d| d.into_iter().map(scenario::DriverSpec::Always).collect());
     Setup::new(file, &path).unwrap()
 }
 

@@ -1475,3 +1475,39 @@ fn the_checks_show_the_severity_against_history() {
     );
     assert!(h.query_by_label_contains(&par).is_some(), "{par}");
 }
+
+/// A timed driver is shown with its periods under its shock; ticking it off and on again
+/// makes it move at every period (one undo step each).
+#[test]
+fn a_timed_driver_shows_its_periods() {
+    let dir = tempfile::tempdir().unwrap();
+    let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("scenarios-demo");
+    let mut file = scenario::read(&root.join("adverse-pins.ron")).unwrap();
+    file.dataset = root.join("economy.csv").display().to_string();
+    file.draws = 100;
+    file.drivers = Some(vec![
+        scenario::DriverSpec::Always("output".into()),
+        scenario::DriverSpec::Timed {
+            shock: "credit_spread".into(),
+            from: "2026Q1".into(),
+            to: "2026Q2".into(),
+        },
+        scenario::DriverSpec::Always("house_prices".into()),
+        scenario::DriverSpec::Always("unemployment".into()),
+    ]);
+    let path = dir.path().join("timed.ron");
+    std::fs::write(&path, scenario::to_text(&file)).unwrap();
+    let mut h = harness(&path);
+    settle(&mut h);
+    assert!(h.query_by_label("moves 2026Q1–2026Q2 only").is_some());
+    let shock = "Corporate credit spread shock";
+    h.get_by_label(shock).click();
+    h.run_steps(2);
+    h.get_by_label(shock).click();
+    h.run_steps(2);
+    assert!(h.query_by_label("moves 2026Q1–2026Q2 only").is_none());
+    let drivers = h.state().doc.file.drivers.clone().unwrap();
+    assert!(drivers.contains(&scenario::DriverSpec::Always("credit_spread".into())));
+    settle(&mut h);
+    assert!(!h.state().stale(), "the edited drivers still meet the pins");
+}

@@ -5,7 +5,7 @@
 use super::chart::tidy;
 use super::gesture::{ChartAction, CondRef};
 use super::worker::Subject;
-use crate::scenario::{Bound, CorridorSpec, PinSpec, ScenarioFile};
+use crate::scenario::{Bound, CorridorSpec, DriverSpec, PinSpec, ScenarioFile};
 
 /// Apply an editing action of the chart of series or shock `name` to `f`; the condition to
 /// select afterwards, if the selection changes (a new or redrawn condition). Actions that do
@@ -113,16 +113,20 @@ pub fn apply(
     }
 }
 
-/// Let shock `name` drive the scenario or not, keeping the drivers in identification order
-/// (`order`); all shocks ticked means every shock drives (no list).
+/// Let shock `name` drive the scenario at every period or not, keeping the drivers in
+/// identification order (`order`); all shocks driving at every period means no list.
 pub fn set_driver(f: &mut ScenarioFile, order: &[String], name: &str, on: bool) {
-    let mut d = f.drivers.clone().unwrap_or_else(|| order.to_vec());
-    d.retain(|x| x != name);
+    let mut d = f
+        .drivers
+        .clone()
+        .unwrap_or_else(|| order.iter().cloned().map(DriverSpec::Always).collect());
+    d.retain(|x| x.shock() != name);
     if on {
-        d.push(name.to_string());
+        d.push(DriverSpec::Always(name.to_string()));
     }
-    d.sort_by_key(|x| order.iter().position(|o| o == x));
-    f.drivers = (d.len() != order.len()).then_some(d);
+    d.sort_by_key(|x| order.iter().position(|o| o == x.shock()));
+    let every = d.len() == order.len() && d.iter().all(|x| matches!(x, DriverSpec::Always(_)));
+    f.drivers = (!every).then_some(d);
 }
 
 /// Move a condition's value by `delta` (a corridor's bounds all together) and its periods to
@@ -322,10 +326,28 @@ mod tests {
         let order: Vec<String> = ["a", "b", "c"].map(String::from).to_vec();
         f.drivers = None;
         set_driver(&mut f, &order, "b", false);
-        assert_eq!(f.drivers, Some(vec!["a".to_string(), "c".to_string()]));
+        let always = |names: &[&str]| {
+            Some(
+                names
+                    .iter()
+                    .map(|n| DriverSpec::Always(n.to_string()))
+                    .collect(),
+            )
+        };
+        assert_eq!(f.drivers, always(&["a", "c"]));
         set_driver(&mut f, &order, "a", false);
         set_driver(&mut f, &order, "a", true);
-        assert_eq!(f.drivers, Some(vec!["a".to_string(), "c".to_string()]));
+        assert_eq!(f.drivers, always(&["a", "c"]));
+        // A timed driver ticked again moves at every period.
+        f.drivers = Some(vec![DriverSpec::Timed {
+            shock: "b".into(),
+            from: "2026Q1".into(),
+            to: "2026Q1".into(),
+        }]);
+        set_driver(&mut f, &order, "b", true);
+        assert_eq!(f.drivers, always(&["b"]));
+        set_driver(&mut f, &order, "a", true);
+        set_driver(&mut f, &order, "c", true);
         // Every shock ticked again: no list.
         set_driver(&mut f, &order, "b", true);
         assert_eq!(f.drivers, None);

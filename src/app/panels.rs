@@ -11,7 +11,7 @@ use super::worker::{EngineState, Subject};
 use super::{AfterSave, Prompt, TiltyardApp, table};
 use crate::checks::{CheckReport, Severity, Status};
 use crate::report::CAUTION;
-use crate::scenario::Units;
+use crate::scenario::{DriverSpec, Units};
 
 /// Units a chart can switch to (those that apply to every transform).
 pub const CHART_UNITS: [Units; 5] = [
@@ -396,19 +396,22 @@ fn shock_list(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
         .color(pal.muted),
     );
     let order = shock_order(app);
-    let all = app.doc.file.drivers.is_none();
     let mut toggle = None;
     for name in &order {
-        let mut drives = all
-            || app
-                .doc
-                .file
-                .drivers
-                .as_ref()
-                .is_some_and(|d| d.contains(name));
+        // `None`: not a driver; else the periods it moves at, when only some.
+        let timing = match &app.doc.file.drivers {
+            None => Some(None),
+            Some(list) => list.iter().find(|d| d.shock() == name).map(|d| match d {
+                DriverSpec::Always(_) => None,
+                DriverSpec::Timed { from, to, .. } if from == to => Some(format!("in {from}")),
+                DriverSpec::Timed { from, to, .. } => Some(format!("{from}–{to}")),
+            }),
+        };
+        let mut drives = timing.is_some();
         ui.horizontal(|ui| {
             if ui
                 .checkbox(&mut drives, format!("{} shock", app.shown(name)))
+                .on_hover_text("Ticking makes it move at every period; a driver over some periods only is set in the scenario file")
                 .changed()
             {
                 toggle = Some((name.clone(), drives));
@@ -417,6 +420,17 @@ fn shock_list(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
                 dot(ui, severity_colour(pal, s));
             }
         });
+        if let Some(Some(when)) = &timing {
+            // Under its name: the panel is narrow.
+            let periods = when.trim_start_matches(name.as_str()).trim();
+            ui.indent(("timing", name.as_str()), |ui| {
+                ui.label(
+                    RichText::new(format!("moves {periods} only"))
+                        .small()
+                        .color(pal.muted),
+                );
+            });
+        }
     }
     if let Some((name, on)) = toggle {
         app.doc

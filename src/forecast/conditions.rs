@@ -51,14 +51,34 @@ impl Corridor {
     }
 }
 
+/// A shock allowed to move over horizons `from..=to` (1-based), with the labels of those
+/// periods for messages.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Driver {
+    pub shock: usize,
+    pub from: usize,
+    pub to: usize,
+    pub from_label: String,
+    pub to_label: String,
+    /// True when `to` is the last horizon of the forecast.
+    pub to_end: bool,
+}
+
+impl Driver {
+    /// Moves at every period of the forecast.
+    pub fn always(&self) -> bool {
+        self.from <= 1 && self.to_end
+    }
+}
+
 /// The pins, corridors and drivers of a scenario, ready for the engine.
 #[derive(Debug, Clone, PartialEq, Default)]
 pub struct Conditions {
     pub pins: Vec<Pin>,
     pub corridors: Vec<Corridor>,
-    /// Shocks allowed to move (all horizons), by index; `None` means every shock.
-    /// A shock that is itself pinned or bounded always moves at that horizon.
-    pub drivers: Option<Vec<usize>>,
+    /// Shocks allowed to move, each over its horizons; `None` means every shock at every
+    /// horizon. A shock that is itself pinned or bounded always moves at that horizon.
+    pub drivers: Option<Vec<Driver>>,
     /// Shock names for messages, indexed like the shocks.
     pub shock_names: Vec<String>,
 }
@@ -68,9 +88,9 @@ impl Conditions {
     pub fn driver_cells(&self, n: usize, h: usize) -> Option<Vec<bool>> {
         let drivers = self.drivers.as_ref()?;
         let mut mask = vec![false; n * h];
-        for &j in drivers {
-            for t in 0..h {
-                mask[t * n + j] = true;
+        for d in drivers {
+            for t in d.from.max(1) - 1..d.to.min(h) {
+                mask[t * n + d.shock] = true;
             }
         }
         let targets = self.pins.iter().map(|p| &p.target).chain(
@@ -96,22 +116,39 @@ impl Conditions {
                 .any(|c| c.rows.iter().any(|r| shock(&r.target)))
     }
 
-    /// Names of the drivers, for messages.
+    /// Names of the drivers (with their periods when timed), for messages; when every driver
+    /// is timed, what that rules out ("no shock may move after 2026Q1").
     pub fn driver_names(&self) -> String {
-        match &self.drivers {
-            None => "all shocks".into(),
-            Some(d) if d.is_empty() => "no shocks".into(),
-            Some(d) => d
-                .iter()
-                .map(|&j| {
-                    self.shock_names
-                        .get(j)
-                        .cloned()
-                        .unwrap_or_else(|| j.to_string())
-                })
-                .collect::<Vec<_>>()
-                .join(", "),
+        let Some(drivers) = &self.drivers else {
+            return "all shocks".into();
+        };
+        if drivers.is_empty() {
+            return "no shocks".into();
         }
+        let name = |j: usize| {
+            self.shock_names
+                .get(j)
+                .cloned()
+                .unwrap_or_else(|| j.to_string())
+        };
+        let mut text = drivers
+            .iter()
+            .map(|d| match (d.always(), d.from == d.to) {
+                (true, _) => name(d.shock),
+                (false, true) => format!("{} in {} only", name(d.shock), d.from_label),
+                (false, false) => format!("{} in {}–{}", name(d.shock), d.from_label, d.to_label),
+            })
+            .collect::<Vec<_>>()
+            .join(", ");
+        let first = drivers.iter().min_by_key(|d| d.from);
+        if let Some(d) = first.filter(|d| d.from > 1) {
+            text.push_str(&format!("; no shock may move before {}", d.from_label));
+        }
+        let last = drivers.iter().max_by_key(|d| (d.to_end, d.to));
+        if let Some(d) = last.filter(|d| !d.to_end) {
+            text.push_str(&format!("; no shock may move after {}", d.to_label));
+        }
+        text
     }
 
     /// The conditions named by `keep` (indices into [`Conditions::labels`]): a sub-scenario

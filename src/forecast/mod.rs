@@ -27,7 +27,7 @@ pub mod reach;
 pub mod rows;
 pub mod theta;
 
-pub use conditions::{Bounded, Conditions, Corridor, Pin, Target};
+pub use conditions::{Bounded, Conditions, Corridor, Driver, Pin, Target};
 pub use engine::{
     DrawSpec, Failure, ParamSource, PathSet, RootSummary, Sampling, ThetaSet, build_thetas,
     normalise, path_weights, sample_paths,
@@ -42,7 +42,7 @@ pub enum ForecastError {
     #[error("{0} is singular or not positive definite")]
     Singular(String),
     #[error(
-        "{} cannot be reached by the drivers ({drivers}){}: the moving shocks have no effect on {}. Add drivers, move the condition later, or loosen it",
+        "{} cannot be reached by the drivers ({drivers}){}: the moving shocks have no effect on {}. Add drivers or let them move over more periods, move the condition later, or loosen it",
         list(conditions), at_draw(*draw), if conditions.len() == 1 { "it" } else { "this combination" }
     )]
     Unreachable {
@@ -162,7 +162,9 @@ fn remedy(e: &ForecastError) -> &'static str {
         ForecastError::TooImprobable { .. } => {
             "Widen the corridors or move them towards the forecast"
         }
-        ForecastError::Unreachable { .. } => "Add drivers or loosen the conditions",
+        ForecastError::Unreachable { .. } => {
+            "Add drivers or let them move over more periods, or loosen the conditions"
+        }
         ForecastError::NearlyDependent { .. } => {
             "Remove the condition that (nearly) repeats the others"
         }

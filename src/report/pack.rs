@@ -312,7 +312,7 @@ fn page(
         None => "Every structural shock may move to meet them.".to_string(),
         Some(d) => format!(
             "Only these structural shocks may move to meet them: {}; the others keep their usual distribution.",
-            d.join(", ")
+            crate::scenario::describe_drivers(d)
         ),
     };
     let _ = writeln!(h, "</ul><p>{}</p></section>", escape(&drivers));

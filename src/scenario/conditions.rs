@@ -4,10 +4,10 @@
 
 use super::{
     ScenarioError, Setup,
-    schema::{Bound, CorridorSpec, PinSpec, Units},
+    schema::{Bound, CorridorSpec, DriverSpec, PinSpec, Units},
     units::{corridor_row, pin_row},
 };
-use crate::forecast::{Bounded, Conditions, Corridor, Pin, Target};
+use crate::forecast::{Bounded, Conditions, Corridor, Driver, Pin, Target};
 
 /// What a condition is about: a series (index) or a shock (index).
 enum About {
@@ -31,11 +31,7 @@ impl Setup {
         let drivers = self.file.drivers.as_ref().map(|list| {
             list.iter()
                 .enumerate()
-                .filter_map(|(k, name)| {
-                    self.shock_index(name, &format!("drivers[{k}]"))
-                        .map_err(|e| problems.push(e))
-                        .ok()
-                })
+                .filter_map(|(k, spec)| self.driver(k, spec).map_err(|e| problems.push(e)).ok())
                 .collect()
         });
         let mut pins = Vec::new();
@@ -63,6 +59,36 @@ impl Setup {
             shock_names: self.names.clone(),
         };
         (conditions, problems)
+    }
+
+    /// A driver in engine form: its shock and horizons (every one when untimed).
+    fn driver(&self, k: usize, spec: &DriverSpec) -> Result<Driver, ScenarioError> {
+        let field = format!("drivers[{k}]");
+        let shock = self.shock_index(spec.shock(), &field)?;
+        let h = self.file.horizon;
+        let label = |t: usize| self.last_period().offset(t as i64).to_string();
+        let (from, to) = match spec {
+            DriverSpec::Always(_) => (1, h),
+            DriverSpec::Timed { from, to, .. } => {
+                let a = self.horizon_of(from, &format!("{field}.from"))?;
+                let b = self.horizon_of(to, &format!("{field}.to"))?;
+                if b < a {
+                    return Err(ScenarioError::Invalid {
+                        field: format!("{field}.to"),
+                        why: format!("{to} comes before from ({from})"),
+                    });
+                }
+                (a, b)
+            }
+        };
+        Ok(Driver {
+            shock,
+            from,
+            to,
+            from_label: label(from),
+            to_label: label(to),
+            to_end: to == h,
+        })
     }
 
     fn about(

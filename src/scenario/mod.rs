@@ -9,9 +9,10 @@ pub mod units;
 
 use std::path::{Path, PathBuf};
 
+pub use schema::describe_drivers;
 pub use schema::{
-    Bound, Centre, CheckSettings, CorridorSpec, FixedSpec, LargestRoot, ModelSpec, PinSpec,
-    ScenarioFile, SeriesSpec, Units,
+    Bound, Centre, CheckSettings, CorridorSpec, DriverSpec, FixedSpec, LargestRoot, ModelSpec,
+    PinSpec, ScenarioFile, SeriesSpec, Units,
 };
 pub use setup::Setup;
 

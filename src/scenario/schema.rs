@@ -12,7 +12,8 @@
 //!     ],
 //!     model: minnesota((lags: 4, tightness: auto)),
 //!     ordering: ["output", "unemployment"], // recursive identification (default: series order)
-//!     drivers: ["output"],                  // shocks allowed to move (default: all)
+//!     drivers: ["output",                   // shocks allowed to move (default: all), at every
+//!               (shock: "unemployment", from: "2026Q1", to: "2026Q2")], // or some periods
 //!     horizon: 12, draws: 1000, seed: 7,
 //!     pins: [
 //!         (series: "unemployment", period: "2027Q2", units: level, value: 6.5),
@@ -45,9 +46,10 @@ pub struct ScenarioFile {
     /// Recursive identification order of the shocks (series names).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub ordering: Option<Vec<String>>,
-    /// Shocks allowed to move so that the pins hold; all when absent.
+    /// Shocks allowed to move so that the pins hold (at every period, or at some); all when
+    /// absent.
     #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub drivers: Option<Vec<String>>,
+    pub drivers: Option<Vec<DriverSpec>>,
     /// Forecast horizon in periods after the last observation.
     pub horizon: usize,
     /// Posterior draws of the parameters (paths, for fixed coefficients).
@@ -243,6 +245,45 @@ impl Units {
             Units::Average(k) => format!("average({k})"),
         }
     }
+}
+
+/// A shock allowed to move: by name, at every period; or over periods `from` to `to` (the
+/// shock keeps its usual distribution at the others).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(untagged)]
+pub enum DriverSpec {
+    Always(String),
+    Timed {
+        shock: String,
+        from: String,
+        to: String,
+    },
+}
+
+impl DriverSpec {
+    /// The shock's name.
+    pub fn shock(&self) -> &str {
+        match self {
+            DriverSpec::Always(name) | DriverSpec::Timed { shock: name, .. } => name,
+        }
+    }
+
+    /// "output", or "output (2026Q1–2026Q2)".
+    pub fn describe(&self) -> String {
+        match self {
+            DriverSpec::Always(name) => name.clone(),
+            DriverSpec::Timed { shock, from, to } if from == to => format!("{shock} ({from} only)"),
+            DriverSpec::Timed { shock, from, to } => format!("{shock} ({from}–{to})"),
+        }
+    }
+}
+
+/// The drivers in words: "output, unemployment (2026Q1 only)".
+pub fn describe_drivers(list: &[DriverSpec]) -> String {
+    list.iter()
+        .map(DriverSpec::describe)
+        .collect::<Vec<_>>()
+        .join(", ")
 }
 
 /// A pin: one series (or shock) at one future period equals a value, in chosen units.
