@@ -9,6 +9,7 @@ pub mod checks;
 pub mod compare;
 pub mod crosscheck;
 pub mod dataset;
+pub mod entropic;
 pub mod forecast;
 pub mod model;
 pub mod pipeline;
