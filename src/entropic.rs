@@ -41,7 +41,9 @@ pub enum TiltError {
         reach: String,
     },
     /// Targets that cannot hold together on these paths (each is reachable alone).
-    #[error("the targets cannot hold together on these paths (the largest miss is on target {index})")]
+    #[error(
+        "the targets cannot hold together on these paths (the largest miss is on target {index})"
+    )]
     Together { index: usize },
 }
 
@@ -173,15 +175,11 @@ fn newton_step(hess: &[Vec<f64>], grad: &[f64]) -> Vec<f64> {
     let h = nalgebra::DMatrix::from_fn(k, k, |a, b| hess[a][b]);
     let v = nalgebra::DVector::from_column_slice(grad);
     let ridge = 1e-12 * (0..k).map(|j| hess[j][j]).fold(0.0, f64::max).max(1e-300);
-    let solved = h
-        .clone()
-        .cholesky()
-        .map(|c| c.solve(&v))
-        .or_else(|| {
-            (h + nalgebra::DMatrix::identity(k, k) * ridge)
-                .cholesky()
-                .map(|c| c.solve(&v))
-        });
+    let solved = h.clone().cholesky().map(|c| c.solve(&v)).or_else(|| {
+        (h + nalgebra::DMatrix::identity(k, k) * ridge)
+            .cholesky()
+            .map(|c| c.solve(&v))
+    });
     solved.map_or_else(|| grad.to_vec(), |s| s.iter().copied().collect())
 }
 
@@ -214,7 +212,10 @@ mod tests {
         let m = 0.5;
         let t = tilt(&vec![1.0; n], std::slice::from_ref(&x), &[m]).unwrap();
         let se = ((m * m).exp() * (1.0 + m * m) / n as f64).sqrt();
-        println!("λ {} (closed form {m}, s.e. {se:.1e}), KL {}", t.lambda[0], t.divergence);
+        println!(
+            "λ {} (closed form {m}, s.e. {se:.1e}), KL {}",
+            t.lambda[0], t.divergence
+        );
         assert!((t.lambda[0] - m).abs() < 4.0 * se);
         let mean: f64 = t.weights.iter().zip(&x).map(|(w, v)| w * v).sum();
         assert!((mean - m).abs() < 1e-12);
@@ -236,7 +237,11 @@ mod tests {
             .filter(|w| **w > 0.0)
             .map(|w| w * (w * n as f64).ln())
             .sum();
-        assert!((primal - t.divergence).abs() < 1e-9, "{primal} {}", t.divergence);
+        assert!(
+            (primal - t.divergence).abs() < 1e-9,
+            "{primal} {}",
+            t.divergence
+        );
         assert!(t.effective_size < n as f64 && t.effective_size > 0.5 * n as f64);
     }
 
@@ -244,7 +249,10 @@ mod tests {
     fn a_target_out_of_reach_is_named() {
         let x = normal_sample(1_000, 3);
         let err = tilt(&vec![1.0; 1_000], &[x.clone(), x], &[0.0, 10.0]).unwrap_err();
-        assert!(matches!(err, TiltError::Unreachable { index: 1, .. }), "{err}");
+        assert!(
+            matches!(err, TiltError::Unreachable { index: 1, .. }),
+            "{err}"
+        );
         // Each reachable alone, impossible together: the same moment at two values.
         let y = normal_sample(1_000, 4);
         let err = tilt(&vec![1.0; 1_000], &[y.clone(), y], &[0.5, -0.5]).unwrap_err();

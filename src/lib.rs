@@ -16,4 +16,5 @@ pub mod pipeline;
 pub mod report;
 pub mod run;
 pub mod scenario;
+pub mod targets;
 pub mod truncnorm;

@@ -30,6 +30,7 @@ use crate::forecast::{
 use crate::model::FitSummary;
 use crate::report::{Stat, statistics};
 use crate::scenario::{ScenarioError, Setup};
+use crate::targets::{TiltSummary, tilt_paths};
 
 /// Posterior draws re-checked one by one (ALGORITHMS §9.1 item 6).
 pub const DRAWS_RECHECKED: usize = 40;
@@ -118,6 +119,8 @@ pub struct Summaries {
     pub weights: Option<Vec<f64>>,
     /// With reweighting: the effective number of posterior draws (Kish).
     pub effective_draws: Option<f64>,
+    /// With targets on the distribution: what the tilt did (the weights above are tilted).
+    pub tilt: Option<TiltSummary>,
     /// The split by shock and by condition (none from a cross-check engine, which keeps no
     /// parts).
     pub attribution: Option<Attribution>,
@@ -143,6 +146,11 @@ pub fn summarise(
     };
     // The split averages θ by θ: each θ's weight is its paths' together.
     let theta_weights = weights.as_ref().map(|_| normalise(&paths.log_weights).0);
+    // Targets on the distribution tilt the paths' weights (after any reweighting).
+    let (weights, tilt) = match tilt_paths(setup, &paths.conditional, weights.as_deref())? {
+        Some((w, t)) => (Some(w), Some(t)),
+        None => (weights, None),
+    };
     let attribution = if paths.parts.is_empty() {
         None
     } else {
@@ -180,6 +188,7 @@ pub fn summarise(
     Ok(Summaries {
         weights,
         effective_draws,
+        tilt,
         attribution,
         statistics,
         notes,

@@ -70,6 +70,8 @@ pub struct RunOutcome {
     pub checks: CheckReport,
     /// With reweighting: the effective sample size of the weighted posterior draws.
     pub effective_draws: Option<f64>,
+    /// With targets on the distribution: what the tilt did.
+    pub tilt: Option<crate::targets::TiltSummary>,
     /// The engine that drew the paths.
     pub engine: EngineKind,
     /// The departure from the unconditional forecast by shock and by condition (main engine).
@@ -167,6 +169,7 @@ pub fn run(setup: &mut Setup, options: &RunOptions) -> Result<RunOutcome, RunErr
         paths,
         checks,
         effective_draws: summaries.effective_draws,
+        tilt: summaries.tilt,
         engine: options.engine,
         attribution: summaries.attribution,
         summary: summaries.statistics,
@@ -273,6 +276,18 @@ pub fn summary(setup: &Setup, out: &RunOutcome) -> String {
             out.posterior_draws,
             if low { " (LOW: the fans rest on few draws)" } else { "" }
         ));
+    }
+    if let Some(t) = &out.tilt {
+        s.push(format!(
+            "targets    met by tilting the paths' weights: divergence {:.3} nats, effective paths {:.0} of {}",
+            t.divergence, t.effective_paths, t.paths
+        ));
+        for m in &t.targets {
+            s.push(format!(
+                "           {} [{}]: {:.4} on the tilted paths",
+                m.label, m.field, m.got
+            ));
+        }
     }
     if let Some(first) = out.paths.failures.first() {
         let unit = if out.paths.fixed {

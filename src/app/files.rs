@@ -179,6 +179,7 @@ pub fn scenario_for(path: &Path) -> Result<ScenarioFile, String> {
         seed: 1,
         pins: Vec::new(),
         corridors: Vec::new(),
+        targets: Vec::new(),
         checks: Default::default(),
         reweight: false,
         largest_root: LargestRoot::Keep,

@@ -978,6 +978,7 @@ fn blank(path: &Path) -> ScenarioFile {
         seed: 0,
         pins: Vec::new(),
         corridors: Vec::new(),
+        targets: Vec::new(),
         checks: Default::default(),
         reweight: false,
         largest_root: crate::scenario::LargestRoot::Keep,

@@ -286,6 +286,15 @@ fn footer(ui: &mut egui::Ui, app: &TiltyardApp, pal: &Palette) {
                     "reweighted by the scenario: effective sample size {ess:.0}"
                 ));
             }
+            match &r.targets {
+                Some(Ok(said)) => {
+                    ui.label(said);
+                }
+                Some(Err(why)) => {
+                    ui.colored_label(pal.clash, why);
+                }
+                None => {}
+            }
             ui.separator();
         }
         if let Some(e) = &app.export {

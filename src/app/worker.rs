@@ -8,6 +8,7 @@
 //! posterior mean first, then posterior draws in blocks, fans refreshed after each. A panic
 //! inside a job is caught and reported; the thread lives on.
 
+use crate::targets::tilt_paths;
 use std::panic::{AssertUnwindSafe, catch_unwind};
 use std::path::PathBuf;
 use std::sync::Arc;
@@ -108,6 +109,9 @@ pub struct Results {
     pub without_conditions: bool,
     /// With reweighting (ALGORITHMS §8.4): the effective number of posterior draws.
     pub effective_draws: Option<f64>,
+    /// With targets on the distribution: what tilting the paths did, or why it could not
+    /// (the fans are then untilted).
+    pub targets: Option<Result<String, String>>,
     /// Label of each horizon `x` from −history to h (index `x + history`).
     pub labels: Vec<String>,
     pub history: usize,
@@ -716,6 +720,21 @@ fn results(
         Some((w, ess)) => (Some(w), Some(ess)),
         None => (None, None),
     };
+    // Targets on the distribution tilt the weights, as in a headless run.
+    let (weights, targets) = match tilt_paths(setup, &paths.conditional, weights.as_deref()) {
+        Ok(Some((w, t))) => {
+            let said = format!(
+                "targets met by tilting: effective paths {:.0} of {}, divergence {:.2} nats",
+                t.effective_paths, t.paths, t.divergence
+            );
+            (Some(w), Some(Ok(said)))
+        }
+        Ok(None) => (weights, None),
+        Err(e) => (
+            weights,
+            Some(Err(format!("targets not met, fans untilted: {e}"))),
+        ),
+    };
     let cond = fans(
         setup,
         &paths.conditional,
@@ -787,6 +806,7 @@ fn results(
         preview,
         without_conditions: false,
         effective_draws,
+        targets,
         labels,
         history,
         last,

@@ -408,6 +408,11 @@ fn describe(e: &ForecastError) -> (&'static str, Vec<String>, &'static str) {
             corridors.clone(),
             "widen the corridors, or move them or the pins towards the unconditional forecast",
         ),
+        ForecastError::Target { label, .. } => (
+            "target_out_of_reach",
+            vec![label.clone()],
+            "move the target towards the scenario's fan, or change the other targets",
+        ),
         ForecastError::Singular(_)
         | ForecastError::NotFinite { .. }
         | ForecastError::NotStationary { .. }

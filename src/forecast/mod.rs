@@ -41,6 +41,13 @@ pub use theta::Theta;
 pub enum ForecastError {
     #[error("{0} is singular or not positive definite")]
     Singular(String),
+    /// A target on the distribution that cannot be met (scenario `targets`).
+    #[error("target {field} ({label}): {why}")]
+    Target {
+        field: String,
+        label: String,
+        why: String,
+    },
     #[error(
         "{} cannot be reached by the drivers ({drivers}){}: the moving shocks have no effect on {}. Add drivers or let them move over more periods, move the condition later, or loosen it",
         list(conditions), at_draw(*draw), if conditions.len() == 1 { "it" } else { "this combination" }

@@ -12,7 +12,7 @@ use std::path::{Path, PathBuf};
 pub use schema::describe_drivers;
 pub use schema::{
     Bound, Centre, CheckSettings, CorridorSpec, DriverSpec, FixedSpec, LargestRoot, ModelSpec,
-    PinSpec, ScenarioFile, SeriesSpec, Units,
+    PinSpec, ScenarioFile, SeriesSpec, TargetSpec, Units,
 };
 pub use setup::Setup;
 

@@ -64,6 +64,9 @@ pub struct ScenarioFile {
     pub pins: Vec<PinSpec>,
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub corridors: Vec<CorridorSpec>,
+    /// Targets on the distribution, met by tilting the paths' weights.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub targets: Vec<TargetSpec>,
     /// Thresholds of the scenario checks.
     #[serde(default, skip_serializing_if = "CheckSettings::is_default")]
     pub checks: CheckSettings,
@@ -278,6 +281,31 @@ impl DriverSpec {
     }
 }
 
+/// A target on the distribution of one series at one period, in chosen units: its mean, its
+/// standard deviation (the mean held where it is unless also targeted), or the probability
+/// that it is at or below `below` (or at or above `above`).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct TargetSpec {
+    pub series: String,
+    pub period: String,
+    #[serde(default)]
+    pub units: Units,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub mean: Option<f64>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub sd: Option<f64>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub probability: Option<f64>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub below: Option<f64>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub above: Option<f64>,
+    /// A switched-off target stays in the file but does not tilt the paths.
+    #[serde(default = "yes")]
+    pub active: bool,
+}
+
 /// The drivers in words: "output, unemployment (2026Q1 only)".
 pub fn describe_drivers(list: &[DriverSpec]) -> String {
     list.iter()
@@ -355,6 +383,9 @@ pub struct CheckSettings {
     /// With `largest_root: below(…)`: refuse when fewer than this share of the draws tried
     /// are kept.
     pub min_kept_share: f64,
+    /// With targets: refuse when the tilted weights' effective number of paths falls below
+    /// this share of the paths.
+    pub min_tilted_share: f64,
 }
 
 impl Default for CheckSettings {
@@ -367,6 +398,7 @@ impl Default for CheckSettings {
             blame_budget: 64,
             max_failed_share: 0.05,
             min_kept_share: 0.05,
+            min_tilted_share: 0.01,
         }
     }
 }

@@ -389,6 +389,7 @@ pub fn check_counts(file: &ScenarioFile) -> Result<(), ScenarioError> {
     for (field, share) in [
         ("checks.max_failed_share", checks.max_failed_share),
         ("checks.min_kept_share", checks.min_kept_share),
+        ("checks.min_tilted_share", checks.min_tilted_share),
     ] {
         if !(0.0..=1.0).contains(&share) {
             return bad(
