@@ -14,6 +14,7 @@ pub mod forecast;
 pub mod model;
 pub mod pipeline;
 pub mod report;
+pub mod reverse;
 pub mod run;
 pub mod scenario;
 pub mod targets;

@@ -111,6 +111,36 @@ enum Command {
         #[arg(long, default_value = "briefing")]
         out: PathBuf,
     },
+    /// Reverse stress test: the most plausible way for a series to reach a threshold (at
+    /// most, or at least) at some period of a range, keeping the scenario's pins and drivers;
+    /// writes it as a new scenario beside the first, with the outcome pinned where it
+    /// happens.
+    Reverse {
+        /// The scenario file (RON).
+        scenario: PathBuf,
+        /// The series of the outcome.
+        #[arg(long)]
+        series: String,
+        /// Its units, as in a scenario file (level, year_on_year, annualised, pct_change,
+        /// difference, "average(4)").
+        #[arg(long, default_value = "level")]
+        units: String,
+        /// The outcome is the series at or below this value.
+        #[arg(long, allow_hyphen_values = true, conflicts_with = "at_least")]
+        at_most: Option<f64>,
+        /// The outcome is the series at or above this value.
+        #[arg(long, allow_hyphen_values = true)]
+        at_least: Option<f64>,
+        /// First period the outcome may happen at.
+        #[arg(long)]
+        from: String,
+        /// Last period the outcome may happen at (default: the first).
+        #[arg(long)]
+        to: Option<String>,
+        /// Where to write the new scenario (default: beside the first, "-reverse" added).
+        #[arg(long)]
+        out: Option<PathBuf>,
+    },
     /// Check a scenario: clashes, strain, the conditions to blame and the plausibility;
     /// prints the report and writes checks.json. Exit status 2 when the conditions clash.
     Check {
@@ -218,6 +248,16 @@ fn main() -> ExitCode {
             threads,
             out,
         ),
+        Some(Command::Reverse {
+            scenario,
+            series,
+            units,
+            at_most,
+            at_least,
+            from,
+            to,
+            out,
+        }) => reverse_command(scenario, series, &units, (at_most, at_least), from, to, out),
         None => window(cli.scenario, cli.compare),
     };
     match result {
@@ -314,6 +354,121 @@ fn check_command(scenario: PathBuf, seed: Option<u64>, out: PathBuf) -> anyhow::
     } else {
         Outcome::Done
     })
+}
+
+fn reverse_command(
+    scenario: PathBuf,
+    series: String,
+    units: &str,
+    bound: (Option<f64>, Option<f64>),
+    from: String,
+    to: Option<String>,
+    out: Option<PathBuf>,
+) -> anyhow::Result<Outcome> {
+    use tiltyard::reverse::{self, Outcome as Wanted};
+    let setup = tiltyard::scenario::load(&scenario)?;
+    let units: tiltyard::scenario::Units = ron::from_str(units)
+        .map_err(|e| anyhow::anyhow!("--units {units}: not a unit of a scenario file ({e})"))?;
+    let (threshold, at_most) = match bound {
+        (Some(c), None) => (c, true),
+        (None, Some(c)) => (c, false),
+        _ => anyhow::bail!("give the outcome's threshold with --at-most or --at-least"),
+    };
+    let wanted = Wanted {
+        series,
+        units,
+        threshold,
+        at_most,
+        to: to.unwrap_or_else(|| from.clone()),
+        from,
+    };
+    let model = tiltyard::pipeline::Model::new(&setup)?;
+    let found = reverse::reverse(&setup, &model.central, &wanted)?;
+    println!("scenario   {} ({})", setup.file.name, scenario.display());
+    println!(
+        "outcome    {}, from {} to {}",
+        reverse::describe(&wanted),
+        wanted.from,
+        wanted.to
+    );
+    for (period, r) in &found.by_period {
+        match r {
+            Ok(d) => println!("  {period}  ½ε'ε = {d:.3} nats"),
+            Err(why) => println!("  {period}  out of reach: {why}"),
+        }
+    }
+    if found.binding {
+        println!(
+            "most plausible: the outcome in {}, with mean structural shocks of ½ε'ε = {:.3} nats (at {})",
+            found.period, found.divergence, model.central_label
+        );
+    } else {
+        println!(
+            "the scenario as it stands already meets the outcome on average in {}: nothing to add",
+            found.period
+        );
+    }
+    let one_in = |p: f64| tiltyard::checks::one_in(p.max(f64::MIN_POSITIVE).log10());
+    println!(
+        "probability of the outcome in {} under the scenario's pins: {:.2e} ({}); at some period from {} to {}: {:.3} ± {:.3} (from drawn paths)",
+        found.period,
+        found.probability,
+        one_in(found.probability),
+        wanted.from,
+        wanted.to,
+        found.probability_any.0,
+        found.probability_any.1
+    );
+    let n = setup.n();
+    let mut by_shock: Vec<(f64, String)> = (0..n)
+        .map(|j| {
+            let ss: f64 = found.shocks.iter().skip(j).step_by(n).map(|e| e * e).sum();
+            (ss, setup.names[j].clone())
+        })
+        .collect();
+    by_shock.sort_by(|a, b| b.0.total_cmp(&a.0));
+    let total: f64 = by_shock
+        .iter()
+        .map(|b| b.0)
+        .sum::<f64>()
+        .max(f64::MIN_POSITIVE);
+    let shares: Vec<String> = by_shock
+        .iter()
+        .filter(|b| b.0 > 1e-12 * total)
+        .map(|(ss, name)| format!("{name} {:.0}%", 100.0 * ss / total))
+        .collect();
+    println!("shocks     share of ε'ε by shock: {}", shares.join(", "));
+    let t = setup.horizon_of(&found.period, "period")?;
+    let at: Vec<String> = reverse::path_table(&setup, &found)
+        .iter()
+        .map(|(name, v)| format!("{name} {:.2}", v[t - 1]))
+        .collect();
+    println!(
+        "path at {} (display units): {}",
+        found.period,
+        at.join(", ")
+    );
+    let path = out.unwrap_or_else(|| {
+        let stem = scenario
+            .file_stem()
+            .map_or("scenario".into(), |s| s.to_string_lossy());
+        scenario.with_file_name(format!("{stem}-reverse.ron"))
+    });
+    let original = std::fs::read_to_string(&scenario).ok();
+    let text = tiltyard::scenario::layout::save_text(original.as_deref(), &found.scenario);
+    tiltyard::report::write_atomic(&path, text.as_bytes())
+        .with_context(|| format!("cannot write {}", path.display()))?;
+    let new = tiltyard::scenario::Setup::new(found.scenario.clone(), &path)?;
+    let report = check(&new)?;
+    if let Some(h) = &report.against_history {
+        println!("history    {}", h.reading);
+    }
+    println!(
+        "wrote      {} (the outcome pinned where it happens: edit it further)",
+        path.display()
+    );
+    println!("\n{CAUTION}");
+    Ok(Outcome::Done)
 }
 
 fn run_command(

@@ -132,7 +132,7 @@ impl Setup {
         }
     }
 
-    fn pin(&self, k: usize, spec: &PinSpec) -> Result<Pin, ScenarioError> {
+    pub fn pin(&self, k: usize, spec: &PinSpec) -> Result<Pin, ScenarioError> {
         let field = format!("pins[{k}]");
         if !spec.value.is_finite() {
             return Err(ScenarioError::Invalid {

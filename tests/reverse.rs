@@ -1,0 +1,127 @@
+//! Reverse stress test: the most plausible path to an outcome, keeping the scenario's pins,
+//! against the closed form computed independently with numpy and scipy
+//! (`tests/fixtures/reverse.json`, made by `tests/fixtures/make_reverse.py`): the mean path,
+//! the divergence of its shocks and the outcome's probability. Also: an outcome the scenario
+//! already meets adds nothing, the search over periods picks the least divergent, and an
+//! outcome the drivers cannot reach is named.
+
+mod common;
+
+use common::*;
+use nalgebra::DMatrix;
+use serde_json::Value;
+use tiltyard::pipeline::Model;
+use tiltyard::reverse::{Outcome, ReverseError, reverse};
+use tiltyard::scenario::{self, Setup, Units};
+
+/// Exact parts: relative 1e-9 · cond (ALGORITHMS §11.4; the scaled Gram matrix's condition
+/// number is in the fixture, 13 here).
+const EXACT: f64 = 1e-9;
+
+fn levels(fx: &Value, edit: impl Fn(&mut Value), dir: &tempfile::TempDir) -> Setup {
+    let mut case = fx["cases"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|c| c["name"] == "levels")
+        .unwrap()
+        .clone();
+    edit(&mut case);
+    scenario::load(&write_scenario(dir, &pins_case_scenario(fx, &case))).unwrap()
+}
+
+fn realinv(threshold: f64, at_most: bool, from: &str, to: &str) -> Outcome {
+    Outcome {
+        series: "realinv".into(),
+        units: Units::Level,
+        threshold,
+        at_most,
+        from: from.into(),
+        to: to.into(),
+    }
+}
+
+#[test]
+fn one_outcome_matches_the_closed_form() {
+    let fx = json("pins_gaussian.json");
+    let want = json("reverse.json");
+    let dir = tempfile::tempdir().unwrap();
+    let setup = levels(&fx, |_| {}, &dir);
+    let theta = Model::new(&setup).unwrap().central;
+    let x = want["threshold_level"].as_f64().unwrap();
+    let r = reverse(&setup, &theta, &realinv(x, true, "2010Q4", "2010Q4")).unwrap();
+    let tol = EXACT * want["condition_number"].as_f64().unwrap();
+    assert!(r.binding);
+    let e = rel_err(
+        &DMatrix::from_column_slice(32, 1, &r.path),
+        &DMatrix::from_column_slice(32, 1, vector(&want["mean"]).as_slice()),
+    );
+    let d = want["divergence"].as_f64().unwrap();
+    let p = want["probability"].as_f64().unwrap();
+    println!(
+        "path {e:.1e}, divergence {} ({d}), probability {} ({p})",
+        r.divergence, r.probability
+    );
+    assert!(e < tol, "path {e:e}");
+    assert!((r.divergence - d).abs() < tol * d, "divergence");
+    assert!((r.probability - p).abs() < tol * p, "probability");
+    // The new scenario carries the outcome as a pin where it happens.
+    let pin = r.scenario.pins.last().unwrap();
+    assert_eq!((pin.period.as_str(), pin.value), ("2010Q4", x));
+    // Over one period, drawn paths give the same probability within 4 standard errors.
+    let (any, se) = r.probability_any;
+    assert!((any - p).abs() < 4.0 * se, "{any} ± {se} against {p}");
+}
+
+#[test]
+fn an_outcome_already_met_adds_nothing_and_the_search_picks_the_least_divergent() {
+    let fx = json("pins_gaussian.json");
+    let dir = tempfile::tempdir().unwrap();
+    let setup = levels(&fx, |_| {}, &dir);
+    let theta = Model::new(&setup).unwrap().central;
+    let met = reverse(&setup, &theta, &realinv(1e9, true, "2010Q4", "2010Q4")).unwrap();
+    assert!(!met.binding);
+    assert_eq!(met.scenario.pins.len(), setup.file.pins.len());
+    let want = json("reverse.json");
+    let x = want["threshold_level"].as_f64().unwrap();
+    let r = reverse(&setup, &theta, &realinv(x, true, "2010Q1", "2011Q3")).unwrap();
+    let least = r
+        .by_period
+        .iter()
+        .filter_map(|(p, d)| d.as_ref().ok().map(|d| (p, *d)))
+        .min_by(|a, b| a.1.total_cmp(&b.1))
+        .unwrap();
+    assert_eq!(least.0, &r.period);
+    assert_eq!(least.1, r.divergence);
+    assert_eq!(r.by_period.len(), 7);
+}
+
+#[test]
+fn an_outcome_the_drivers_cannot_reach_is_named() {
+    let fx = json("pins_gaussian.json");
+    let dir = tempfile::tempdir().unwrap();
+    // No pins; realgdp's shock may move only from 2011Q1 on.
+    let setup = levels(
+        &fx,
+        |c| {
+            c["pins"] = Value::Array(Vec::new());
+            c["drivers"] = serde_json::json!(["realgdp"]);
+        },
+        &dir,
+    );
+    let mut file = setup.file.clone();
+    file.drivers = Some(vec![scenario::DriverSpec::Timed {
+        shock: "realgdp".into(),
+        from: "2011Q1".into(),
+        to: "2011Q3".into(),
+    }]);
+    let setup = Setup::new(file, &setup.path).unwrap();
+    let theta = Model::new(&setup).unwrap().central;
+    let err = reverse(&setup, &theta, &realinv(1.0, true, "2010Q2", "2010Q4")).unwrap_err();
+    assert!(matches!(err, ReverseError::Unreachable { .. }));
+    let text = err.to_string();
+    assert!(
+        text.contains("realinv") && text.contains("no shock may move before 2011Q1"),
+        "{text}"
+    );
+}
