@@ -208,7 +208,7 @@ fn outcome_pin(setup: &Setup, outcome: &Outcome, t: usize) -> Result<Pin, Scenar
         value: outcome.threshold,
         active: true,
     };
-    setup.pin(setup.file.pins.len(), &spec)
+    setup.pin_at("outcome", &spec)
 }
 
 fn row_of(pin: &Pin) -> Vec<(usize, f64)> {

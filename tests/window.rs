@@ -1511,3 +1511,59 @@ fn a_timed_driver_shows_its_periods() {
     settle(&mut h);
     assert!(!h.state().stale(), "the edited drivers still meet the pins");
 }
+
+/// The reverse stress test from the window: the outcome found off the window's thread is the
+/// headless command's (same period), and its button adds the outcome as a pin (one undo step).
+#[test]
+fn the_reverse_stress_test_adds_its_outcome_as_a_pin() {
+    let dir = tempfile::tempdir().unwrap();
+    let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("scenarios-demo");
+    let mut file = scenario::read(&root.join("adverse-pins.ron")).unwrap();
+    file.dataset = root.join("economy.csv").display().to_string();
+    file.draws = 100;
+    let path = dir.path().join("reverse.ron");
+    std::fs::write(&path, scenario::to_text(&file)).unwrap();
+    let mut h = harness(&path);
+    settle(&mut h);
+    h.get_by_label("reverse stress test…").click();
+    h.run_steps(2);
+    {
+        let r = &mut h.state_mut().reverse;
+        r.series = "bank_lending".into();
+        r.units = scenario::Units::YearOnYear;
+        r.at_most = true;
+        r.threshold = -10.0;
+        r.from = "2026Q1".into();
+        r.to = "2028Q4".into();
+    }
+    h.run_steps(2);
+    h.get_by_label("Find").click();
+    let start = Instant::now();
+    while h.state().reverse.answer.is_none() {
+        h.step();
+        std::thread::sleep(Duration::from_millis(20));
+        assert!(start.elapsed() < Duration::from_secs(60), "no answer");
+    }
+    h.run_steps(2);
+    // The headless engine on the same file.
+    let setup = scenario::Setup::new(file, &path).unwrap();
+    let model = tiltyard::pipeline::Model::new(&setup).unwrap();
+    let outcome = tiltyard::reverse::Outcome {
+        series: "bank_lending".into(),
+        units: scenario::Units::YearOnYear,
+        threshold: -10.0,
+        at_most: true,
+        from: "2026Q1".into(),
+        to: "2028Q4".into(),
+    };
+    let want = tiltyard::reverse::reverse(&setup, &model.central, &outcome).unwrap();
+    let said = format!("in {}, with mean structural shocks", want.period);
+    assert!(h.query_by_label_contains(&said).is_some(), "{said}");
+    let pins = h.state().doc.file.pins.len();
+    h.get_by_label("Add the outcome as a pin").click();
+    h.run_steps(2);
+    let file = &h.state().doc.file;
+    assert_eq!(file.pins.len(), pins + 1);
+    assert_eq!(file.pins[pins].period, want.period);
+    assert!(h.state().doc.can_undo());
+}

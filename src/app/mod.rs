@@ -28,6 +28,7 @@ pub mod narrative;
 pub mod palette;
 pub mod panels;
 pub mod paths_table;
+pub mod reverse_panel;
 pub mod second;
 pub mod settings;
 pub mod sources;
@@ -92,6 +93,8 @@ pub struct TiltyardApp {
     pub second: Option<second::Second>,
     /// The narrative's draft and the conditions it was last checked against.
     pub narrative: narrative::NarrativeState,
+    /// The reverse stress test's form and answer.
+    pub reverse: reverse_panel::ReverseState,
     // The document's life: prompts, dialogs, saves, recovery.
     pub prompt: Option<Prompt>,
     dialogs: Dialogs,
@@ -160,6 +163,7 @@ impl TiltyardApp {
             second: None,
             export: None,
             narrative,
+            reverse: reverse_panel::ReverseState::default(),
             prompt,
             dialogs: Dialogs::new(picker),
             chores: Chores::start(),

@@ -63,6 +63,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp) {
             });
         });
     egui::CentralPanel::default().show(ui, |ui| super::grid::show(ui, app, &pal));
+    super::reverse_panel::show(ui.ctx(), app, &pal);
     prompts(ui, app);
 }
 

@@ -48,6 +48,13 @@ pub fn conditions(ui: &mut Ui, app: &mut TiltyardApp, pal: &Palette) {
         if ui.small_button("+ corridor").clicked() {
             edits_apply(app, vec![Edit::AddCorridor]);
         }
+        if ui
+            .small_button("reverse stress test…")
+            .on_hover_text("Find the most plausible way for a series to reach a threshold")
+            .clicked()
+        {
+            app.reverse.open = !app.reverse.open;
+        }
     });
     ui.label(
         RichText::new("On a chart: drag across future periods to draw a corridor, Ctrl+click to place a pin, drag a handle to move it (Shift: no snapping; Ctrl on an edge: that period only).")

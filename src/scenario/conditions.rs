@@ -132,8 +132,13 @@ impl Setup {
         }
     }
 
-    pub fn pin(&self, k: usize, spec: &PinSpec) -> Result<Pin, ScenarioError> {
-        let field = format!("pins[{k}]");
+    fn pin(&self, k: usize, spec: &PinSpec) -> Result<Pin, ScenarioError> {
+        self.pin_at(&format!("pins[{k}]"), spec)
+    }
+
+    /// A pin in engine form, its messages naming it by `field` (`pins[2]`, `outcome`).
+    pub fn pin_at(&self, field: &str, spec: &PinSpec) -> Result<Pin, ScenarioError> {
+        let field = field.to_string();
         if !spec.value.is_finite() {
             return Err(ScenarioError::Invalid {
                 field: format!("{field}.value"),
