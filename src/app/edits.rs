@@ -5,7 +5,7 @@
 use super::chart::tidy;
 use super::gesture::{ChartAction, CondRef};
 use super::worker::Subject;
-use crate::scenario::{Bound, CorridorSpec, DriverSpec, PinSpec, ScenarioFile};
+use crate::scenario::{Bound, CorridorSpec, DriverSpec, PinSpec, ScenarioFile, Units};
 
 /// Apply an editing action of the chart of series or shock `name` to `f`; the condition to
 /// select afterwards, if the selection changes (a new or redrawn condition). Actions that do
@@ -93,16 +93,7 @@ pub fn apply(
             upper,
         } => {
             let c = f.corridors.get_mut(corridor)?;
-            c.from = from;
-            c.to = to;
-            c.units = units;
-            // An open side stays open; a bound becomes the drawn one.
-            if c.lower.is_some() {
-                c.lower = Some(Bound::Same(lower));
-            }
-            if c.upper.is_some() {
-                c.upper = Some(Bound::Same(upper));
-            }
+            redraw(c, (from, to), units, (lower, upper));
             Some(CondRef::Corridor(corridor))
         }
         ChartAction::BeginGesture
@@ -110,6 +101,24 @@ pub fn apply(
         | ChartAction::Select(_)
         | ChartAction::Remove(_)
         | ChartAction::Enlarge => None,
+    }
+}
+
+/// A corridor drawn again: its periods, units and drawn bounds; an open side stays open.
+fn redraw(
+    c: &mut CorridorSpec,
+    (from, to): (String, String),
+    units: Units,
+    (lower, upper): (f64, f64),
+) {
+    c.from = from;
+    c.to = to;
+    c.units = units;
+    if c.lower.is_some() {
+        c.lower = Some(Bound::Same(lower));
+    }
+    if c.upper.is_some() {
+        c.upper = Some(Bound::Same(upper));
     }
 }
 

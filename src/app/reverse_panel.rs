@@ -229,6 +229,11 @@ fn form(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
             });
             ui.end_row();
         });
+    answer(ui, app, pal);
+}
+
+/// Find, and the answer: its lines and the button that adds the outcome as a pin.
+fn answer(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     let running = app.reverse.job.is_some();
     if ui
         .add_enabled(!running, egui::Button::new("Find"))

@@ -700,19 +700,18 @@ fn historical_shocks(setup: &Setup, theta: &Theta, history: usize) -> Vec<(f64, 
         .collect()
 }
 
-/// Fans and history of every series in display units, and fans of every shock with the
-/// model's own historical shocks at the central θ.
-fn results(
-    setup: &Setup,
-    central: &Theta,
-    paths: &PathSet,
-    shocks: &Shocks,
-    draws: usize,
-    total: usize,
-    preview: bool,
-) -> Results {
-    // Reweighting: each θ's weight shared by its paths (the preview has one θ: no weights);
-    // the unconditional fans keep p(θ | data).
+/// Weights (none: equal), effective draws, and what the tilt did or why it could not.
+type Weighting = (
+    Option<Vec<f64>>,
+    Option<f64>,
+    Option<Result<String, String>>,
+);
+
+/// The conditional paths' weights: reweighting (each θ's weight shared by its paths; the
+/// preview has one θ: no weights; the unconditional fans keep p(θ | data)), then the tilt
+/// that meets targets on the distribution, as in a headless run. Also the effective number
+/// of draws, and what the tilt did or why it could not (the weights are then untilted).
+fn conditional_weights(setup: &Setup, paths: &PathSet) -> Weighting {
     let reweighted = (paths.log_weights.len() > 1)
         .then(|| crate::forecast::path_weights(&paths.log_weights, setup.file.paths_per_draw))
         .flatten();
@@ -720,7 +719,6 @@ fn results(
         Some((w, ess)) => (Some(w), Some(ess)),
         None => (None, None),
     };
-    // Targets on the distribution tilt the weights, as in a headless run.
     let (weights, targets) = match tilt_paths(setup, &paths.conditional, weights.as_deref()) {
         Ok(Some((w, t))) => {
             let said = format!(
@@ -735,6 +733,21 @@ fn results(
             Some(Err(format!("targets not met, fans untilted: {e}"))),
         ),
     };
+    (weights, effective_draws, targets)
+}
+
+/// Fans and history of every series in display units, and fans of every shock with the
+/// model's own historical shocks at the central θ.
+fn results(
+    setup: &Setup,
+    central: &Theta,
+    paths: &PathSet,
+    shocks: &Shocks,
+    draws: usize,
+    total: usize,
+    preview: bool,
+) -> Results {
+    let (weights, effective_draws, targets) = conditional_weights(setup, paths);
     let cond = fans(
         setup,
         &paths.conditional,
