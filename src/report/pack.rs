@@ -315,11 +315,23 @@ fn page(
             crate::scenario::describe_drivers(d)
         ),
     };
-    let _ = writeln!(h, "</ul><p>{}</p></section>", escape(&drivers));
+    let _ = writeln!(h, "</ul><p>{}</p>", escape(&drivers));
+    if let Some(t) = &out.tilt {
+        let _ = writeln!(
+            h,
+            "<p>Targets on the distribution, met by tilting the weights of the paths as little as possible (relative entropy {:.3} nats; the fans rest on about {:.0} of {} paths):</p><ul>",
+            t.divergence, t.effective_paths, t.paths
+        );
+        for m in &t.targets {
+            let _ = writeln!(h, "<li>{}</li>", escape(&m.label));
+        }
+        h.push_str("</ul>\n");
+    }
+    h.push_str("</section>\n");
     checks(&mut h, out);
     let _ = write!(
         h,
-        "<section><h2>Paths</h2><p>Grey: the model's forecast without the conditions (90% band, dashed median). Teal: under the scenario (90%, 68% and 50% bands, median). Orange dots: pins; violet boxes: corridors.</p>\n{figures}</section>\n"
+        "<section><h2>Paths</h2><p>Grey: the model's forecast without the conditions (90% band, dashed median). Teal: under the scenario (90%, 68% and 50% bands, median). Rose diamonds: pins; violet boxes: corridors.</p>\n{figures}</section>\n"
     );
     if !sources.is_empty() {
         let ordering: Vec<&str> = setup
