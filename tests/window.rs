@@ -1567,3 +1567,36 @@ fn the_reverse_stress_test_adds_its_outcome_as_a_pin() {
     assert_eq!(file.pins[pins].period, want.period);
     assert!(h.state().doc.can_undo());
 }
+
+/// A target on the distribution added in the window tilts the fans (the footer says so and the
+/// chart's median moves towards it); undo takes it away.
+#[test]
+fn a_target_added_in_the_window_tilts_the_fans() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut h = harness(&demo_copy(&dir));
+    settle(&mut h);
+    h.get_by_label("+ target").click();
+    h.run_steps(2);
+    assert_eq!(h.state().doc.file.targets.len(), 1);
+    let mean_of = |h: &Harness<'static, TiltyardApp>| {
+        let r = h.state().session.results.clone().unwrap();
+        let v = r.series.iter().find(|v| v.name == "unemployment").unwrap();
+        v.conditional.iter().find(|f| f.x == 8.0).unwrap().q[3]
+    };
+    let before = mean_of(&h);
+    h.state_mut().doc.edit(|f| {
+        let t = &mut f.targets[0];
+        t.series = "unemployment".into();
+        t.period = "2027Q4".into();
+        t.mean = Some(before + 0.2);
+    });
+    settle(&mut h);
+    assert!(
+        h.query_by_label_contains("targets met by tilting")
+            .is_some()
+    );
+    assert!(mean_of(&h) > before, "the median moves towards the target");
+    h.state_mut().doc.undo();
+    h.state_mut().doc.undo();
+    assert!(h.state().doc.file.targets.is_empty());
+}

@@ -34,6 +34,7 @@ pub mod settings;
 pub mod sources;
 pub mod state;
 pub mod table;
+pub mod targets_table;
 pub mod worker;
 
 use std::path::{Path, PathBuf};

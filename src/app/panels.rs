@@ -57,6 +57,8 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp) {
         .show(ui, |ui| {
             egui::ScrollArea::vertical().show(ui, |ui| {
                 table::conditions(ui, app, &pal);
+                ui.separator();
+                super::targets_table::show(ui, app, &pal);
                 super::second::panel(ui, app, &pal);
                 ui.separator();
                 checks(ui, app, &pal);
