@@ -138,6 +138,32 @@ pub fn set_driver(f: &mut ScenarioFile, order: &[String], name: &str, on: bool) 
     f.drivers = (!every).then_some(d);
 }
 
+/// Let shock `name` move over `periods` (first and last) only, or at every period (`None`);
+/// it becomes a driver if it was not one.
+pub fn set_driver_periods(
+    f: &mut ScenarioFile,
+    order: &[String],
+    name: &str,
+    periods: Option<(String, String)>,
+) {
+    set_driver(f, order, name, true);
+    let Some((from, to)) = periods else {
+        return;
+    };
+    let mut d = f
+        .drivers
+        .clone()
+        .unwrap_or_else(|| order.iter().cloned().map(DriverSpec::Always).collect());
+    for x in d.iter_mut().filter(|x| x.shock() == name) {
+        *x = DriverSpec::Timed {
+            shock: name.to_string(),
+            from: from.clone(),
+            to: to.clone(),
+        };
+    }
+    f.drivers = Some(d);
+}
+
 /// Move a condition's value by `delta` (a corridor's bounds all together) and its periods to
 /// where `shifted` takes them (a corridor only when both ends stay within the forecast).
 pub fn nudge(
@@ -357,6 +383,18 @@ mod tests {
         assert_eq!(f.drivers, always(&["b"]));
         set_driver(&mut f, &order, "a", true);
         set_driver(&mut f, &order, "c", true);
+        // Timed, then at every period again.
+        set_driver_periods(
+            &mut f,
+            &order,
+            "a",
+            Some(("2026Q1".into(), "2026Q1".into())),
+        );
+        assert!(
+            matches!(&f.drivers.as_ref().unwrap()[0], DriverSpec::Timed { shock, .. } if shock == "a")
+        );
+        set_driver_periods(&mut f, &order, "a", None);
+        assert_eq!(f.drivers, None);
         // Every shock ticked again: no list.
         set_driver(&mut f, &order, "b", true);
         assert_eq!(f.drivers, None);

@@ -409,21 +409,22 @@ fn shock_list(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     );
     let order = shock_order(app);
     let mut toggle = None;
+    let mut timed: Option<(String, Option<(String, String)>)> = None;
+    let whole = forecast_span(app);
     for name in &order {
-        // `None`: not a driver; else the periods it moves at, when only some.
+        // `None`: not a driver; `Some(None)`: at every period; else its periods.
         let timing = match &app.doc.file.drivers {
             None => Some(None),
             Some(list) => list.iter().find(|d| d.shock() == name).map(|d| match d {
                 DriverSpec::Always(_) => None,
-                DriverSpec::Timed { from, to, .. } if from == to => Some(format!("in {from}")),
-                DriverSpec::Timed { from, to, .. } => Some(format!("{from}–{to}")),
+                DriverSpec::Timed { from, to, .. } => Some((from.clone(), to.clone())),
             }),
         };
         let mut drives = timing.is_some();
         ui.horizontal(|ui| {
             if ui
                 .checkbox(&mut drives, format!("{} shock", app.shown(name)))
-                .on_hover_text("Ticking makes it move at every period; a driver over some periods only is set in the scenario file")
+                .on_hover_text("Ticked: it moves (at every period, or at those set under it) to meet the conditions")
                 .changed()
             {
                 toggle = Some((name.clone(), drives));
@@ -432,17 +433,42 @@ fn shock_list(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
                 dot(ui, severity_colour(pal, s));
             }
         });
-        if let Some(Some(when)) = &timing {
-            // Under its name: the panel is narrow.
-            let periods = when.trim_start_matches(name.as_str()).trim();
-            ui.indent(("timing", name.as_str()), |ui| {
-                ui.label(
-                    RichText::new(format!("moves {periods} only"))
-                        .small()
-                        .color(pal.muted),
-                );
-            });
-        }
+        // Its periods under its name (the panel is narrow).
+        // (With every shock driving, no per-shock controls: forty series would double the list.)
+        let Some(timing) = timing.filter(|_| app.doc.file.drivers.is_some()) else {
+            continue;
+        };
+        ui.indent(("timing", name.as_str()), |ui| match &timing {
+            Some((from, to)) => {
+                ui.horizontal(|ui| {
+                    ui.label(RichText::new("moves from").small().color(pal.muted));
+                    let f = super::table::draft_field(ui, ("driver from", name), from, &format!("{name} moves from"), "");
+                    ui.label(RichText::new("to").small().color(pal.muted));
+                    let t = super::table::draft_field(ui, ("driver to", name), to, &format!("{name} moves to"), "");
+                    if f.is_some() || t.is_some() {
+                        let periods = (f.unwrap_or(from.clone()), t.unwrap_or(to.clone()));
+                        timed = Some((name.clone(), Some(periods)));
+                    }
+                });
+                if ui.small_button("every period").clicked() {
+                    timed = Some((name.clone(), None));
+                }
+            }
+            None => {
+                if let Some((first, last)) = &whole
+                    && ui
+                        .small_button("only some periods…")
+                        .on_hover_text("Let this shock move only over some periods (a scenario announced at once: its first quarter only)")
+                        .clicked()
+                {
+                    timed = Some((name.clone(), Some((first.clone(), last.clone()))));
+                }
+            }
+        });
+    }
+    if let Some((name, periods)) = timed {
+        app.doc
+            .edit(|f| super::edits::set_driver_periods(f, &order, &name, periods));
     }
     if let Some((name, on)) = toggle {
         app.doc
@@ -504,6 +530,13 @@ pub(super) fn units_box(ui: &mut egui::Ui, app: &mut TiltyardApp, i: usize, name
     {
         app.doc.edit(|f| f.series[i].display = u);
     }
+}
+
+/// The forecast's first and last period labels (once the engine has answered).
+fn forecast_span(app: &TiltyardApp) -> Option<(String, String)> {
+    let r = app.session.results.as_ref()?;
+    let h = app.doc.file.horizon as f64;
+    Some((r.label(1.0)?.to_string(), r.label(h)?.to_string()))
 }
 
 /// Shock names in identification order.

@@ -132,8 +132,12 @@ fn row(
                     ui.selectable_value(&mut t.series, name.clone(), shown);
                 }
             });
-        ui.add(egui::TextEdit::singleline(&mut t.period).desired_width(60.0))
-            .accessible_name(format!("target {k} period"));
+        let name = format!("target {k} period");
+        if let Some(text) =
+            super::table::draft_field(ui, ("target period", k), &t.period, &name, "")
+        {
+            t.period = text;
+        }
         removed = ui.small_button("remove").clicked();
     });
     ui.horizontal(|ui| {
