@@ -100,12 +100,14 @@ pub fn reverse(setup: &Setup, theta: &Theta, outcome: &Outcome) -> Result<Revers
     let first = setup.horizon_of(&outcome.from, "outcome.from")?;
     let last = setup.horizon_of(&outcome.to, "outcome.to")?;
     let label = |t: usize| setup.last_period().offset(t as i64).to_string();
+    // The outcome at each period of the range, as a pin at the threshold.
+    let pins: Vec<(usize, Pin)> = (first..=last)
+        .map(|t| outcome_pin(setup, outcome, t).map(|p| (t, p)))
+        .collect::<Result<_, _>>()?;
     let mut by_period = Vec::new();
     let mut best: Option<(usize, f64, Plan, Pin, bool)> = None;
-    for t in first..=last {
-        let pin = outcome_pin(setup, outcome, t)?;
-        let row = row_of(&pin);
-        let q = row.iter().map(|&(c, a)| a * mean[c]).sum::<f64>();
+    for (t, pin) in pins.iter().cloned() {
+        let q = quantity(&pin, mean.as_slice());
         let met = if outcome.at_most {
             q <= pin.value
         } else {
@@ -160,7 +162,7 @@ pub fn reverse(setup: &Setup, theta: &Theta, outcome: &Outcome) -> Result<Revers
         }
     }
     let row = row_of(&pin);
-    let q = row.iter().map(|&(c, a)| a * mean[c]).sum::<f64>();
+    let q = quantity(&pin, mean.as_slice());
     let cov = &cov;
     let var: f64 = row
         .iter()
@@ -172,7 +174,8 @@ pub fn reverse(setup: &Setup, theta: &Theta, outcome: &Outcome) -> Result<Revers
     } else {
         ln_phi_upper(z).exp()
     };
-    let probability_any = probability_over(setup, theta, &base, outcome, first..=last)?;
+    let outcome_pins: Vec<Pin> = pins.into_iter().map(|(_, p)| p).collect();
+    let probability_any = probability_over(setup, theta, &base, outcome, &outcome_pins)?;
     let mut scenario = setup.file.clone();
     if binding {
         scenario.name = format!("{} — reverse stress: {}", scenario.name, describe(outcome));
@@ -211,6 +214,11 @@ fn outcome_pin(setup: &Setup, outcome: &Outcome, t: usize) -> Result<Pin, Scenar
     setup.pin_at("outcome", &spec)
 }
 
+/// The outcome's quantity `Σ coef · y[cell]` on a path in model units.
+fn quantity(pin: &Pin, y: &[f64]) -> f64 {
+    row_of(pin).iter().map(|&(c, a)| a * y[c]).sum()
+}
+
 fn row_of(pin: &Pin) -> Vec<(usize, f64)> {
     match &pin.target {
         Target::Path { terms } => terms.clone(),
@@ -225,11 +233,8 @@ fn probability_over(
     theta: &Theta,
     base: &Plan,
     outcome: &Outcome,
-    range: std::ops::RangeInclusive<usize>,
+    pins: &[Pin],
 ) -> Result<(f64, f64), ReverseError> {
-    let pins: Vec<Pin> = range
-        .map(|t| outcome_pin(setup, outcome, t))
-        .collect::<Result<_, _>>()?;
     let mut rng = stream(setup.file.seed, Purpose::Checks, 3);
     let mut rngs: Vec<rand_chacha::ChaCha8Rng> = (0..PROBABILITY_PATHS)
         .map(|_| rand_chacha::ChaCha8Rng::from_rng(&mut rng))

@@ -14,7 +14,7 @@ use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
 use serde_json::Value;
 use tiltyard::forecast::rows::Rows;
-use tiltyard::forecast::{ParamSource, Plan, Sampling, Theta, ThetaSet, sample_paths};
+use tiltyard::forecast::{Plan, Sampling, ThetaSet, sample_paths};
 use tiltyard::scenario::{self, Setup};
 
 /// Rows and bounds in model units agree to this (relative; both sides are exact formulas).
@@ -103,19 +103,6 @@ fn case_setup(fx: &Value, case: &Value, dir: &tempfile::TempDir) -> Setup {
     scenario::load(&path).unwrap()
 }
 
-fn theta_of(setup: &Setup) -> Theta {
-    let (ParamSource::Fixed(p), _) = setup.estimate().unwrap() else {
-        panic!("fixed")
-    };
-    Theta::new(
-        p,
-        &setup.ordering,
-        &setup.tail().unwrap(),
-        setup.file.horizon,
-    )
-    .unwrap()
-}
-
 fn bounds(v: &Value, open: f64) -> Vec<f64> {
     v.as_array()
         .unwrap()
@@ -133,7 +120,7 @@ fn corridor_rows_match_numpy() {
         let name = case["name"].as_str().unwrap();
         let dir = tempfile::tempdir().unwrap();
         let setup = case_setup(&fx, case, &dir);
-        let theta = theta_of(&setup);
+        let theta = fixed_theta(&setup);
         let rows = Rows::new(&theta, &setup.conditions().unwrap(), None).unwrap();
         let s = matrix(&case["rows"]["S"]);
         let lower = bounds(&case["rows"]["lower"], f64::NEG_INFINITY);
@@ -167,7 +154,7 @@ fn corridor_probability_matches_scipy() {
         let name = case["name"].as_str().unwrap();
         let dir = tempfile::tempdir().unwrap();
         let setup = case_setup(&fx, case, &dir);
-        let theta = theta_of(&setup);
+        let theta = fixed_theta(&setup);
         let plan = Plan::new(&theta, &setup.conditions().unwrap(), None).unwrap();
         let law = plan.model_law().unwrap().unwrap();
         let est = law
@@ -199,7 +186,7 @@ fn driver_corridor_probability_matches_scipy() {
         .unwrap();
     let dir = tempfile::tempdir().unwrap();
     let setup = case_setup(&fx, case, &dir);
-    let theta = theta_of(&setup);
+    let theta = fixed_theta(&setup);
     let plan = Plan::new(&theta, &setup.conditions().unwrap(), None).unwrap();
     let mut rng = ChaCha8Rng::seed_from_u64(4);
     let k = 4_000;
@@ -237,7 +224,7 @@ fn sampled_paths_match_rejection_sampling() {
         let name = case["name"].as_str().unwrap();
         let dir = tempfile::tempdir().unwrap();
         let setup = case_setup(&fx, case, &dir);
-        let set = ThetaSet::single(theta_of(&setup));
+        let set = ThetaSet::single(fixed_theta(&setup));
         let how = Sampling {
             paths_per_theta: PATHS,
             seed: 9,

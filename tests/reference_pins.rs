@@ -11,7 +11,7 @@ use common::*;
 use nalgebra::{DMatrix, DVector};
 use serde_json::Value;
 use tiltyard::attribution::attribute;
-use tiltyard::forecast::{ParamSource, Plan, Sampling, Theta, ThetaSet, sample_paths};
+use tiltyard::forecast::{Plan, Sampling, ThetaSet, sample_paths};
 use tiltyard::scenario::{self, Setup};
 
 /// Exact moments: relative 1e-8 (ALGORITHMS §11.4 allows `1e-9 · cond(G)`).
@@ -26,26 +26,13 @@ fn case_setup(fx: &Value, case: &Value, dir: &tempfile::TempDir) -> Setup {
     scenario::load(&path).unwrap()
 }
 
-fn theta_of(setup: &Setup) -> Theta {
-    let (ParamSource::Fixed(p), _) = setup.estimate().unwrap() else {
-        panic!("fixed")
-    };
-    Theta::new(
-        p,
-        &setup.ordering,
-        &setup.tail().unwrap(),
-        setup.file.horizon,
-    )
-    .unwrap()
-}
-
 #[test]
 fn exact_conditional_moments_match_numpy() {
     let fx = json("pins_gaussian.json");
     for case in fx["cases"].as_array().unwrap() {
         let dir = tempfile::tempdir().unwrap();
         let setup = case_setup(&fx, case, &dir);
-        let theta = theta_of(&setup);
+        let theta = fixed_theta(&setup);
         let cond = setup.conditions().unwrap();
         let plan = Plan::new(&theta, &cond, None).unwrap();
         let (mean, cov) = plan.exact_moments(&theta).expect("pins only");
@@ -75,7 +62,7 @@ fn sampled_paths_match_numpy_within_monte_carlo_error() {
     for case in fx["cases"].as_array().unwrap() {
         let dir = tempfile::tempdir().unwrap();
         let setup = case_setup(&fx, case, &dir);
-        let set = ThetaSet::single(theta_of(&setup));
+        let set = ThetaSet::single(fixed_theta(&setup));
         let cond = setup.conditions().unwrap();
         let how = Sampling {
             paths_per_theta: paths,
@@ -147,7 +134,7 @@ fn all_shocks_as_drivers_equals_plain_conditioning() {
     plain_case["drivers"] = Value::Null;
     let dir2 = tempfile::tempdir().unwrap();
     let plain = case_setup(&fx, &plain_case, &dir2);
-    let theta = theta_of(&plain);
+    let theta = fixed_theta(&plain);
     let (m1, c1) = Plan::new(&theta, &with_drivers.conditions().unwrap(), None)
         .unwrap()
         .exact_moments(&theta)
@@ -179,7 +166,7 @@ fn pin_log_density_matches_numpy() {
         let name = case["name"].as_str().unwrap();
         let dir = tempfile::tempdir().unwrap();
         let setup = case_setup(&fx, case, &dir);
-        let theta = theta_of(&setup);
+        let theta = fixed_theta(&setup);
         let plan = Plan::new(&theta, &setup.conditions().unwrap(), None).unwrap();
         let r_rows = matrix(&case["rows"]["R"]);
         let r = vector(&case["rows"]["r"]);
@@ -217,7 +204,7 @@ fn attribution_matches_numpy() {
         assert_eq!(want["name"], case["name"]);
         let dir = tempfile::tempdir().unwrap();
         let setup = case_setup(&fx, case, &dir);
-        let set = ThetaSet::single(theta_of(&setup));
+        let set = ThetaSet::single(fixed_theta(&setup));
         let cond = setup.conditions().unwrap();
         let how = Sampling {
             paths_per_theta: 7,

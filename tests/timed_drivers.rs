@@ -9,7 +9,7 @@ mod common;
 use common::*;
 use nalgebra::{DMatrix, DVector};
 use serde_json::Value;
-use tiltyard::forecast::{ParamSource, Plan, Theta};
+use tiltyard::forecast::Plan;
 use tiltyard::scenario::{self, Setup};
 
 /// Exact moments: relative 1e-9 · cond(F_J) (ALGORITHMS §11.4; cond 6.3 here).
@@ -35,19 +35,6 @@ fn setup(fx: &Value, pins: usize, drivers: &str, dir: &tempfile::TempDir) -> Set
     scenario::load(&write_scenario(dir, &text)).unwrap()
 }
 
-fn theta_of(setup: &Setup) -> Theta {
-    let (ParamSource::Fixed(p), _) = setup.estimate().unwrap() else {
-        panic!("fixed")
-    };
-    Theta::new(
-        p,
-        &setup.ordering,
-        &setup.tail().unwrap(),
-        setup.file.horizon,
-    )
-    .unwrap()
-}
-
 const FIRST_PERIOD: &str = r#"(shock: "realgdp", from: "2009Q4", to: "2009Q4"), (shock: "tbilrate", from: "2009Q4", to: "2009Q4")"#;
 
 #[test]
@@ -56,7 +43,7 @@ fn first_period_drivers_match_numpy() {
     let want = json("timed_drivers.json");
     let dir = tempfile::tempdir().unwrap();
     let setup = setup(&fx, 2, FIRST_PERIOD, &dir);
-    let theta = theta_of(&setup);
+    let theta = fixed_theta(&setup);
     let plan = Plan::new(&theta, &setup.conditions().unwrap(), None).unwrap();
     let (mean, cov) = plan.exact_moments(&theta).expect("pins only");
     let tol = EXACT * want["condition_number"].as_f64().unwrap();
@@ -93,7 +80,7 @@ fn drivers_timed_over_every_period_are_the_untimed_ones() {
     let dir2 = tempfile::tempdir().unwrap();
     let all = r#"(shock: "realgdp", from: "2009Q4", to: "2011Q3"), (shock: "tbilrate", from: "2009Q4", to: "2011Q3")"#;
     let timed = setup(&fx, 3, all, &dir2);
-    let theta = theta_of(&untimed);
+    let theta = fixed_theta(&untimed);
     let (a, b) = (untimed.conditions().unwrap(), timed.conditions().unwrap());
     assert_eq!(a.driver_cells(4, 8), b.driver_cells(4, 8));
     assert_eq!(a.driver_names(), b.driver_names());
@@ -115,7 +102,7 @@ fn an_unreachable_timed_pin_is_named_with_what_the_timing_rules_out() {
     let dir = tempfile::tempdir().unwrap();
     let late = r#"(shock: "realgdp", from: "2010Q4", to: "2011Q3")"#;
     let s = setup(&fx, 1, late, &dir);
-    let err = Plan::new(&theta_of(&s), &s.conditions().unwrap(), None).unwrap_err();
+    let err = Plan::new(&fixed_theta(&s), &s.conditions().unwrap(), None).unwrap_err();
     let text = err.to_string();
     println!("{text}");
     assert!(text.contains("realgdp at 2010Q3"), "{text}");
@@ -123,7 +110,7 @@ fn an_unreachable_timed_pin_is_named_with_what_the_timing_rules_out() {
     // Three pins and two first-period cells: one pin too many.
     let dir = tempfile::tempdir().unwrap();
     let s = setup(&fx, 3, FIRST_PERIOD, &dir);
-    let text = Plan::new(&theta_of(&s), &s.conditions().unwrap(), None)
+    let text = Plan::new(&fixed_theta(&s), &s.conditions().unwrap(), None)
         .unwrap_err()
         .to_string();
     println!("{text}");

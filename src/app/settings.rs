@@ -58,7 +58,7 @@ fn body(ui: &mut Ui, app: &mut TiltyardApp, pal: &Palette) {
 }
 
 /// A number applied on Enter or when dragged; `g` gathers (began, ended) of its gesture.
-fn number(ui: &mut Ui, name: &str, value: egui::DragValue, g: &mut (bool, bool)) {
+pub(super) fn number(ui: &mut Ui, name: &str, value: egui::DragValue, g: &mut (bool, bool)) {
     let r = ui
         .add(value.update_while_editing(false))
         .accessible_name(name);

@@ -8,6 +8,7 @@ use egui::{RichText, Ui};
 use super::TiltyardApp;
 use super::palette::Palette;
 use super::panels::CHART_UNITS;
+use super::settings::number;
 use crate::scenario::TargetSpec;
 
 /// What a target sets.
@@ -160,11 +161,8 @@ fn row(
             kind.apply(t);
         }
         let mut number = |ui: &mut Ui, v: &mut f64, name: &str| {
-            let r = ui
-                .add(egui::DragValue::new(v).speed(0.01).max_decimals(4))
-                .accessible_name(format!("target {k} {name}"));
-            gesture.0 |= r.drag_started() || r.gained_focus();
-            gesture.1 |= r.drag_stopped() || r.lost_focus();
+            let value = egui::DragValue::new(v).speed(0.01).max_decimals(4);
+            number(ui, &format!("target {k} {name}"), value, gesture);
         };
         match kind {
             Kind::Mean => number(ui, t.mean.get_or_insert(0.0), "mean"),
@@ -183,16 +181,11 @@ fn row(
     if t.probability.is_some() {
         ui.horizontal(|ui| {
             ui.label(RichText::new("with probability").small());
-            let r = ui
-                .add(
-                    egui::DragValue::new(t.probability.get_or_insert(0.1))
-                        .speed(0.001)
-                        .range(0.0001..=0.9999)
-                        .max_decimals(4),
-                )
-                .accessible_name(format!("target {k} probability"));
-            gesture.0 |= r.drag_started() || r.gained_focus();
-            gesture.1 |= r.drag_stopped() || r.lost_focus();
+            let value = egui::DragValue::new(t.probability.get_or_insert(0.1))
+                .speed(0.001)
+                .range(0.0001..=0.9999)
+                .max_decimals(4);
+            number(ui, &format!("target {k} probability"), value, gesture);
         });
     }
     removed

@@ -163,3 +163,17 @@ pub fn pins_case_scenario(fx: &Value, case: &Value) -> String {
     );
     macro_scenario(&model, &extra, 8)
 }
+
+/// The central θ of a fixed-coefficient scenario, over its own horizon.
+pub fn fixed_theta(setup: &tiltyard::scenario::Setup) -> tiltyard::forecast::Theta {
+    let (tiltyard::forecast::ParamSource::Fixed(p), _) = setup.estimate().unwrap() else {
+        panic!("fixed")
+    };
+    tiltyard::forecast::Theta::new(
+        p,
+        &setup.ordering,
+        &setup.tail().unwrap(),
+        setup.file.horizon,
+    )
+    .unwrap()
+}
