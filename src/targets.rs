@@ -3,8 +3,10 @@
 //! ([`crate::entropic`], Robertson, Tallman and Whiteman 2005).
 //!
 //! - `mean: m` sets `E[q] = m` for the quantity `q` (a series at a period, in its units);
-//! - `sd: s` sets `E[q²] = s² + m²` with `m` the quantity's targeted mean, or, without one,
-//!   its mean before tilting, held there by a second moment `E[q] = m`;
+//! - `sd: s` sets `E[(q − m)²] = s²` with `m` the quantity's targeted mean, or, without one,
+//!   its mean before tilting, held there by a second moment `E[q] = m` (centred at `m`, the
+//!   moment's exponent stays of the order of the spread, not of `m²`: the dual is then
+//!   accurate enough for Newton's method to reach its tolerance);
 //! - `probability: p, below: c` sets `E[1{q ≤ c}] = p` (`above`: `1{q ≥ c}`).
 
 use serde::Serialize;
@@ -200,8 +202,8 @@ fn moments_of(
             let total: f64 = base.iter().sum();
             let m = targeted
                 .unwrap_or_else(|| q.iter().zip(base).map(|(v, w)| v * w).sum::<f64>() / total);
-            let squares = q.iter().map(|v| v * v).collect();
-            let mut out = vec![one(squares, sd * sd + m * m)];
+            let squares = q.iter().map(|v| (v - m) * (v - m)).collect();
+            let mut out = vec![one(squares, sd * sd)];
             if targeted.is_none() {
                 out.push(one(q.to_vec(), m));
             }

@@ -573,8 +573,10 @@ fn series_far_from_unit_scale_give_the_same_fans_in_their_units() {
             .map_or(1.0, |(_, f)| *f);
         let band = a.quantiles[6] - a.quantiles[0];
         for (x, y) in a.quantiles.iter().zip(&b.quantiles) {
+            // Pinned values (a band of width 0) agree to rounding: the engine meets a pin
+            // to a few units in the last place, not bit for bit.
             assert!(
-                (y / f - x).abs() <= 1e-5 * band,
+                (y / f - x).abs() <= 1e-5 * band + 1e-13 * (1.0 + x.abs()),
                 "{} {}: {x} against {} (band {band})",
                 a.series,
                 a.period,

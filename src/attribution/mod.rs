@@ -60,11 +60,12 @@ impl Part {
             }
         }
         let count = paths.len() as f64;
-        let gap = DVector::from_iterator(
-            sum.len(),
-            sum.iter().zip(&theta.mean).map(|(s, m)| s / count - m),
-        );
-        let d = plan.stacked() * gap;
+        let gap: Vec<f64> = sum
+            .iter()
+            .zip(&theta.mean)
+            .map(|(s, m)| s / count - m)
+            .collect();
+        let d = DVector::from_vec(plan.stacked().apply(&gap));
         let rows = plan.rows();
         let owner = |label: &str, pins: bool| -> Option<usize> {
             if pins {

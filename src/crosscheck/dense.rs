@@ -261,8 +261,8 @@ impl DensePlan {
             .map(|(j, f)| match f {
                 Some(e) => Err(e),
                 None => Ok((
-                    y.column(j).iter().copied().collect(),
-                    ystar.column(j).iter().copied().collect(),
+                    y.column(j).as_slice().to_vec(),
+                    ystar.column(j).as_slice().to_vec(),
                 )),
             })
             .collect()

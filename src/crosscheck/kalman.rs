@@ -253,8 +253,8 @@ impl KalmanPlan {
         (0..rngs.len())
             .map(|j| {
                 Ok((
-                    y.column(j).iter().copied().collect(),
-                    ystar.column(j).iter().copied().collect(),
+                    y.column(j).as_slice().to_vec(),
+                    ystar.column(j).as_slice().to_vec(),
                 ))
             })
             .collect()

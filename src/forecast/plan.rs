@@ -26,7 +26,7 @@
 
 use std::sync::OnceLock;
 
-use nalgebra::{DMatrix, DVector};
+use nalgebra::{DMatrix, DMatrixView, DVector};
 use rand::Rng;
 use rand_distr::{Distribution, StandardNormal};
 
@@ -35,7 +35,7 @@ use super::{
     conditions::Conditions,
     corridor::{CorridorLaw, LawRows},
     factor::Factor,
-    product::mul,
+    product::{SparseRows, mul},
     reach,
     rows::Rows,
     theta::Theta,
@@ -56,12 +56,16 @@ pub struct ShockLaw {
     pub rows: DMatrix<f64>,
 }
 
+/// A corrected path misses a row's target by more than rounding past this share of
+/// `1 + |target|` (a few units in the last place of a sum of a few terms), and is refined.
+const REFINE: f64 = 1e-14;
+
 /// Condition-dependent objects for one θ.
 #[derive(Debug, Clone)]
 pub struct Plan {
     rows: Rows,
-    /// `𝒢 = [R; S]` (k × N).
-    stacked: DMatrix<f64>,
+    /// `𝒢 = [R; S]` (k × N), a few non-zeros a row.
+    stacked: SparseRows,
     /// `F' = M'𝒢'` (N × k).
     shock_rows: DMatrix<f64>,
     /// `r̃ = r − R μ` (kept pins).
@@ -103,6 +107,7 @@ impl Plan {
         like: Option<&CorridorLaw>,
     ) -> Result<Plan, ForecastError> {
         let g = rows.stacked();
+        let stacked = SparseRows::new(&g);
         let (m, q) = (rows.pins.nrows(), rows.corridors.nrows());
         let mean = DVector::from_column_slice(&theta.mean);
         let rtilde = &rows.values - &rows.pins * &mean;
@@ -150,7 +155,7 @@ impl Plan {
             let _ = model.set(factor.clone());
         }
         Ok(Plan {
-            stacked: g,
+            stacked,
             shock_rows,
             rows,
             rtilde,
@@ -171,7 +176,9 @@ impl Plan {
     /// law's mean and bounds are made again (ALGORITHMS §8.2, the "values" level). `None` when
     /// the rows differ.
     pub fn revalue(&self, theta: &Theta, rows: Rows) -> Option<Result<Plan, ForecastError>> {
-        if rows.stacked() != self.stacked || rows.extra.len() != self.rows.extra.len() {
+        if SparseRows::new(&rows.stacked()) != self.stacked
+            || rows.extra.len() != self.rows.extra.len()
+        {
             return None;
         }
         let mean = DVector::from_column_slice(&theta.mean);
@@ -292,15 +299,15 @@ impl Plan {
             }
         }
         let gy = self.stacked_times(&ystar);
-        let y = self.correct(&ystar, &gy, &target);
+        let y = self.correct(ystar.as_view(), gy.as_view(), &target);
         failed
             .into_iter()
             .enumerate()
             .map(|(j, f)| match f {
                 Some(e) => Err(e),
                 None => Ok((
-                    y.column(j).iter().copied().collect(),
-                    ystar.column(j).iter().copied().collect(),
+                    y.column(j).as_slice().to_vec(),
+                    ystar.column(j).as_slice().to_vec(),
                 )),
             })
             .collect()
@@ -308,22 +315,31 @@ impl Plan {
 
     /// The conditional paths from unconditional ones (columns of `ystar`, with `gy = 𝒢 y*`)
     /// and their targets `(r; z)` (columns): `y = y* + W(t − 𝒢y*)`, then once more with the
-    /// same `W` to remove the rounding that long, explosive horizons leave.
+    /// same `W` when the rows still miss their targets by more than rounding — the rounding
+    /// that long, explosive horizons leave (one step of iterative refinement; checking the
+    /// gap costs the rows' few non-zeros, the step a product as large as the first).
     pub fn correct(
         &self,
-        ystar: &DMatrix<f64>,
-        gy: &DMatrix<f64>,
+        ystar: DMatrixView<f64>,
+        gy: DMatrixView<f64>,
         target: &DMatrix<f64>,
     ) -> DMatrix<f64> {
-        let mut y = ystar + mul(&self.gain, &(target - gy));
-        let gap = target - mul(&self.stacked, &y);
-        y += mul(&self.gain, &gap);
+        let mut y = mul(&self.gain, &(target - gy));
+        y += ystar;
+        let gap = target - self.stacked.times(&y);
+        let missed = gap
+            .iter()
+            .zip(target.iter())
+            .any(|(g, t)| g.abs() > REFINE * (1.0 + t.abs()));
+        if missed {
+            y += mul(&self.gain, &gap);
+        }
         y
     }
 
     /// `𝒢 Y` for paths in the columns of `y`.
     pub fn stacked_times(&self, y: &DMatrix<f64>) -> DMatrix<f64> {
-        mul(&self.stacked, y)
+        self.stacked.times(y)
     }
 
     /// The targets `(r; z)` of one path: the pin values, then the corridor quantities drawn
@@ -350,7 +366,11 @@ impl Plan {
     pub fn from_shocks(&self, theta: &Theta, eps: &[f64]) -> (Vec<f64>, Vec<f64>) {
         let ystar = DMatrix::from_vec(eps.len(), 1, theta.path_from_shocks(eps));
         let target = DMatrix::from_column_slice(self.pin_count(), 1, self.rows.values.as_slice());
-        let y = self.correct(&ystar, &self.stacked_times(&ystar), &target);
+        let y = self.correct(
+            ystar.as_view(),
+            self.stacked_times(&ystar).as_view(),
+            &target,
+        );
         (y.as_slice().to_vec(), ystar.as_slice().to_vec())
     }
 
@@ -360,7 +380,7 @@ impl Plan {
     }
 
     /// The stacked rows `𝒢 = [R; S]` (k × N).
-    pub fn stacked(&self) -> &DMatrix<f64> {
+    pub fn stacked(&self) -> &SparseRows {
         &self.stacked
     }
 

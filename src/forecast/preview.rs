@@ -148,17 +148,20 @@ impl Preview {
                         Err(e) => failed[j - start] = Some(e),
                     }
                 }
-                let ystar = self.ystar.columns(start, end - start).into_owned();
-                let gy = gy.columns(start, end - start).into_owned();
-                let y = plan.correct(&ystar, &gy, &target);
+                let ystar = self.ystar.columns(start, end - start);
+                let y = plan.correct(ystar, gy.columns(start, end - start), &target);
                 let kept: Vec<usize> = (0..failed.len()).filter(|&k| failed[k].is_none()).collect();
-                let errors = plan.rows().errors(&y.select_columns(&kept));
+                let errors = if kept.len() == failed.len() {
+                    plan.rows().errors(&y)
+                } else {
+                    plan.rows().errors(&y.select_columns(&kept))
+                };
                 let paths = failed
                     .into_iter()
                     .enumerate()
                     .map(|(k, f)| {
-                        let path: Vec<f64> = y.column(k).iter().copied().collect();
-                        let ystar: Vec<f64> = ystar.column(k).iter().copied().collect();
+                        let path: Vec<f64> = y.column(k).as_slice().to_vec();
+                        let ystar: Vec<f64> = ystar.column(k).as_slice().to_vec();
                         let error = f.or_else(|| {
                             let finite = path.iter().chain(&ystar).all(|v| v.is_finite());
                             (!finite).then_some(ForecastError::NotFinite { draw: None })

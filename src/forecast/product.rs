@@ -1,4 +1,5 @@
-//! Matrix products that always run as blocked matrix multiplication.
+//! Matrix products over chunks of paths: dense ones always as blocked matrix multiplication,
+//! and the conditions' rows (a few non-zeros each) as sparse rows.
 //!
 //! nalgebra hands a product to its blocked kernel only when every dimension exceeds five;
 //! otherwise it loops over matrix–vector products, which for a `3 × 800` conditions matrix
@@ -30,7 +31,76 @@ pub fn mul(a: &DMatrix<f64>, b: &DMatrix<f64>) -> DMatrix<f64> {
     let pa = pad(a, BLOCKED, BLOCKED);
     let pb = pad(b, pa.as_ref().map_or(k, |p| p.ncols()), BLOCKED);
     let (a2, b2) = (pa.as_ref().unwrap_or(a), pb.as_ref().unwrap_or(b));
-    (a2 * b2).view((0, 0), (r, c)).into_owned()
+    let full = a2 * b2;
+    if full.shape() == (r, c) {
+        full
+    } else {
+        block(&full, (0, 0), (r, c))
+    }
+}
+
+/// The `rows × cols` block of `m` at `(r0, c0)`, copied a column at a time (a view's
+/// `into_owned` copies element by element, which for a chunk of paths costs as much as the
+/// product that made it).
+pub fn block(
+    m: &DMatrix<f64>,
+    (r0, c0): (usize, usize),
+    (rows, cols): (usize, usize),
+) -> DMatrix<f64> {
+    let n = m.nrows();
+    let mut out = Vec::with_capacity(rows * cols);
+    for col in m.as_slice().chunks_exact(n.max(1)).skip(c0).take(cols) {
+        out.extend_from_slice(&col[r0..r0 + rows]);
+    }
+    DMatrix::from_vec(rows, cols, out)
+}
+
+/// Rows with few non-zeros each — conditions read off a path touch a handful of its cells —
+/// kept as `(column, value)` lists, so that applying them to a chunk of paths costs their
+/// non-zeros rather than the paths' full length.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SparseRows {
+    rows: Vec<Vec<(usize, f64)>>,
+}
+
+impl SparseRows {
+    /// The non-zeros of `m`, row by row.
+    pub fn new(m: &DMatrix<f64>) -> SparseRows {
+        let rows = (0..m.nrows())
+            .map(|i| {
+                m.row(i)
+                    .iter()
+                    .enumerate()
+                    .filter(|&(_, &a)| a != 0.0)
+                    .map(|(c, &a)| (c, a))
+                    .collect()
+            })
+            .collect();
+        SparseRows { rows }
+    }
+
+    pub fn nrows(&self) -> usize {
+        self.rows.len()
+    }
+
+    /// `A Y` for paths in the columns of `y`.
+    pub fn times(&self, y: &DMatrix<f64>) -> DMatrix<f64> {
+        let mut out = DMatrix::zeros(self.rows.len(), y.ncols());
+        for (j, path) in y.column_iter().enumerate() {
+            for (i, row) in self.rows.iter().enumerate() {
+                out[(i, j)] = row.iter().map(|&(c, a)| a * path[c]).sum();
+            }
+        }
+        out
+    }
+
+    /// `A y` for one path.
+    pub fn apply(&self, y: &[f64]) -> Vec<f64> {
+        self.rows
+            .iter()
+            .map(|row| row.iter().map(|&(c, a)| a * y[c]).sum())
+            .collect()
+    }
 }
 
 #[cfg(test)]
@@ -55,5 +125,40 @@ mod tests {
             assert_eq!(fast.shape(), plain.shape());
             assert!((fast - plain).amax() < 1e-12 * k as f64, "{r}×{k}×{c}");
         }
+    }
+
+    /// The sparse product agrees with nalgebra's dense product (to rounding: the sums run in
+    /// another order), for a matrix with zero rows and columns and a single path.
+    #[test]
+    fn sparse_rows_match_the_dense_product() {
+        let a = DMatrix::from_fn(5, 40, |i, c| {
+            if (i * 7 + c) % 5 == 0 && i != 3 {
+                ((i + 2 * c) as f64).sin()
+            } else {
+                0.0
+            }
+        });
+        let y = DMatrix::from_fn(40, 9, |c, j| ((c * 3 + j) as f64 * 0.37).cos());
+        let sparse = SparseRows::new(&a);
+        assert!((sparse.times(&y) - &a * &y).amax() < 1e-13);
+        let one = sparse.apply(y.column(4).as_slice());
+        let dense = &a * y.column(4);
+        assert!(
+            one.iter()
+                .zip(dense.iter())
+                .all(|(s, d)| (s - d).abs() < 1e-13)
+        );
+        assert_eq!(sparse.times(&y).row(3).amax(), 0.0);
+    }
+
+    /// A block copied by columns is the view's contents.
+    #[test]
+    fn block_is_the_view() {
+        let m = DMatrix::from_fn(7, 6, |i, j| (i * 10 + j) as f64);
+        assert_eq!(
+            block(&m, (2, 1), (4, 3)),
+            m.view((2, 1), (4, 3)).into_owned()
+        );
+        assert_eq!(block(&m, (0, 0), (0, 2)).shape(), (0, 2));
     }
 }

@@ -21,6 +21,7 @@ use super::{
     ForecastError,
     conditions::{Conditions, Target},
     polytope,
+    product::SparseRows,
     theta::Theta,
 };
 
@@ -71,8 +72,8 @@ pub struct Rows {
     /// What was dropped or merged, for the report.
     pub notes: Vec<String>,
     /// Every pin and corridor row as given, to measure how well a path meets them.
-    every_pin: (DMatrix<f64>, DVector<f64>),
-    every_corridor: (DMatrix<f64>, DVector<f64>, DVector<f64>),
+    every_pin: (SparseRows, DVector<f64>),
+    every_corridor: (SparseRows, DVector<f64>, DVector<f64>),
 }
 
 /// One scaled row with its value (pins) or bounds (corridors) and label.
@@ -358,8 +359,12 @@ impl Rows {
             corridor_labels: kept.into_iter().map(|r| r.label).collect(),
             extra,
             notes,
-            every_pin: (every_pin.0, every_pin.1),
-            every_corridor,
+            every_pin: (SparseRows::new(&every_pin.0), every_pin.1),
+            every_corridor: (
+                SparseRows::new(&every_corridor.0),
+                every_corridor.1,
+                every_corridor.2,
+            ),
         })
     }
 
@@ -385,7 +390,7 @@ impl Rows {
     /// `max |ρ'y − r| / (1 + |r|)`.
     pub fn pin_error(&self, y: &[f64]) -> f64 {
         let (rows, values) = &self.every_pin;
-        let res = rows * DVector::from_column_slice(y) - values;
+        let res = DVector::from_vec(rows.apply(y)) - values;
         res.iter()
             .zip(values.iter())
             .map(|(e, r)| e.abs() / (1.0 + r.abs()))
@@ -397,8 +402,8 @@ impl Rows {
     pub fn errors(&self, y: &DMatrix<f64>) -> (f64, f64) {
         let (pins, values) = &self.every_pin;
         let (rows, lower, upper) = &self.every_corridor;
-        let at_pins = super::product::mul(pins, y);
-        let at_rows = super::product::mul(rows, y);
+        let at_pins = pins.times(y);
+        let at_rows = rows.times(y);
         let mut pin: f64 = 0.0;
         let mut corridor: f64 = 0.0;
         for col in at_pins.column_iter() {
@@ -420,7 +425,7 @@ impl Rows {
     /// `1 + |bound|` (0 when every corridor holds).
     pub fn corridor_violation(&self, y: &[f64]) -> f64 {
         let (rows, lower, upper) = &self.every_corridor;
-        let v = rows * DVector::from_column_slice(y);
+        let v = rows.apply(y);
         (0..v.len())
             .map(|i| {
                 let below = (lower[i] - v[i]) / (1.0 + lower[i].abs());
