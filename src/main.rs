@@ -507,7 +507,13 @@ fn run_command(
     }
     if keep_draws {
         outputs.write("draws.csv", |p| {
-            write_draws(p, stamp, &setup, &outcome.paths.conditional)
+            write_draws(
+                p,
+                stamp,
+                &setup,
+                &outcome.paths.conditional,
+                outcome.weights.as_deref(),
+            )
         })?;
     }
     let text = summary(&setup, &outcome);

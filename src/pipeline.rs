@@ -20,7 +20,7 @@ use std::sync::atomic::AtomicBool;
 
 use rayon::prelude::*;
 
-use crate::attribution::{Attribution, attribute};
+use crate::attribution::{Attribution, Part, attribute};
 use crate::checks::{CheckReport, Finding, Severity, Status, check_conditions};
 use crate::forecast::{
     Conditions, DrawSpec, ForecastError, ParamSource, PathSet, Plan, Theta, ThetaSet, build_thetas,
@@ -153,12 +153,22 @@ pub fn summarise(
     };
     let attribution = if paths.parts.is_empty() {
         None
+    } else if let (Some(_), Some(w)) = (&tilt, &weights) {
+        let (parts, part_weights) = tilted_parts(thetas, conditions, paths, w)?;
+        Some(attribute(
+            thetas,
+            conditions,
+            &parts,
+            part_weights.as_deref(),
+            Some((&paths.parts, theta_weights.as_deref())),
+        )?)
     } else {
         Some(attribute(
             thetas,
             conditions,
             &paths.parts,
             theta_weights.as_deref(),
+            None,
         )?)
     };
     let mut statistics = statistics(
@@ -193,6 +203,52 @@ pub fn summarise(
         statistics,
         notes,
     })
+}
+
+/// The parts of the split under tilted path weights `w` (one per kept path): each θ weighs
+/// the sum of its paths' weights (`None` for a single θ, whose weight is one), and a θ with
+/// several paths is split again at their weighted mean, on its plan made anew; a θ with one
+/// path keeps its part, which is that path's.
+fn tilted_parts(
+    thetas: &[Theta],
+    conditions: &Conditions,
+    paths: &PathSet,
+    w: &[f64],
+) -> Result<(Vec<Part>, Option<Vec<f64>>), ForecastError> {
+    // A θ's paths lie together, in θ order, as its part does.
+    let mut groups: Vec<(usize, std::ops::Range<usize>)> = Vec::new();
+    for (k, &s) in paths.sources.iter().enumerate() {
+        match groups.last_mut() {
+            Some((source, range)) if *source == s => range.end = k + 1,
+            _ => groups.push((s, k..k + 1)),
+        }
+    }
+    let parts = paths
+        .parts
+        .par_iter()
+        .map(|part| {
+            let Some((_, range)) = groups.iter().find(|(s, _)| *s == part.theta) else {
+                return Ok((part.clone(), 0.0));
+            };
+            let weight: f64 = w[range.clone()].iter().sum();
+            if range.len() == 1 {
+                return Ok((part.clone(), weight));
+            }
+            let theta = &thetas[part.theta];
+            let plan = Plan::new(theta, conditions, None)?;
+            let again = Part::of_paths(
+                part.theta,
+                theta,
+                &plan,
+                conditions,
+                &paths.conditional[range.clone()],
+                Some(&w[range.clone()]),
+            );
+            Ok((again.unwrap_or_else(|| part.clone()), weight))
+        })
+        .collect::<Result<Vec<_>, ForecastError>>()?;
+    let weights = (parts.len() > 1).then(|| parts.iter().map(|(_, w)| *w).collect());
+    Ok((parts.into_iter().map(|(p, _)| p).collect(), weights))
 }
 
 /// Errors of the pipeline's model-level steps.

@@ -72,6 +72,9 @@ pub struct RunOutcome {
     pub effective_draws: Option<f64>,
     /// With targets on the distribution: what the tilt did.
     pub tilt: Option<crate::targets::TiltSummary>,
+    /// Each conditional path's share in the fans (summing to one) after reweighting or a
+    /// tilt; `None`: equal shares.
+    pub weights: Option<Vec<f64>>,
     /// The engine that drew the paths.
     pub engine: EngineKind,
     /// The departure from the unconditional forecast by shock and by condition (main engine).
@@ -170,6 +173,7 @@ pub fn run(setup: &mut Setup, options: &RunOptions) -> Result<RunOutcome, RunErr
         checks,
         effective_draws: summaries.effective_draws,
         tilt: summaries.tilt,
+        weights: summaries.weights,
         engine: options.engine,
         attribution: summaries.attribution,
         summary: summaries.statistics,

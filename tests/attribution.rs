@@ -140,7 +140,7 @@ fn attribution_matches_its_parts_recomputed_from_scratch() {
     let set = model
         .draw(&setup, 60, &std::sync::atomic::AtomicBool::new(false))
         .unwrap();
-    let again = attribute(&set.thetas, &cond, &out.paths.parts, None).unwrap();
+    let again = attribute(&set.thetas, &cond, &out.paths.parts, None, None).unwrap();
     assert_eq!(&again, out.attribution.as_ref().unwrap());
 }
 

@@ -81,8 +81,18 @@ fn run_writes_fans_and_draws_for_the_demo() {
         assert!((q - pin).abs() < 1e-9 * (1.0 + pin.abs()), "{row:?}");
     }
     let draws = std::fs::read_to_string(out.path().join("draws.csv")).unwrap();
-    assert!(draws.starts_with(&format!("{stamp}\ndraw,series,period,value\n")));
+    assert!(draws.starts_with(&format!("{stamp}\ndraw,weight,series,period,value\n")));
     assert_eq!(draws.lines().count(), 2 + 80 * 12 * 10);
+    // Unweighted: every path's share is 1/80, the same on each of its rows.
+    let mut shares = std::collections::BTreeMap::new();
+    for line in draws.lines().skip(2) {
+        let mut cells = line.split(',');
+        let (d, w) = (cells.next().unwrap(), cells.next().unwrap());
+        let w: f64 = w.parse().unwrap();
+        assert_eq!(*shares.entry(d.to_string()).or_insert(w), w, "{line}");
+    }
+    assert_eq!(shares.len(), 80);
+    assert!(shares.values().all(|&w| (w - 1.0 / 80.0).abs() < 1e-15));
     let run_id = stamp
         .split(" · run ")
         .nth(1)
@@ -178,7 +188,7 @@ fn a_killed_run_leaves_whole_files() {
         let _ = child.kill();
         let _ = child.wait();
         assert_eq!(whole("fans.csv", 13), 10 * 12 * 2);
-        let draws = whole("draws.csv", 4);
+        let draws = whole("draws.csv", 5);
         assert!(
             draws == 100 * 120 || draws == 3000 * 120,
             "draws.csv has {draws} rows"

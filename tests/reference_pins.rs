@@ -214,7 +214,7 @@ fn attribution_matches_numpy() {
             engine: tiltyard::crosscheck::EngineKind::Main,
         };
         let out = sample_paths(&set, 0..1, &cond, how, &AtomicBool::new(false)).unwrap();
-        let a = attribute(&set.thetas, &cond, &out.parts, None).unwrap();
+        let a = attribute(&set.thetas, &cond, &out.parts, None, None).unwrap();
         let total = vector(&want["total"]);
         let scale = total.amax().max(1.0);
         let close = |got: &[f64], want: &DVector<f64>, what: &str| {

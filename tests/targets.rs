@@ -111,3 +111,93 @@ fn targets_out_of_reach_or_badly_written_are_named() {
         "{text}"
     );
 }
+
+/// The split under a tilt: each way its parts add up to the total, and the total moves under
+/// the tilt exactly as the fans' mean does. The fans' weighted mean is summarised from the
+/// paths by the fans' own code; the split's total is the weighted conditions' parts plus the
+/// targets' and the parameters' parts, and the identity `T_tilted − T_untilted = Ȳ_tilted − Ȳ_untilted`
+/// holds draw by draw (both sides carry the same untilted free components), so it is checked
+/// to rounding — with one path per posterior draw (each draw's part kept, its weight tilted)
+/// and with three (each draw's part made again at its paths' tilted mean).
+#[test]
+fn the_split_follows_the_tilt() {
+    for paths_per_draw in [1, 3] {
+        let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("scenarios-demo/adverse-pins.ron");
+        let run_with = |targets: Vec<TargetSpec>| {
+            let mut file = scenario::read(&path).unwrap();
+            file.draws = 120;
+            file.paths_per_draw = paths_per_draw;
+            file.targets = targets;
+            let mut setup = Setup::new(file, &path).unwrap();
+            let out = run(&mut setup, &Default::default()).unwrap();
+            (setup, out)
+        };
+        let mut t = target("unemployment", "2027Q4", Units::Level);
+        t.mean = Some(7.6);
+        let (setup, tilted) = run_with(vec![t]);
+        let (_, plain) = run_with(Vec::new());
+        let i = setup
+            .names
+            .iter()
+            .position(|s| s == "unemployment")
+            .unwrap();
+        let (terms, _) = tiltyard::report::attribution::linear_units(&setup, i);
+        let n = setup.n();
+        let part = |p: &[f64]| tiltyard::report::attribution::series_part(n, &terms, p, i);
+        let h = setup.file.horizon;
+        let mut moved: f64 = 0.0;
+        for out in [&tilted, &plain] {
+            let a = out.attribution.as_ref().unwrap();
+            let sum_of = |parts: &mut dyn Iterator<Item = &Vec<f64>>| {
+                let mut s = vec![0.0; h];
+                for p in parts {
+                    s.iter_mut().zip(part(p)).for_each(|(s, v)| *s += v);
+                }
+                s
+            };
+            let extra = |s: &mut Vec<f64>| {
+                for p in a.parameters.iter().chain(&a.targets) {
+                    s.iter_mut().zip(part(p)).for_each(|(s, v)| *s += v);
+                }
+            };
+            let total = part(&a.total);
+            let mut by_condition = sum_of(&mut a.by_condition.iter());
+            extra(&mut by_condition);
+            let mut by_shock = sum_of(&mut a.by_shock.iter());
+            if let Some(p) = &a.parameters {
+                by_shock.iter_mut().zip(part(p)).for_each(|(s, v)| *s += v);
+            }
+            for t in 0..h {
+                let scale = 1.0 + total[t].abs();
+                assert!((by_condition[t] - total[t]).abs() < 1e-9 * scale, "{t}");
+                assert!((by_shock[t] - total[t]).abs() < 1e-9 * scale, "{t}");
+            }
+        }
+        let at = (0..h)
+            .find(|&k| setup.last_period().offset(k as i64 + 1).to_string() == "2027Q4")
+            .unwrap();
+        for k in 0..h {
+            let period = setup.last_period().offset(k as i64 + 1).to_string();
+            let fan_shift = fan(&tilted, "unemployment", &period, Kind::Conditional).mean
+                - fan(&plain, "unemployment", &period, Kind::Conditional).mean;
+            let split_shift = part(&tilted.attribution.as_ref().unwrap().total)[k]
+                - part(&plain.attribution.as_ref().unwrap().total)[k];
+            assert!(
+                (fan_shift - split_shift).abs() < 1e-9,
+                "{paths_per_draw} paths a draw, {period}: fans moved {fan_shift}, the split {split_shift}"
+            );
+            moved = moved.max(fan_shift.abs());
+        }
+        // The tilt did move the mean, and the targets' part is there.
+        assert!(moved > 0.1, "{moved}");
+        let targets = tilted
+            .attribution
+            .as_ref()
+            .unwrap()
+            .targets
+            .as_ref()
+            .unwrap();
+        assert!(part(targets)[at].abs() > 1e-3);
+        assert!(plain.attribution.as_ref().unwrap().targets.is_none());
+    }
+}

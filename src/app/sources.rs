@@ -112,9 +112,16 @@ fn parts(
             colour: condition_colour(k),
         })
         .collect();
+    if let Some(p) = &a.targets {
+        list.push(Part {
+            name: "targets on the distribution".into(),
+            values: series_part(a.n, terms, p, i),
+            colour: pal.muted,
+        });
+    }
     if let Some(p) = &a.parameters {
         list.push(Part {
-            name: "reweighting of the parameters".into(),
+            name: "weighting of the parameters".into(),
             values: series_part(a.n, terms, p, i),
             colour: pal.muted,
         });

@@ -38,32 +38,40 @@ pub struct Part {
     /// The θ (index into its set).
     pub theta: usize,
     pub by_condition: DMatrix<f64>,
+    /// What the paths' (weighted) mean departs from `μ` besides the conditions' parts:
+    /// `ȳ − μ − W d`, the mean of the paths' free components `(I − W𝒢)(y* − μ)` — zero in
+    /// expectation with equal weights, not once a tilt has chosen among the paths (N).
+    pub free: DVector<f64>,
 }
 
 impl Part {
-    /// The part of one θ from its plan and its conditional paths (`None` without paths).
+    /// The part of one θ from its plan and its conditional paths (`None` without paths), at
+    /// their mean or, given `weights` (one per path, any scale), their weighted mean.
     pub fn of_paths(
         theta_index: usize,
         theta: &Theta,
         plan: &Plan,
         cond: &Conditions,
         paths: &[Vec<f64>],
+        weights: Option<&[f64]>,
     ) -> Option<Part> {
         if paths.is_empty() {
             return None;
         }
         // d = 𝒢(ȳ − μ): the pins' r̃ and the corridor quantities' mean shift.
         let mut sum = vec![0.0; theta.len()];
-        for y in paths {
+        let mut total = 0.0;
+        for (j, y) in paths.iter().enumerate() {
+            let w = weights.map_or(1.0, |w| w[j]);
+            total += w;
             for (s, v) in sum.iter_mut().zip(y) {
-                *s += v;
+                *s += w * v;
             }
         }
-        let count = paths.len() as f64;
         let gap: Vec<f64> = sum
             .iter()
             .zip(&theta.mean)
-            .map(|(s, m)| s / count - m)
+            .map(|(s, m)| s / total - m)
             .collect();
         let d = DVector::from_vec(plan.stacked().apply(&gap));
         let rows = plan.rows();
@@ -90,9 +98,11 @@ impl Part {
                 col.axpy(d[r], &w.column(r), 1.0);
             }
         }
+        let free = DVector::from_vec(gap) - by_condition.column_sum();
         Some(Part {
             theta: theta_index,
             by_condition,
+            free,
         })
     }
 }
@@ -113,10 +123,13 @@ pub struct Attribution {
     pub by_shock: Vec<Vec<f64>>,
     /// `by_condition[c]`: the part of condition `c`.
     pub by_condition: Vec<Vec<f64>>,
-    /// With reweighting: the part due to reweighting the parameters.
+    /// With reweighting or a tilt to targets: the part due to the weights on the parameters.
     pub parameters: Option<Vec<f64>>,
-    /// Conditional mean minus unconditional mean: the sum of the shocks' parts (or of the
-    /// conditions' parts), plus the parameters' part.
+    /// With a tilt to targets on the distribution: what the tilt adds beyond the conditions'
+    /// parts (its choice among the paths' free components). The shocks' parts include it.
+    pub targets: Option<Vec<f64>>,
+    /// Conditional mean minus unconditional mean: the sum of the shocks' parts, or of the
+    /// conditions' parts and the targets' part, plus the parameters' part.
     pub total: Vec<f64>,
     /// Posterior draws averaged over.
     pub draws: usize,
@@ -127,55 +140,50 @@ pub struct Attribution {
 const CHUNK: usize = 16;
 
 /// Average the parts of the θ in `thetas` (weights per part, summing to one, or equal).
+/// `untilted`: with a tilt to targets, the parts at equal weights within each θ and the θ's
+/// untilted weights; the tilted parts' free components less the untilted ones' are the
+/// targets' part (zero when the tilt changes nothing), shared among the shocks too.
 pub fn attribute(
     thetas: &[Theta],
     cond: &Conditions,
     parts: &[Part],
     weights: Option<&[f64]>,
+    untilted: Option<(&[Part], Option<&[f64]>)>,
 ) -> Result<Attribution, ForecastError> {
     let (n, h) = thetas.first().map_or((0, 0), |t| (t.n(), t.h));
     let big_n = n * h;
     let c = condition_count(cond);
     let count = parts.len();
     let equal = 1.0 / count.max(1) as f64;
-    let weight = |k: usize| weights.map_or(equal, |w| w[k]);
-    // Per chunk: (Σ w·by condition (N × C), Σ w·by shock (N × n), Σ w·μ, Σ μ / count).
-    let sums = parts
-        .par_chunks(CHUNK)
-        .enumerate()
-        .map(|(chunk, list)| {
-            let mut cond_sum = DMatrix::<f64>::zeros(big_n, c);
-            let mut shock_sum = DMatrix::<f64>::zeros(big_n, n);
-            let mut mu_w = DVector::<f64>::zeros(big_n);
-            let mut mu_eq = DVector::<f64>::zeros(big_n);
-            for (k, part) in list.iter().enumerate() {
-                let w = weight(chunk * CHUNK + k);
-                let theta = &thetas[part.theta];
-                cond_sum += w * &part.by_condition;
-                let delta: Vec<f64> = part.by_condition.column_sum().iter().copied().collect();
-                shock_sum += w * by_shock(theta, &delta)?;
-                let mu = DVector::from_column_slice(&theta.mean);
-                mu_w += w * &mu;
-                mu_eq += equal * mu;
-            }
-            Ok((cond_sum, shock_sum, mu_w, mu_eq))
-        })
-        .collect::<Result<Vec<_>, ForecastError>>()?;
-    let mut cond_sum = DMatrix::<f64>::zeros(big_n, c);
-    let mut shock_sum = DMatrix::<f64>::zeros(big_n, n);
-    let mut mu_w = DVector::<f64>::zeros(big_n);
-    let mut mu_eq = DVector::<f64>::zeros(big_n);
-    for (a, b, m1, m2) in sums {
-        cond_sum += a;
-        shock_sum += b;
-        mu_w += m1;
-        mu_eq += m2;
+    let tilted = untilted.is_some();
+    let sums = chunk_sums(thetas, parts, weights, c, big_n, n, tilted, 1.0)?;
+    let mut total_sum = sums;
+    let mut targets = None;
+    if let Some((base, base_weights)) = untilted {
+        // The untilted free parts, taken away (their shock split too).
+        let away = chunk_sums(thetas, base, base_weights, 0, big_n, n, true, -1.0)?;
+        targets = Some(&total_sum.free + &away.free);
+        total_sum.shock += away.shock;
     }
+    let Sums {
+        condition: cond_sum,
+        shock: shock_sum,
+        mu_weighted: mu_w,
+        ..
+    } = total_sum;
+    let mu_eq = thetas_mean(thetas, parts, equal, big_n);
     let parameters = weights.map(|_| (&mu_w - &mu_eq).iter().copied().collect::<Vec<f64>>());
     let mut total: Vec<f64> = cond_sum.column_sum().iter().copied().collect();
-    if let Some(p) = &parameters {
-        total.iter_mut().zip(p).for_each(|(t, p)| *t += p);
+    for extra in [
+        &parameters,
+        &targets.as_ref().map(|t| t.as_slice().to_vec()),
+    ]
+    .into_iter()
+    .flatten()
+    {
+        total.iter_mut().zip(extra).for_each(|(t, p)| *t += p);
     }
+    let targets = targets.map(|t| t.as_slice().to_vec());
     let columns = |m: &DMatrix<f64>| -> Vec<Vec<f64>> {
         m.column_iter()
             .map(|col| col.iter().copied().collect())
@@ -197,9 +205,96 @@ pub fn attribute(
         by_shock: columns(&shock_sum),
         by_condition: columns(&cond_sum),
         parameters,
+        targets,
         total,
         draws: count,
     })
+}
+
+/// Weighted sums over parts, formed chunk by chunk in part order (the same sums whatever the
+/// number of threads).
+struct Sums {
+    /// Σ w·by condition (N × C).
+    condition: DMatrix<f64>,
+    /// Σ w·by shock (N × n).
+    shock: DMatrix<f64>,
+    /// Σ w·μ.
+    mu_weighted: DVector<f64>,
+    /// Σ w·free (with the free parts only).
+    free: DVector<f64>,
+}
+
+/// The parts' weighted sums, each weight times `sign`; with `free`, the parts' free
+/// components are summed and split by shock with their conditions' parts.
+#[allow(clippy::too_many_arguments)]
+fn chunk_sums(
+    thetas: &[Theta],
+    parts: &[Part],
+    weights: Option<&[f64]>,
+    c: usize,
+    big_n: usize,
+    n: usize,
+    free: bool,
+    sign: f64,
+) -> Result<Sums, ForecastError> {
+    let equal = 1.0 / parts.len().max(1) as f64;
+    let weight = |k: usize| sign * weights.map_or(equal, |w| w[k]);
+    let zero = || Sums {
+        condition: DMatrix::zeros(big_n, c),
+        shock: DMatrix::zeros(big_n, n),
+        mu_weighted: DVector::zeros(big_n),
+        free: DVector::zeros(big_n),
+    };
+    let chunks = parts
+        .par_chunks(CHUNK)
+        .enumerate()
+        .map(|(chunk, list)| {
+            let mut sums = zero();
+            for (k, part) in list.iter().enumerate() {
+                let w = weight(chunk * CHUNK + k);
+                let theta = &thetas[part.theta];
+                if c > 0 {
+                    sums.condition += w * &part.by_condition;
+                }
+                let mut delta = if c > 0 {
+                    part.by_condition.column_sum()
+                } else {
+                    DVector::zeros(big_n)
+                };
+                if free {
+                    delta += &part.free;
+                    sums.free += w * &part.free;
+                }
+                sums.shock += w * by_shock(theta, delta.as_slice())?;
+                sums.mu_weighted += w * DVector::from_column_slice(&theta.mean);
+            }
+            Ok(sums)
+        })
+        .collect::<Result<Vec<_>, ForecastError>>()?;
+    let mut out = zero();
+    for s in chunks {
+        out.condition += s.condition;
+        out.shock += s.shock;
+        out.mu_weighted += s.mu_weighted;
+        out.free += s.free;
+    }
+    Ok(out)
+}
+
+/// `Σ μ_θ / count` over the parts (the unconditional side's equal weights).
+fn thetas_mean(thetas: &[Theta], parts: &[Part], equal: f64, big_n: usize) -> DVector<f64> {
+    let sums = parts
+        .par_chunks(CHUNK)
+        .map(|list| {
+            let mut s = DVector::zeros(big_n);
+            for part in list {
+                s += equal * DVector::from_column_slice(&thetas[part.theta].mean);
+            }
+            s
+        })
+        .collect::<Vec<_>>();
+    sums.into_iter()
+        .fold(DVector::zeros(big_n), |acc, s| acc + s)
 }
 
 /// Shocks whose conditional means are all below this share of the largest one are left out

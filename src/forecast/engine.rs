@@ -571,7 +571,7 @@ fn one_theta(
     }
     if let Conditioner::Main(plan) = &plan {
         out.parts
-            .extend(Part::of_paths(i, theta, plan, cond, &out.conditional));
+            .extend(Part::of_paths(i, theta, plan, cond, &out.conditional, None));
     }
     if set.fixed {
         return Ok(out);

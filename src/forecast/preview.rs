@@ -205,6 +205,7 @@ impl Preview {
             &plan,
             cond,
             &out.conditional,
+            None,
         ));
         self.prepared = Some((plan, gy));
         Ok(out)

@@ -60,8 +60,9 @@ pub fn series_part(n: usize, terms: &[(usize, f64)], part: &[f64], i: usize) -> 
 
 /// `attribution.csv`: `series,period,horizon,units,kind,part,value`, where `kind` is `total`
 /// (conditional minus unconditional mean), `shock` (a structural shock, named after the
-/// series it is ordered with), `condition` (a pin or corridor, by its label) or `parameters`
-/// (reweighting of the posterior draws).
+/// series it is ordered with), `condition` (a pin or corridor, by its label), `targets` (with
+/// targets on the distribution: what the tilt adds beyond the conditions; the shocks' parts
+/// include it) or `parameters` (the weights on the posterior draws).
 pub fn write_attribution(
     path: &Path,
     stamp: &Stamp,
@@ -82,6 +83,9 @@ pub fn write_attribution(
             }
             for ((label, _), part) in a.conditions.iter().zip(&a.by_condition) {
                 parts.push(("condition", label, series_part(n, &terms, part, i)));
+            }
+            if let Some(p) = &a.targets {
+                parts.push(("targets", "", series_part(n, &terms, p, i)));
             }
             if let Some(p) = &a.parameters {
                 parts.push(("parameters", "", series_part(n, &terms, p, i)));
@@ -167,7 +171,7 @@ pub fn shock_parts(
     }
     if let Some(p) = &a.parameters {
         parts.push(ShownPart {
-            name: "reweighting of the parameters".into(),
+            name: "weighting of the parameters".into(),
             values: series_part(a.n, terms, p, i),
             rest: true,
         });

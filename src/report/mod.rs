@@ -87,22 +87,28 @@ pub fn write_fans(path: &Path, stamp: &Stamp, rows: &[FanRow]) -> Result<(), Rep
     })
 }
 
-/// `draws.csv`: `draw,series,period,value`, values in each series' display units.
+/// `draws.csv`: `draw,weight,series,period,value`, values in each series' display units;
+/// `weight` is the path's share in the conditional fans (`weights`, summing to one: after
+/// reweighting or a tilt to targets; equal shares without).
 pub fn write_draws(
     path: &Path,
     stamp: &Stamp,
     setup: &Setup,
     paths: &[Vec<f64>],
+    weights: Option<&[f64]>,
 ) -> Result<(), ReportError> {
+    let equal = 1.0 / paths.len().max(1) as f64;
     write_csv(path, stamp, |w| {
-        w.write_record(["draw", "series", "period", "value"])?;
+        w.write_record(["draw", "weight", "series", "period", "value"])?;
         let last = setup.last_period();
         for (d, path_values) in paths.iter().enumerate() {
+            let weight = weights.and_then(|w| w.get(d)).copied().unwrap_or(equal);
             for t in 1..=setup.file.horizon {
                 for i in 0..setup.n() {
                     let v = fans::display_path_value(setup, path_values, i, t);
                     w.write_record([
                         d.to_string(),
+                        weight.to_string(),
                         setup.names[i].clone(),
                         last.offset(t as i64).to_string(),
                         v.to_string(),
