@@ -11,6 +11,7 @@ pub mod crosscheck;
 pub mod dataset;
 pub mod entropic;
 pub mod forecast;
+pub mod least_norm;
 pub mod model;
 pub mod pipeline;
 pub mod report;

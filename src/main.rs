@@ -112,9 +112,9 @@ enum Command {
         out: PathBuf,
     },
     /// Reverse stress test: the most plausible way for a series to reach a threshold (at
-    /// most, or at least) at some period of a range, keeping the scenario's pins and drivers;
-    /// writes it as a new scenario beside the first, with the outcome pinned where it
-    /// happens.
+    /// most, or at least) at some period of a range, with any other outcomes (--also),
+    /// keeping the scenario's pins, corridors and drivers; writes it as a new scenario beside
+    /// the first, with each outcome that binds pinned where it happens.
     Reverse {
         /// The scenario file (RON).
         scenario: PathBuf,
@@ -137,6 +137,11 @@ enum Command {
         /// Last period the outcome may happen at (default: the first).
         #[arg(long)]
         to: Option<String>,
+        /// Another outcome to reach together with the first (repeatable), written
+        /// "SERIES UNITS at-most|at-least VALUE FROM [TO]", e.g.
+        /// "unemployment level at-least 8 2027Q1 2027Q4".
+        #[arg(long, allow_hyphen_values = true)]
+        also: Vec<String>,
         /// Where to write the new scenario (default: beside the first, "-reverse" added).
         #[arg(long)]
         out: Option<PathBuf>,
@@ -256,8 +261,17 @@ fn main() -> ExitCode {
             at_least,
             from,
             to,
+            also,
             out,
-        }) => reverse_command(scenario, series, &units, (at_most, at_least), from, to, out),
+        }) => reverse_command(
+            scenario,
+            series,
+            &units,
+            (at_most, at_least),
+            (from, to),
+            &also,
+            out,
+        ),
         None => window(cli.scenario, cli.compare),
     };
     match result {
@@ -361,64 +375,81 @@ fn reverse_command(
     series: String,
     units: &str,
     bound: (Option<f64>, Option<f64>),
-    from: String,
-    to: Option<String>,
+    (from, to): (String, Option<String>),
+    also: &[String],
     out: Option<PathBuf>,
 ) -> anyhow::Result<Outcome> {
     use tiltyard::reverse::{self, Outcome as Wanted};
     let setup = tiltyard::scenario::load(&scenario)?;
-    let units: tiltyard::scenario::Units = ron::from_str(units)
-        .map_err(|e| anyhow::anyhow!("--units {units}: not a unit of a scenario file ({e})"))?;
+    let units_of = |text: &str, what: &str| -> anyhow::Result<tiltyard::scenario::Units> {
+        ron::from_str(text)
+            .map_err(|e| anyhow::anyhow!("{what} {text}: not a unit of a scenario file ({e})"))
+    };
     let (threshold, at_most) = match bound {
         (Some(c), None) => (c, true),
         (None, Some(c)) => (c, false),
         _ => anyhow::bail!("give the outcome's threshold with --at-most or --at-least"),
     };
-    let wanted = Wanted {
+    let mut wanted = vec![Wanted {
         series,
-        units,
+        units: units_of(units, "--units")?,
         threshold,
         at_most,
         to: to.unwrap_or_else(|| from.clone()),
         from,
-    };
+    }];
+    for text in also {
+        let words: Vec<&str> = text.split_whitespace().collect();
+        let bad = || {
+            anyhow::anyhow!(
+                "--also \"{text}\": write SERIES UNITS at-most|at-least VALUE FROM [TO], e.g. \"unemployment level at-least 8 2027Q1 2027Q4\""
+            )
+        };
+        let (&[series, units, side, value, from], to) = (
+            words
+                .get(..5)
+                .and_then(|w| <&[&str; 5]>::try_from(w).ok())
+                .ok_or_else(bad)?,
+            words.get(5).copied(),
+        );
+        if words.len() > 6 {
+            return Err(bad());
+        }
+        wanted.push(Wanted {
+            series: series.to_string(),
+            units: units_of(units, "--also")?,
+            threshold: value.parse().map_err(|_| bad())?,
+            at_most: match side {
+                "at-most" => true,
+                "at-least" => false,
+                _ => return Err(bad()),
+            },
+            from: from.to_string(),
+            to: to.unwrap_or(from).to_string(),
+        });
+    }
     let model = tiltyard::pipeline::Model::new(&setup)?;
     let found = reverse::reverse(&setup, &model.central, &wanted)?;
     println!("scenario   {} ({})", setup.file.name, scenario.display());
-    println!(
-        "outcome    {}, from {} to {}",
-        reverse::describe(&wanted),
-        wanted.from,
-        wanted.to
-    );
-    for (period, r) in &found.by_period {
+    for w in &wanted {
+        println!(
+            "outcome    {}, from {} to {}",
+            reverse::describe(w),
+            w.from,
+            w.to
+        );
+    }
+    for (periods, r) in &found.tried {
+        let at = periods.join(", ");
         match r {
-            Ok(d) => println!("  {period}  ½ε'ε = {d:.3} nats"),
-            Err(why) => println!("  {period}  out of reach: {why}"),
+            Ok(d) => println!("  {at}  ½ε'ε = {d:.3} nats"),
+            Err(why) => println!("  {at}  out of reach: {why}"),
         }
     }
-    if found.binding {
-        println!(
-            "most plausible: the outcome in {}, with mean structural shocks of ½ε'ε = {:.3} nats (at {})",
-            found.period, found.divergence, model.central_label
-        );
-    } else {
-        println!(
-            "the scenario as it stands already meets the outcome on average in {}: nothing to add",
-            found.period
-        );
+    for line in reverse::summary_lines(&wanted, &found) {
+        println!("{line}");
     }
-    let one_in = |p: f64| tiltyard::checks::one_in(p.max(f64::MIN_POSITIVE).log10());
-    println!(
-        "probability of the outcome in {} under the scenario's pins: {:.2e} ({}); at some period from {} to {}: {:.3} ± {:.3} (from drawn paths)",
-        found.period,
-        found.probability,
-        one_in(found.probability),
-        wanted.from,
-        wanted.to,
-        found.probability_any.0,
-        found.probability_any.1
-    );
+    println!("(at {})", model.central_label);
     let n = setup.n();
     let mut by_shock: Vec<(f64, String)> = (0..n)
         .map(|j| {
@@ -438,16 +469,13 @@ fn reverse_command(
         .map(|(ss, name)| format!("{name} {:.0}%", 100.0 * ss / total))
         .collect();
     println!("shocks     share of ε'ε by shock: {}", shares.join(", "));
-    let t = setup.horizon_of(&found.period, "period")?;
+    let period = &found.at[0].0;
+    let t = setup.horizon_of(period, "period")?;
     let at: Vec<String> = reverse::path_table(&setup, &found)
         .iter()
         .map(|(name, v)| format!("{name} {:.2}", v[t - 1]))
         .collect();
-    println!(
-        "path at {} (display units): {}",
-        found.period,
-        at.join(", ")
-    );
+    println!("path at {period} (display units): {}", at.join(", "));
     let path = out.unwrap_or_else(|| {
         let stem = scenario
             .file_stem()
@@ -464,7 +492,7 @@ fn reverse_command(
         println!("history    {}", h.reading);
     }
     println!(
-        "wrote      {} (the outcome pinned where it happens: edit it further)",
+        "wrote      {} (each outcome that binds pinned where it happens: edit it further)",
         path.display()
     );
     println!("\n{CAUTION}");

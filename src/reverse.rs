@@ -1,34 +1,44 @@
-//! Reverse stress test: the most plausible scenario in which an outcome happens ("bank
-//! lending at most −10% on a year earlier at some quarter of 2026–2028"), keeping the
-//! scenario's pins and drivers.
+//! Reverse stress test: the most plausible scenario in which outcomes happen ("bank lending
+//! at most −10% on a year earlier at some quarter of 2026–2028", and perhaps "unemployment
+//! at least 8% in 2027"), keeping the scenario's pins, corridors and drivers.
 //!
 //! Plausibility is measured on the structural shocks (ALGORITHMS §5, §9.2): the most
-//! plausible scenario minimises `ε'ε` over the driver shocks subject to the pins and the
-//! outcome `q_t ≤ c` (or `≥ c`), a linear inequality on the path. For one period this convex
-//! problem has a closed form: if the pins' own conditional mean already meets the outcome,
-//! that is the answer (the inequality does not bind); otherwise the optimum puts the outcome
-//! exactly at the threshold, and the answer is the conditional mean given the pins and
-//! `q_t = c`, whose shocks are the pins' shock law's mean ([`Plan::pin_shock_law`]). For "at
-//! some period" the smallest `½ε'ε` over the periods wins. The outcome's probability is exact
-//! at one period (`Φ((c − q̄)/σ)` under the scenario's own law given its pins and drivers) and
-//! estimated over the periods by drawing paths, with its standard error. With corridors, the
-//! answer is checked against them and refused when they bind (the quadratic programme that
-//! would need is not built yet).
+//! plausible scenario minimises `½ε'ε` over the driver shocks (the others at their mean,
+//! zero) subject to the pins (`R y = r`), the corridors (`a ≤ S y ≤ b`) and each outcome at
+//! its period (`q_t ≤ c` or `≥ c`), all linear in `ε` through the path `y = μ + M ε`: the
+//! point of least norm in a polyhedron ([`crate::least_norm`], Goldfarb and Idnani 1983). With
+//! pins alone and one outcome that binds it is the conditional mean given the pins and the
+//! outcome at its threshold. "At some period" is searched exhaustively: every combination of
+//! the outcomes' periods is solved and the least divergent wins. An outcome the rest of the
+//! scenario already meets on its most plausible path adds nothing (its constraint does not
+//! bind).
+//!
+//! The outcomes' probability under the scenario's own law (its pins, corridors and drivers)
+//! is exact for one outcome without corridors (`Φ((c − q̄)/σ)` at its period) and otherwise
+//! estimated from drawn paths with its standard error, as is the probability that every
+//! outcome happens at some period of its range.
 
+use nalgebra::DMatrix;
 use rand::SeedableRng;
 
 use crate::forecast::{
-    Conditions, ForecastError, Pin, Plan, Target, Theta,
+    Conditions, ForecastError, Pin, Plan, Target, Theta, path_rows,
     random::{Purpose, stream},
 };
+use crate::least_norm::{Constraint, least_norm};
 use crate::report::fans::display_path_value;
 use crate::scenario::{PinSpec, ScenarioError, ScenarioFile, Setup, Units};
 use crate::truncnorm::univariate::ln_phi_upper;
 
-/// Paths drawn for the probability of the outcome at some period of the range.
-const PROBABILITY_PATHS: usize = 4_000;
+/// A probability estimated from drawn paths, and its standard error.
+type Estimate = (f64, f64);
 
-/// The outcome to reach.
+/// Paths drawn for the outcomes' probabilities.
+const PROBABILITY_PATHS: usize = 4_000;
+/// Most combinations of the outcomes' periods searched.
+const MOST_COMBINATIONS: usize = 4_096;
+
+/// An outcome to reach.
 #[derive(Debug, Clone)]
 pub struct Outcome {
     pub series: String,
@@ -41,163 +51,330 @@ pub struct Outcome {
     pub to: String,
 }
 
-/// The most plausible scenario that reaches the outcome.
+/// The most plausible scenario that reaches the outcomes.
 #[derive(Debug, Clone)]
 pub struct Reverse {
-    /// The period the outcome happens at in it.
-    pub period: String,
-    /// False when the scenario as it stands already meets the outcome on average there.
-    pub binding: bool,
-    /// `½ε'ε` of its mean structural shocks (nats; the pins' part of the plausibility).
+    /// Per outcome: the period it happens at, and whether it binds there (false: the rest of
+    /// the scenario already meets it on its most plausible path).
+    pub at: Vec<(String, bool)>,
+    /// The scenario's corridor rows that bind on the most plausible path, by label.
+    pub binding_corridors: Vec<String>,
+    /// `½ε'ε` of its structural shocks (nats).
     pub divergence: f64,
-    /// Its mean structural shocks, by period then shock (as the paths are stacked).
+    /// Its structural shocks, by period then shock (as the paths are stacked).
     pub shocks: Vec<f64>,
-    /// Its mean path in model units.
+    /// Its path in model units.
     pub path: Vec<f64>,
-    /// `P(outcome at that period)` under the scenario's own law (its pins and drivers).
-    pub probability: f64,
-    /// `P(outcome at some period of the range)`, estimated, and its standard error.
+    /// `P(every outcome at its period)` under the scenario's own law, with its standard
+    /// error when estimated from drawn paths (`None`: exact).
+    pub probability: (f64, Option<f64>),
+    /// `P(every outcome at some period of its range)`, estimated, and its standard error.
     pub probability_any: (f64, f64),
-    /// Per period of the range: `½ε'ε` of the best scenario there, or why none.
-    pub by_period: Vec<(String, Result<f64, String>)>,
-    /// The scenario with the outcome as a pin where it happens, to edit further.
+    /// Every combination of periods tried (one per outcome): `½ε'ε` of the best scenario
+    /// there, or why there is none.
+    pub tried: Vec<(Vec<String>, Result<f64, String>)>,
+    /// The scenario with each binding outcome as a pin where it happens, to edit further.
     pub scenario: ScenarioFile,
 }
 
-/// Why no scenario reaches the outcome.
+/// Why no scenario reaches the outcomes.
 #[derive(Debug, thiserror::Error)]
 pub enum ReverseError {
     #[error(transparent)]
     Scenario(#[from] ScenarioError),
     #[error(transparent)]
     Forecast(#[from] ForecastError),
-    #[error("the outcome ({outcome}) cannot be reached at any period from {from} to {to}: {why}")]
-    Unreachable {
-        outcome: String,
-        from: String,
-        to: String,
-        why: String,
-    },
+    #[error("{outcomes} cannot be reached: {why}")]
+    Unreachable { outcomes: String, why: String },
     #[error(
-        "the most plausible path to the outcome leaves the corridor{}: the corridors bind, which this reverse stress test does not handle yet; switch them off (active: false) or turn them into pins",
-        if .0.len() == 1 { format!(" {}", .0[0]) } else { format!("s {}", .0.join(", ")) }
+        "the outcomes' periods make {count} combinations to search, more than {MOST_COMBINATIONS}: narrow their ranges"
     )]
-    CorridorsBind(Vec<String>),
+    TooManyCombinations { count: usize },
+    #[error("give at least one outcome")]
+    NoOutcome,
 }
 
-/// The most plausible way to `outcome` at the central θ, keeping the scenario's pins and
-/// drivers.
-pub fn reverse(setup: &Setup, theta: &Theta, outcome: &Outcome) -> Result<Reverse, ReverseError> {
-    let all = setup.conditions()?;
-    let pins_only = Conditions {
-        corridors: Vec::new(),
-        ..all.clone()
-    };
-    let base = Plan::new(theta, &pins_only, None)?;
-    let (mean, cov) = base
-        .exact_moments(theta)
-        .ok_or_else(|| ForecastError::Singular("the pins' conditional law".into()))?;
-    let first = setup.horizon_of(&outcome.from, "outcome.from")?;
-    let last = setup.horizon_of(&outcome.to, "outcome.to")?;
-    let label = |t: usize| setup.last_period().offset(t as i64).to_string();
-    // The outcome at each period of the range, as a pin at the threshold.
-    let pins: Vec<(usize, Pin)> = (first..=last)
-        .map(|t| outcome_pin(setup, outcome, t).map(|p| (t, p)))
-        .collect::<Result<_, _>>()?;
-    let mut by_period = Vec::new();
-    let mut best: Option<(usize, f64, Plan, Pin, bool)> = None;
-    for (t, pin) in pins.iter().cloned() {
-        let q = quantity(&pin, mean.as_slice());
-        let met = if outcome.at_most {
-            q <= pin.value
-        } else {
-            q >= pin.value
-        };
-        if met {
-            // The scenario as it is meets the outcome on average here: nothing to add.
-            let d = 0.5 * base.pin_shock_law(theta)?.mean.norm_squared();
-            by_period.push((label(t), Ok(d)));
-            if best.as_ref().is_none_or(|b| d < b.1) {
-                best = Some((t, d, base.clone(), pin, false));
+/// A path row in shock space: `lower ≤ normal'ε ≤ upper`.
+struct ShockRow {
+    constraint: Constraint,
+    label: String,
+}
+
+/// The rows `rows` (unit norm, on the path) as constraints on the driver shocks `cells`.
+fn in_shock_space(
+    theta: &Theta,
+    cells: &[usize],
+    rows: Vec<(nalgebra::DVector<f64>, f64, f64, String)>,
+) -> Vec<ShockRow> {
+    if rows.is_empty() {
+        return Vec::new();
+    }
+    let big_n = theta.len();
+    let mut ft = DMatrix::zeros(big_n, rows.len());
+    for (k, (row, ..)) in rows.iter().enumerate() {
+        ft.set_column(k, row);
+    }
+    theta.adjoint_in_place(&mut ft);
+    rows.into_iter()
+        .enumerate()
+        .map(|(k, (row, lower, upper, label))| {
+            let offset: f64 = row.iter().zip(&theta.mean).map(|(a, m)| a * m).sum();
+            let normal =
+                nalgebra::DVector::from_iterator(cells.len(), cells.iter().map(|&c| ft[(c, k)]));
+            ShockRow {
+                constraint: Constraint {
+                    normal,
+                    lower: lower - offset,
+                    upper: upper - offset,
+                },
+                label,
             }
-            continue;
+        })
+        .collect()
+}
+
+/// The most plausible way to `outcomes` at the central θ, keeping the scenario's pins,
+/// corridors and drivers.
+pub fn reverse(
+    setup: &Setup,
+    theta: &Theta,
+    outcomes: &[Outcome],
+) -> Result<Reverse, ReverseError> {
+    if outcomes.is_empty() {
+        return Err(ReverseError::NoOutcome);
+    }
+    let all = setup.conditions()?;
+    let big_n = theta.len();
+    let cells: Vec<usize> = match all.driver_cells(theta.n(), theta.h) {
+        None => (0..big_n).collect(),
+        Some(mask) => (0..big_n).filter(|&c| mask[c]).collect(),
+    };
+    let label = |t: usize| setup.last_period().offset(t as i64).to_string();
+    let scenario_rows = in_shock_space(
+        theta,
+        &cells,
+        path_rows(theta, &all)?
+            .into_iter()
+            .map(|r| (r.row, r.lower, r.upper, r.label))
+            .collect(),
+    );
+    // Each outcome at each period of its range: its pin at the threshold (for the row and
+    // the model-unit value) and its constraint.
+    let mut choices: Vec<Vec<(usize, Pin, ShockRow)>> = Vec::new();
+    for o in outcomes {
+        let first = setup.horizon_of(&o.from, "outcome.from")?;
+        let last = setup.horizon_of(&o.to, "outcome.to")?;
+        let pins: Vec<(usize, Pin)> = (first..=last)
+            .map(|t| outcome_pin(setup, o, t).map(|p| (t, p)))
+            .collect::<Result<_, _>>()?;
+        let rows = pins
+            .iter()
+            .map(|(t, pin)| {
+                let mut row = nalgebra::DVector::zeros(big_n);
+                for (c, a) in row_of(pin) {
+                    row[c] += a;
+                }
+                let (lower, upper) = if o.at_most {
+                    (f64::NEG_INFINITY, pin.value)
+                } else {
+                    (pin.value, f64::INFINITY)
+                };
+                (
+                    row,
+                    lower,
+                    upper,
+                    format!("{} in {}", describe(o), label(*t)),
+                )
+            })
+            .collect();
+        let constraints = in_shock_space(theta, &cells, rows);
+        choices.push(
+            pins.into_iter()
+                .zip(constraints)
+                .map(|((t, p), c)| (t, p, c))
+                .collect(),
+        );
+    }
+    let count = choices
+        .iter()
+        .try_fold(1usize, |acc, c| acc.checked_mul(c.len()))
+        .unwrap_or(usize::MAX);
+    if count > MOST_COMBINATIONS {
+        return Err(ReverseError::TooManyCombinations { count });
+    }
+    let base: Vec<Constraint> = scenario_rows.iter().map(|r| r.constraint.clone()).collect();
+    let mut tried = Vec::new();
+    let mut best: Option<(Vec<usize>, crate::least_norm::Solution)> = None;
+    for combination in 0..count {
+        // The combination's period index for each outcome (the last outcome fastest).
+        let mut rest = combination;
+        let mut picks = vec![0; choices.len()];
+        for (k, c) in choices.iter().enumerate().rev() {
+            picks[k] = rest % c.len();
+            rest /= c.len();
         }
-        let mut cond = pins_only.clone();
-        cond.pins.push(pin.clone());
-        match Plan::new(theta, &cond, None).and_then(|p| {
-            let d = 0.5 * p.pin_shock_law(theta)?.mean.norm_squared();
-            Ok((p, d))
-        }) {
-            Ok((plan, d)) => {
-                by_period.push((label(t), Ok(d)));
-                if best.as_ref().is_none_or(|b| d < b.1) {
-                    best = Some((t, d, plan, pin, true));
+        let mut constraints = base.clone();
+        constraints.extend(
+            picks
+                .iter()
+                .zip(&choices)
+                .map(|(&i, c)| c[i].2.constraint.clone()),
+        );
+        let periods: Vec<String> = picks
+            .iter()
+            .zip(&choices)
+            .map(|(&i, c)| label(c[i].0))
+            .collect();
+        match least_norm(cells.len(), &constraints) {
+            Ok(solution) => {
+                let d = solution.divergence();
+                tried.push((periods, Ok(d)));
+                if best.as_ref().is_none_or(|b| d < b.1.divergence()) {
+                    best = Some((picks, solution));
                 }
             }
-            Err(e) => by_period.push((label(t), Err(e.to_string()))),
+            Err(infeasible) => {
+                let name = |i: usize| {
+                    if i < scenario_rows.len() {
+                        scenario_rows[i].label.clone()
+                    } else {
+                        let k = i - scenario_rows.len();
+                        choices[k][picks[k]].2.label.clone()
+                    }
+                };
+                let with: Vec<String> = infeasible.with.iter().map(|&i| name(i)).collect();
+                let why = format!(
+                    "{} cannot hold{} with the drivers ({})",
+                    name(infeasible.index),
+                    if with.is_empty() {
+                        String::new()
+                    } else {
+                        format!(" together with {}", with.join(", "))
+                    },
+                    all.driver_names()
+                );
+                tried.push((periods, Err(why)));
+            }
         }
     }
-    let Some((t, divergence, plan, pin, binding)) = best else {
-        let why = by_period
+    let Some((picks, solution)) = best else {
+        let why = tried
             .iter()
             .find_map(|(_, r)| r.as_ref().err().cloned())
             .unwrap_or_default();
+        let ranges: Vec<String> = outcomes
+            .iter()
+            .map(|o| format!("{}, from {} to {}", describe(o), o.from, o.to))
+            .collect();
         return Err(ReverseError::Unreachable {
-            outcome: describe(outcome),
-            from: outcome.from.clone(),
-            to: outcome.to.clone(),
+            outcomes: if outcomes.len() == 1 {
+                format!("the outcome ({}) at any of its periods", ranges[0])
+            } else {
+                format!(
+                    "the outcomes ({}) together at any of their periods",
+                    ranges.join("; ")
+                )
+            },
             why,
         });
     };
-    let law = plan.pin_shock_law(theta)?;
-    let path = plan
-        .exact_moments(theta)
-        .map(|m| m.0.iter().copied().collect::<Vec<f64>>())
-        .ok_or_else(|| ForecastError::Singular("the conditional law".into()))?;
-    // The corridors are kept: the answer stands only if it meets them.
-    if !all.corridors.is_empty() {
-        let full = Plan::new(theta, &all, None)?;
-        if full.corridor_violation(&path) > 1e-9 {
-            return Err(ReverseError::CorridorsBind(full.corridor_names()));
+    let mut shocks = vec![0.0; big_n];
+    for (&c, e) in cells.iter().zip(solution.x.iter()) {
+        shocks[c] = *e;
+    }
+    let path = theta.path_from_shocks(&shocks);
+    let first_outcome = scenario_rows.len();
+    let at: Vec<(String, bool)> = picks
+        .iter()
+        .zip(&choices)
+        .enumerate()
+        .map(|(k, (&i, c))| {
+            (
+                label(c[i].0),
+                solution.multipliers[first_outcome + k] != 0.0,
+            )
+        })
+        .collect();
+    let binding_corridors = scenario_rows
+        .iter()
+        .enumerate()
+        .filter(|(i, r)| {
+            r.constraint.lower != r.constraint.upper && solution.multipliers[*i] != 0.0
+        })
+        .map(|(_, r)| r.label.clone())
+        .collect();
+    let chosen: Vec<Pin> = picks
+        .iter()
+        .zip(&choices)
+        .map(|(&i, c)| c[i].1.clone())
+        .collect();
+    let ranges: Vec<Vec<Pin>> = choices
+        .iter()
+        .map(|c| c.iter().map(|(_, p, _)| p.clone()).collect())
+        .collect();
+    let (drawn, probability_any) = probabilities(setup, theta, &all, outcomes, &chosen, &ranges)?;
+    let probability = if outcomes.len() == 1 && all.corridors.is_empty() {
+        (
+            exact_probability(theta, &all, &outcomes[0], &chosen[0])?,
+            None,
+        )
+    } else {
+        (drawn.0, Some(drawn.1))
+    };
+    let mut scenario = setup.file.clone();
+    if at.iter().any(|a| a.1) {
+        let names: Vec<String> = outcomes.iter().map(describe).collect();
+        scenario.name = format!("{} — reverse stress: {}", scenario.name, names.join("; "));
+    }
+    for (o, (period, binding)) in outcomes.iter().zip(&at) {
+        if *binding {
+            scenario.pins.push(PinSpec {
+                series: Some(o.series.clone()),
+                shock: None,
+                period: period.clone(),
+                units: o.units,
+                value: o.threshold,
+                active: true,
+            });
         }
     }
-    let row = row_of(&pin);
-    let q = quantity(&pin, mean.as_slice());
+    Ok(Reverse {
+        at,
+        binding_corridors,
+        divergence: solution.divergence(),
+        shocks,
+        path,
+        probability,
+        probability_any,
+        tried,
+        scenario,
+    })
+}
+
+/// `P(outcome at its period)` under the pins alone (no corridors): `Φ((c − q̄)/σ)` from the
+/// pins' exact conditional law.
+fn exact_probability(
+    theta: &Theta,
+    all: &Conditions,
+    outcome: &Outcome,
+    pin: &Pin,
+) -> Result<f64, ReverseError> {
+    let base = Plan::new(theta, all, None)?;
+    let (mean, cov) = base
+        .exact_moments(theta)
+        .ok_or_else(|| ForecastError::Singular("the pins' conditional law".into()))?;
+    let row = row_of(pin);
+    let q = quantity(pin, mean.as_slice());
     let cov = &cov;
     let var: f64 = row
         .iter()
         .flat_map(|&(c, a)| row.iter().map(move |&(d, b)| a * b * cov[(c, d)]))
         .sum();
     let z = (pin.value - q) / var.max(0.0).sqrt();
-    let probability = if outcome.at_most {
+    Ok(if outcome.at_most {
         ln_phi_upper(-z).exp()
     } else {
         ln_phi_upper(z).exp()
-    };
-    let outcome_pins: Vec<Pin> = pins.into_iter().map(|(_, p)| p).collect();
-    let probability_any = probability_over(setup, theta, &base, outcome, &outcome_pins)?;
-    let mut scenario = setup.file.clone();
-    if binding {
-        scenario.name = format!("{} — reverse stress: {}", scenario.name, describe(outcome));
-        scenario.pins.push(PinSpec {
-            series: Some(outcome.series.clone()),
-            shock: None,
-            period: label(t),
-            units: outcome.units,
-            value: outcome.threshold,
-            active: true,
-        });
-    }
-    Ok(Reverse {
-        period: label(t),
-        binding,
-        divergence,
-        shocks: law.mean.iter().copied().collect(),
-        path,
-        probability,
-        probability_any,
-        by_period,
-        scenario,
     })
 }
 
@@ -226,35 +403,47 @@ fn row_of(pin: &Pin) -> Vec<(usize, f64)> {
     }
 }
 
-/// `P(outcome at some period of the range)` under the pins, by [`PROBABILITY_PATHS`] paths,
-/// with its standard error.
-fn probability_over(
+/// Under the scenario's own law (pins, corridors, drivers), from [`PROBABILITY_PATHS`] drawn
+/// paths: `P(every outcome at its chosen period)` and `P(every outcome at some period of its
+/// range)`, each with its standard error.
+fn probabilities(
     setup: &Setup,
     theta: &Theta,
-    base: &Plan,
-    outcome: &Outcome,
-    pins: &[Pin],
-) -> Result<(f64, f64), ReverseError> {
+    all: &Conditions,
+    outcomes: &[Outcome],
+    chosen: &[Pin],
+    ranges: &[Vec<Pin>],
+) -> Result<(Estimate, Estimate), ReverseError> {
+    let plan = Plan::new(theta, all, None)?;
     let mut rng = stream(setup.file.seed, Purpose::Checks, 3);
     let mut rngs: Vec<rand_chacha::ChaCha8Rng> = (0..PROBABILITY_PATHS)
         .map(|_| rand_chacha::ChaCha8Rng::from_rng(&mut rng))
         .collect();
     let mut refs: Vec<&mut rand_chacha::ChaCha8Rng> = rngs.iter_mut().collect();
-    let mut hits = 0usize;
-    for drawn in base.sample_many(theta, &mut refs) {
+    let happens = |o: &Outcome, p: &Pin, y: &[f64]| {
+        let q = quantity(p, y);
+        if o.at_most {
+            q <= p.value
+        } else {
+            q >= p.value
+        }
+    };
+    let (mut at, mut any) = (0usize, 0usize);
+    for drawn in plan.sample_many(theta, &mut refs) {
         let (y, _) = drawn?;
-        let hit = pins.iter().any(|p| {
-            let q: f64 = row_of(p).iter().map(|&(c, a)| a * y[c]).sum();
-            if outcome.at_most {
-                q <= p.value
-            } else {
-                q >= p.value
-            }
-        });
-        hits += usize::from(hit);
+        let all_at = outcomes.iter().zip(chosen).all(|(o, p)| happens(o, p, &y));
+        let all_any = outcomes
+            .iter()
+            .zip(ranges)
+            .all(|(o, pins)| pins.iter().any(|p| happens(o, p, &y)));
+        at += usize::from(all_at);
+        any += usize::from(all_any);
     }
-    let p = hits as f64 / PROBABILITY_PATHS as f64;
-    Ok((p, (p * (1.0 - p) / PROBABILITY_PATHS as f64).sqrt()))
+    let share = |k: usize| {
+        let p = k as f64 / PROBABILITY_PATHS as f64;
+        (p, (p * (1.0 - p) / PROBABILITY_PATHS as f64).sqrt())
+    };
+    Ok((share(at), share(any)))
 }
 
 /// "bank_lending (% on a year earlier) at most -10".
@@ -278,4 +467,61 @@ pub fn path_table(setup: &Setup, r: &Reverse) -> Vec<(String, Vec<f64>)> {
             (setup.names[i].clone(), values)
         })
         .collect()
+}
+
+/// What the answer says, in lines to read (the command and the window both show them): each
+/// outcome where it happens, the shocks it needs, the corridors it presses against, and the
+/// probabilities.
+pub fn summary_lines(outcomes: &[Outcome], r: &Reverse) -> Vec<String> {
+    let mut lines = Vec::new();
+    for (o, (period, binding)) in outcomes.iter().zip(&r.at) {
+        lines.push(if *binding {
+            format!("{} in {period}", describe(o))
+        } else {
+            format!(
+                "{}: the rest of the scenario already meets it in {period}, nothing to add",
+                describe(o)
+            )
+        });
+    }
+    lines.push(format!(
+        "Most plausible: structural shocks of ½ε'ε = {:.3} nats.",
+        r.divergence
+    ));
+    if !r.binding_corridors.is_empty() {
+        lines.push(format!(
+            "Corridors at their bounds on the way: {}.",
+            r.binding_corridors.join(", ")
+        ));
+    }
+    let (p, se) = r.probability;
+    // No drawn path reaching the outcomes bounds the probability, it does not measure it
+    // (the rule of three: below 3/n at 95%).
+    let said = match se {
+        None => format!(
+            "{} ({p:.2e}, exact)",
+            crate::checks::one_in(p.max(f64::MIN_POSITIVE).log10())
+        ),
+        Some(_) if p == 0.0 => format!(
+            "below 1 in {:.0} (none of {PROBABILITY_PATHS} drawn paths; 95% bound)",
+            PROBABILITY_PATHS as f64 / 3.0
+        ),
+        Some(se) => format!(
+            "{} ({p:.2e} ± {se:.1e} from drawn paths)",
+            crate::checks::one_in(p.log10())
+        ),
+    };
+    let what = if outcomes.len() == 1 {
+        format!("the outcome in {}", r.at[0].0)
+    } else {
+        "every outcome at its period".to_string()
+    };
+    lines.push(format!(
+        "Probability under the scenario's own law of {what}: {said}; of {} at some period of {}: {:.3} ± {:.3} (from drawn paths).",
+        if outcomes.len() == 1 { "it" } else { "every outcome" },
+        if outcomes.len() == 1 { "its range" } else { "their ranges" },
+        r.probability_any.0,
+        r.probability_any.1
+    ));
+    lines
 }

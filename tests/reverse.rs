@@ -49,9 +49,10 @@ fn one_outcome_matches_the_closed_form() {
     let setup = levels(&fx, |_| {}, &dir);
     let theta = Model::new(&setup).unwrap().central;
     let x = want["threshold_level"].as_f64().unwrap();
-    let r = reverse(&setup, &theta, &realinv(x, true, "2010Q4", "2010Q4")).unwrap();
+    let r = reverse(&setup, &theta, &[realinv(x, true, "2010Q4", "2010Q4")]).unwrap();
     let tol = EXACT * want["condition_number"].as_f64().unwrap();
-    assert!(r.binding);
+    assert!(r.at[0].1);
+    assert!(r.binding_corridors.is_empty());
     let e = rel_err(
         &DMatrix::from_column_slice(32, 1, &r.path),
         &DMatrix::from_column_slice(32, 1, vector(&want["mean"]).as_slice()),
@@ -60,11 +61,15 @@ fn one_outcome_matches_the_closed_form() {
     let p = want["probability"].as_f64().unwrap();
     println!(
         "path {e:.1e}, divergence {} ({d}), probability {} ({p})",
-        r.divergence, r.probability
+        r.divergence, r.probability.0
     );
     assert!(e < tol, "path {e:e}");
     assert!((r.divergence - d).abs() < tol * d, "divergence");
-    assert!((r.probability - p).abs() < tol * p, "probability");
+    assert!((r.probability.0 - p).abs() < tol * p, "probability");
+    assert_eq!(
+        r.probability.1, None,
+        "exact for one outcome without corridors"
+    );
     // The new scenario carries the outcome as a pin where it happens.
     let pin = r.scenario.pins.last().unwrap();
     assert_eq!((pin.period.as_str(), pin.value), ("2010Q4", x));
@@ -79,21 +84,21 @@ fn an_outcome_already_met_adds_nothing_and_the_search_picks_the_least_divergent(
     let dir = tempfile::tempdir().unwrap();
     let setup = levels(&fx, |_| {}, &dir);
     let theta = Model::new(&setup).unwrap().central;
-    let met = reverse(&setup, &theta, &realinv(1e9, true, "2010Q4", "2010Q4")).unwrap();
-    assert!(!met.binding);
+    let met = reverse(&setup, &theta, &[realinv(1e9, true, "2010Q4", "2010Q4")]).unwrap();
+    assert!(!met.at[0].1);
     assert_eq!(met.scenario.pins.len(), setup.file.pins.len());
     let want = json("reverse.json");
     let x = want["threshold_level"].as_f64().unwrap();
-    let r = reverse(&setup, &theta, &realinv(x, true, "2010Q1", "2011Q3")).unwrap();
+    let r = reverse(&setup, &theta, &[realinv(x, true, "2010Q1", "2011Q3")]).unwrap();
     let least = r
-        .by_period
+        .tried
         .iter()
-        .filter_map(|(p, d)| d.as_ref().ok().map(|d| (p, *d)))
+        .filter_map(|(p, d)| d.as_ref().ok().map(|d| (&p[0], *d)))
         .min_by(|a, b| a.1.total_cmp(&b.1))
         .unwrap();
-    assert_eq!(least.0, &r.period);
+    assert_eq!(least.0, &r.at[0].0);
     assert_eq!(least.1, r.divergence);
-    assert_eq!(r.by_period.len(), 7);
+    assert_eq!(r.tried.len(), 7);
 }
 
 #[test]
@@ -117,11 +122,98 @@ fn an_outcome_the_drivers_cannot_reach_is_named() {
     }]);
     let setup = Setup::new(file, &setup.path).unwrap();
     let theta = Model::new(&setup).unwrap().central;
-    let err = reverse(&setup, &theta, &realinv(1.0, true, "2010Q2", "2010Q4")).unwrap_err();
+    let err = reverse(&setup, &theta, &[realinv(1.0, true, "2010Q2", "2010Q4")]).unwrap_err();
     assert!(matches!(err, ReverseError::Unreachable { .. }));
     let text = err.to_string();
     assert!(
         text.contains("realinv") && text.contains("no shock may move before 2011Q1"),
         "{text}"
     );
+}
+
+/// Several outcomes together, with a corridor that binds on the way: against the least-norm
+/// shocks a general-purpose solver finds (`tests/fixtures/reverse_programme.json`, made by
+/// `make_reverse_programme.py`: scipy's SLSQP finds the active set, numpy solves it exactly and
+/// checks the multipliers' signs). Each combination of periods tried, the one chosen, the
+/// path, the corridor rows that bind and the outcomes pinned in the new scenario.
+#[test]
+fn several_outcomes_and_a_binding_corridor_match_a_general_solver() {
+    let fx = json("pins_gaussian.json");
+    let want = json("reverse_programme.json");
+    let dir = tempfile::tempdir().unwrap();
+    let setup = levels(&fx, |_| {}, &dir);
+    let mut file = setup.file.clone();
+    let floor: Vec<Option<f64>> = want["floor_level"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|v| v.as_f64())
+        .collect();
+    file.corridors.push(scenario::CorridorSpec {
+        series: Some("realcons".into()),
+        shock: None,
+        from: "2010Q2".into(),
+        to: "2011Q1".into(),
+        units: Units::Level,
+        lower: Some(scenario::Bound::Each(floor)),
+        upper: None,
+        active: true,
+    });
+    let setup = Setup::new(file, &setup.path).unwrap();
+    let theta = Model::new(&setup).unwrap().central;
+    let inv = want["realinv_at_most_level"].as_f64().unwrap();
+    let rate = Outcome {
+        series: "tbilrate".into(),
+        units: Units::Level,
+        threshold: want["tbilrate_at_least"].as_f64().unwrap(),
+        at_most: false,
+        from: "2011Q2".into(),
+        to: "2011Q3".into(),
+    };
+    let outcomes = [realinv(inv, true, "2010Q4", "2010Q4"), rate];
+    let r = reverse(&setup, &theta, &outcomes).unwrap();
+    let tried = want["tried"].as_array().unwrap();
+    assert_eq!(r.tried.len(), tried.len());
+    for (got, w) in r.tried.iter().zip(tried) {
+        let tol = EXACT * w["condition_number"].as_f64().unwrap();
+        let d = w["divergence"].as_f64().unwrap();
+        assert_eq!(
+            got.0,
+            vec!["2010Q4".to_string(), w["period"].as_str().unwrap().into()]
+        );
+        let gd = *got.1.as_ref().unwrap();
+        assert!((gd - d).abs() < tol * d, "{gd} against {d}");
+    }
+    let best = tried.iter().find(|t| t["period"] == want["best"]).unwrap();
+    let tol = EXACT * best["condition_number"].as_f64().unwrap();
+    assert_eq!(r.at[1].0, want["best"].as_str().unwrap());
+    assert!(r.at.iter().all(|a| a.1), "both outcomes bind");
+    let e = rel_err(
+        &DMatrix::from_column_slice(32, 1, &r.path),
+        &DMatrix::from_column_slice(32, 1, vector(&best["path"]).as_slice()),
+    );
+    println!(
+        "path {e:.1e}, corridors at their bounds: {:?}",
+        r.binding_corridors
+    );
+    assert!(e < tol, "path {e:e}");
+    let binds: Vec<&str> = best["floor_binds"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|p| p.as_str().unwrap())
+        .collect();
+    assert_eq!(r.binding_corridors.len(), binds.len());
+    for (label, period) in r.binding_corridors.iter().zip(&binds) {
+        assert!(label.ends_with(&format!(" at {period}")), "{label}");
+    }
+    // Both outcomes become pins of the new scenario; with a corridor, the probability is
+    // drawn (with its standard error).
+    let n = setup.file.pins.len();
+    assert_eq!(r.scenario.pins.len(), n + 2);
+    assert_eq!(
+        r.scenario.pins[n + 1].period,
+        want["best"].as_str().unwrap()
+    );
+    assert!(r.probability.1.is_some());
 }

@@ -12,7 +12,7 @@ use super::TiltyardApp;
 use super::palette::Palette;
 use super::panels::CHART_UNITS;
 use crate::pipeline::Model;
-use crate::reverse::{Outcome, describe, path_table, reverse};
+use crate::reverse::{Outcome, path_table, reverse, summary_lines};
 use crate::scenario::{PinSpec, ScenarioFile, Setup, Units};
 
 /// The form, the search under way and its last answer.
@@ -93,41 +93,20 @@ impl ReverseState {
 fn find(file: ScenarioFile, path: &std::path::Path, outcome: &Outcome) -> Result<Found, String> {
     let setup = Setup::new(file, path).map_err(|e| e.to_string())?;
     let model = Model::new(&setup).map_err(|e| e.to_string())?;
-    let r = reverse(&setup, &model.central, outcome).map_err(|e| e.to_string())?;
-    let mut lines = Vec::new();
-    if r.binding {
-        lines.push(format!(
-            "Most plausible: {} in {}, with mean structural shocks of ½ε'ε = {:.2} nats.",
-            describe(outcome),
-            r.period,
-            r.divergence
-        ));
-    } else {
-        lines.push(format!(
-            "The scenario as it stands already meets it on average in {}: nothing to add.",
-            r.period
-        ));
-    }
-    lines.push(format!(
-        "Probability in {}: {} ({:.1e}); at some period from {} to {}: {:.3} ± {:.3}.",
-        r.period,
-        crate::checks::one_in(r.probability.max(f64::MIN_POSITIVE).log10()),
-        r.probability,
-        outcome.from,
-        outcome.to,
-        r.probability_any.0,
-        r.probability_any.1
-    ));
+    let outcomes = std::slice::from_ref(outcome);
+    let r = reverse(&setup, &model.central, outcomes).map_err(|e| e.to_string())?;
+    let mut lines = summary_lines(outcomes, &r);
+    let period = &r.at[0].0;
     let t = setup
-        .horizon_of(&r.period, "period")
+        .horizon_of(period, "period")
         .map_err(|e| e.to_string())?;
     let at: Vec<String> = path_table(&setup, &r)
         .iter()
         .enumerate()
         .map(|(i, (_, v))| format!("{} {:.2}", setup.shown(i), v[t - 1]))
         .collect();
-    lines.push(format!("The path in {}: {}.", r.period, at.join(", ")));
-    let pin = r.binding.then(|| r.scenario.pins.last().cloned()).flatten();
+    lines.push(format!("The path in {period}: {}.", at.join(", ")));
+    let pin = r.at[0].1.then(|| r.scenario.pins.last().cloned()).flatten();
     Ok(Found { lines, pin })
 }
 
@@ -169,7 +148,7 @@ pub fn show(ctx: &egui::Context, app: &mut TiltyardApp, pal: &Palette) {
 
 fn form(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     ui.label(
-        RichText::new("The most plausible way (the smallest structural shocks) for a series to reach a threshold at some period, keeping the scenario's pins and drivers.")
+        RichText::new("The most plausible way (the smallest structural shocks) for a series to reach a threshold at some period, keeping the scenario's pins, corridors and drivers.")
             .small()
             .color(pal.muted),
     );

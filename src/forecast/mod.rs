@@ -33,6 +33,7 @@ pub use engine::{
     normalise, path_weights, sample_paths,
 };
 pub use plan::Plan;
+pub use rows::{PathRow, path_rows};
 pub use theta::Theta;
 
 /// Everything that can go wrong while forecasting. Every variant that is about conditions

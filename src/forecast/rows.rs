@@ -186,49 +186,7 @@ impl Rows {
         draw: Option<usize>,
     ) -> Result<Rows, ForecastError> {
         let big_n = theta.len();
-        let pins: Vec<Raw> = cond
-            .pins
-            .iter()
-            .map(|p| {
-                raw(
-                    theta,
-                    &p.target,
-                    (p.value, p.value),
-                    p.label.clone(),
-                    &p.label,
-                )
-            })
-            .collect::<Result<_, _>>()?;
-        let mut corridor_raw = Vec::new();
-        let mut notes = Vec::new();
-        for c in &cond.corridors {
-            if c.rows
-                .iter()
-                .all(|b| b.lower == f64::NEG_INFINITY && b.upper == f64::INFINITY)
-            {
-                notes.push(format!(
-                    "corridor '{}' bounds nothing (its bounds lie outside what the series can take)",
-                    c.label
-                ));
-            }
-            for (k, b) in c.rows.iter().enumerate() {
-                if b.lower == f64::NEG_INFINITY && b.upper == f64::INFINITY {
-                    continue;
-                }
-                if b.lower.is_nan() || b.upper.is_nan() || b.lower >= b.upper {
-                    return Err(ForecastError::EmptyCorridor {
-                        corridor: c.row_label(k),
-                    });
-                }
-                corridor_raw.push(raw(
-                    theta,
-                    &b.target,
-                    (b.lower, b.upper),
-                    c.row_label(k),
-                    &c.label,
-                )?);
-            }
-        }
+        let (pins, corridor_raw, mut notes) = raw_rows(theta, cond)?;
         let every_pin = stack(&pins, big_n, |r| (r.lower, r.lower));
         let every_corridor = stack(&corridor_raw, big_n, |r| (r.lower, r.upper));
 
@@ -434,6 +392,84 @@ impl Rows {
             })
             .fold(0.0, f64::max)
     }
+}
+
+/// Pins, corridor rows and notes.
+type RawRows = (Vec<Raw>, Vec<Raw>, Vec<String>);
+
+/// Every pin and corridor row of `cond` as given (unit norm, with its bounds in the same
+/// scaling: a pin's value twice), corridor rows bounding nothing left out with a note.
+fn raw_rows(theta: &Theta, cond: &Conditions) -> Result<RawRows, ForecastError> {
+    let pins: Vec<Raw> = cond
+        .pins
+        .iter()
+        .map(|p| {
+            raw(
+                theta,
+                &p.target,
+                (p.value, p.value),
+                p.label.clone(),
+                &p.label,
+            )
+        })
+        .collect::<Result<_, _>>()?;
+    let mut corridor_raw = Vec::new();
+    let mut notes = Vec::new();
+    for c in &cond.corridors {
+        if c.rows
+            .iter()
+            .all(|b| b.lower == f64::NEG_INFINITY && b.upper == f64::INFINITY)
+        {
+            notes.push(format!(
+                "corridor '{}' bounds nothing (its bounds lie outside what the series can take)",
+                c.label
+            ));
+        }
+        for (k, b) in c.rows.iter().enumerate() {
+            if b.lower == f64::NEG_INFINITY && b.upper == f64::INFINITY {
+                continue;
+            }
+            if b.lower.is_nan() || b.upper.is_nan() || b.lower >= b.upper {
+                return Err(ForecastError::EmptyCorridor {
+                    corridor: c.row_label(k),
+                });
+            }
+            corridor_raw.push(raw(
+                theta,
+                &b.target,
+                (b.lower, b.upper),
+                c.row_label(k),
+                &c.label,
+            )?);
+        }
+    }
+    Ok((pins, corridor_raw, notes))
+}
+
+/// A condition's row on the path as given: `lower ≤ row'y ≤ upper` (a pin: equal bounds; a
+/// one-sided corridor: an infinite bound), with its label.
+#[derive(Debug, Clone)]
+pub struct PathRow {
+    pub row: DVector<f64>,
+    pub lower: f64,
+    pub upper: f64,
+    pub label: String,
+}
+
+/// Every pin and corridor row of `cond`, none dropped or merged: the constraints of a
+/// programme that deals with dependent rows itself (the reverse stress test).
+pub fn path_rows(theta: &Theta, cond: &Conditions) -> Result<Vec<PathRow>, ForecastError> {
+    let (pins, corridors, _) = raw_rows(theta, cond)?;
+    Ok(pins
+        .into_iter()
+        .chain(corridors)
+        .map(|r| PathRow {
+            row: r.row,
+            lower: r.lower,
+            upper: r.upper,
+            label: r.label,
+        })
+        .collect())
 }
 
 fn stack(
