@@ -157,3 +157,39 @@ fn timed_drivers_are_saved_and_read_back() {
     assert_eq!(changed.len(), 1, "{changed:?}");
     assert!(changed[0].1.contains(r#"to: "2010Q1""#));
 }
+
+/// The split by shock date: with the drivers timed to the first period only, every shock of
+/// the scenario hits then, so the first date's part is the whole move — the conditional mean
+/// less the unconditional one, against numpy's (`timed_drivers.json`) — and every later
+/// date's part is zero; the dates' parts add up to the shocks' parts.
+#[test]
+fn the_split_by_shock_date_puts_a_first_period_scenario_in_its_first_period() {
+    let fx = json("pins_gaussian.json");
+    let want = json("timed_drivers.json");
+    let dir = tempfile::tempdir().unwrap();
+    let mut setup = setup(&fx, 2, FIRST_PERIOD, &dir);
+    let theta = fixed_theta(&setup);
+    let out = tiltyard::run::run(&mut setup, &Default::default()).unwrap();
+    let a = out.attribution.expect("a split");
+    let dates = a.by_date.as_ref().expect("timed drivers split by date");
+    assert_eq!(dates.len(), 8);
+    let moved = vector(&want["mean"]) - DVector::from_column_slice(&theta.mean);
+    let tol = EXACT * want["condition_number"].as_f64().unwrap();
+    let first = rel_err(
+        &DMatrix::from_column_slice(32, 1, &dates[0]),
+        &DMatrix::from_column_slice(32, 1, moved.as_slice()),
+    );
+    println!("first date against numpy's move: {first:.1e}");
+    assert!(first < tol, "{first:e}");
+    let later = dates[1..]
+        .iter()
+        .flatten()
+        .map(|v| v.abs())
+        .fold(0.0, f64::max);
+    assert!(later < tol * moved.amax(), "{later:e}");
+    for c in 0..32 {
+        let by_date: f64 = dates.iter().map(|d| d[c]).sum();
+        let by_shock: f64 = a.by_shock.iter().map(|s| s[c]).sum();
+        assert!((by_date - by_shock).abs() < 1e-9 * (1.0 + by_shock.abs()));
+    }
+}

@@ -1032,7 +1032,10 @@ fn the_window_splits_the_scenario_as_the_headless_run_does() {
     assert!(tiltyard::app::sources::colour_of(h.state(), pin).is_none());
     h.get_by_label("by condition").click();
     h.run_steps(2);
-    assert!(h.state().view.sources_view.by_condition);
+    assert_eq!(
+        h.state().view.sources_view.split,
+        tiltyard::app::sources::Split::Condition
+    );
     assert_eq!(
         tiltyard::app::sources::colour_of(h.state(), pin),
         Some(tiltyard::app::sources::condition_colour(0))
@@ -1601,4 +1604,43 @@ fn a_target_added_in_the_window_tilts_the_fans() {
     h.state_mut().doc.undo();
     h.state_mut().doc.undo();
     assert!(h.state().doc.file.targets.is_empty());
+}
+
+/// With timed drivers, "Where it comes from" also splits by the date the shocks hit: the
+/// headless run's split (the same to the last digit), one part a date, named by its period.
+#[test]
+fn timed_drivers_split_by_shock_date_in_the_window() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = demo_copy(&dir);
+    let mut file = scenario::read(&path).unwrap();
+    file.drivers = Some(
+        ["output", "unemployment", "credit_spread", "house_prices"]
+            .iter()
+            .map(|s| scenario::DriverSpec::Timed {
+                shock: s.to_string(),
+                from: "2026Q1".into(),
+                to: "2027Q4".into(),
+            })
+            .collect(),
+    );
+    std::fs::write(&path, scenario::to_text(&file)).unwrap();
+    let mut setup = scenario::load(&path).unwrap();
+    let out = tiltyard::run::run(&mut setup, &Default::default()).unwrap();
+    let dates = out.attribution.as_ref().unwrap().by_date.as_ref().unwrap();
+    // Shocks hit from 2026Q1 to 2027Q4 only: the 2028 dates carry nothing.
+    assert!(dates[8..].iter().flatten().all(|v| *v == 0.0));
+    let mut h = harness(&path);
+    settle(&mut h);
+    let (_, sources) = h.state().session.sources.clone().expect("a split");
+    assert_eq!(Some(&sources.attribution), out.attribution.as_ref());
+    h.get_by_label("Where it comes from").click();
+    h.run_steps(2);
+    h.get_by_label("by shock date").click();
+    h.run_steps(2);
+    assert_eq!(
+        h.state().view.sources_view.split,
+        tiltyard::app::sources::Split::Date
+    );
+    assert!(h.query_all_by_label("shocks in 2026Q1").count() >= 1);
+    assert!(h.query_all_by_label("shocks in 2028Q1").next().is_none());
 }

@@ -12,15 +12,26 @@ use egui_plot::{Bar, BarChart, GridMark, Legend, Line, Plot};
 use super::TiltyardApp;
 use super::palette::Palette;
 use super::worker::Sources;
-use crate::report::attribution::{PART_COLOURS, series_part, shock_parts};
+use crate::report::attribution::{PART_COLOURS, SHOWN_PARTS, series_part, shock_parts};
+
+/// How the attribution view splits the move.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub enum Split {
+    /// By structural shock.
+    #[default]
+    Shock,
+    /// By pin and corridor.
+    Condition,
+    /// By the date the shocks hit (with timed drivers).
+    Date,
+}
 
 /// What the attribution view shows.
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct SourcesView {
     /// The series shown (by name; the first conditioned series when none was chosen).
     pub series: Option<String>,
-    /// Split by condition rather than by shock.
-    pub by_condition: bool,
+    pub split: Split,
 }
 
 /// The colour of the `k`-th part of a chart ([`PART_COLOURS`]).
@@ -37,7 +48,9 @@ pub fn condition_colour(k: usize) -> Color32 {
 /// The colour of a condition in the split by condition, when that split is on show.
 pub fn colour_of(app: &TiltyardApp, cref: super::gesture::CondRef) -> Option<Color32> {
     let (_, sources) = app.session.sources.as_ref()?;
-    if !(app.view.pane == super::grid::Pane::Sources && app.view.sources_view.by_condition) {
+    if !(app.view.pane == super::grid::Pane::Sources
+        && app.view.sources_view.split == Split::Condition)
+    {
         return None;
     }
     let field = cref.field();
@@ -79,18 +92,20 @@ struct Part {
     colour: Color32,
 }
 
-/// The parts of series `i`: by shock as [`shock_parts`] gives them, or by condition in the
-/// scenario's order (pins, then corridors).
+/// The parts of series `i`: by shock as [`shock_parts`] gives them, by condition in the
+/// scenario's order (pins, then corridors), or by the date the shocks hit (`labels`: the
+/// future periods), with the weights' parts after.
 fn parts(
     sources: &Sources,
     shown: &[String],
+    labels: &[String],
     i: usize,
-    by_condition: bool,
+    split: Split,
     pal: &Palette,
 ) -> Vec<Part> {
     let a = &sources.attribution;
     let terms = &sources.units[i].0;
-    if !by_condition {
+    if split == Split::Shock {
         return shock_parts(a, shown, terms, i)
             .into_iter()
             .enumerate()
@@ -100,6 +115,41 @@ fn parts(
                 values: p.values,
             })
             .collect();
+    }
+    if let (Split::Date, Some(dates)) = (split, &a.by_date) {
+        let mut list: Vec<Part> = dates
+            .iter()
+            .enumerate()
+            .map(|(s, part)| (s, series_part(a.n, terms, part, i)))
+            .filter(|(_, v)| v.iter().any(|x| *x != 0.0))
+            .enumerate()
+            .map(|(k, (s, values))| Part {
+                name: format!("shocks in {}", labels.get(s).map_or("", String::as_str)),
+                values,
+                colour: part_colour(k),
+            })
+            .collect();
+        // Beyond the first dates, the later ones summed into one part.
+        if list.len() > SHOWN_PARTS {
+            let later = list.split_off(SHOWN_PARTS - 1);
+            let mut sum = vec![0.0; later[0].values.len()];
+            for p in &later {
+                sum.iter_mut().zip(&p.values).for_each(|(s, x)| *s += x);
+            }
+            list.push(Part {
+                name: format!("shocks in the {} later periods", later.len()),
+                values: sum,
+                colour: pal.muted,
+            });
+        }
+        if let Some(p) = &a.parameters {
+            list.push(Part {
+                name: "weighting of the parameters".into(),
+                values: series_part(a.n, terms, p, i),
+                colour: pal.muted,
+            });
+        }
+        return list;
     }
     let mut list: Vec<Part> = a
         .conditions
@@ -169,12 +219,20 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
             })
             .response
             .accessible_name("series to split");
-        ui.selectable_value(&mut view.by_condition, false, "by structural shock");
-        ui.selectable_value(&mut view.by_condition, true, "by condition");
+        ui.selectable_value(&mut view.split, Split::Shock, "by structural shock");
+        ui.selectable_value(&mut view.split, Split::Condition, "by condition");
+        if sources.attribution.by_date.is_some() {
+            ui.selectable_value(&mut view.split, Split::Date, "by shock date");
+        } else if view.split == Split::Date {
+            view.split = Split::Shock;
+        }
         ui.label(RichText::new(format!("in {}", sources.units[i].1)).color(pal.muted));
     });
-    let note = if view.by_condition {
+    let note = if view.split == Split::Condition {
         "Each pin's and corridor's share of the move away from the unconditional forecast (the shift is linear in the conditions' offsets, so the shares add up)."
+            .to_string()
+    } else if view.split == Split::Date {
+        "The share of the shocks hitting at each period (every shock together): with drivers timed, when the surprises come, and how long their effects last."
             .to_string()
     } else {
         format!(
@@ -192,8 +250,7 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
             .color(pal.strain),
         );
     }
-    let by_condition = view.by_condition;
-    let list = parts(&sources, &shown, i, by_condition, pal);
+    let split = view.split;
     let a = &sources.attribution;
     let total = series_part(a.n, &sources.units[i].0, &a.total, i);
     let labels: Vec<String> = match &app.session.results {
@@ -202,9 +259,10 @@ pub fn show(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
             .collect(),
         None => (1..=a.h).map(|t| format!("+{t}")).collect(),
     };
+    let list = parts(&sources, &shown, &labels, i, split, pal);
     chart(ui, &list, &total, &labels, pal);
     table(ui, &list, &total, &labels, pal);
-    if by_condition {
+    if split == Split::Condition {
         effects(ui, app, i, &labels, pal);
     }
 }

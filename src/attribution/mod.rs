@@ -121,6 +121,9 @@ pub struct Attribution {
     pub conditions: Vec<(String, String)>,
     /// `by_shock[j]`: the part of structural shock `j` (named after series `j`).
     pub by_shock: Vec<Vec<f64>>,
+    /// With timed drivers: `by_date[s]`, the part of the shocks hitting at future period
+    /// `s + 1` (every shock together); they add up to the shocks' parts.
+    pub by_date: Option<Vec<Vec<f64>>>,
     /// `by_condition[c]`: the part of condition `c`.
     pub by_condition: Vec<Vec<f64>>,
     /// With reweighting or a tilt to targets: the part due to the weights on the parameters.
@@ -156,19 +159,26 @@ pub fn attribute(
     let count = parts.len();
     let equal = 1.0 / count.max(1) as f64;
     let tilted = untilted.is_some();
-    let sums = chunk_sums(thetas, parts, weights, c, big_n, n, tilted, 1.0)?;
+    // With timed drivers the split by shock also goes by the date the shocks hit.
+    let dates = cond
+        .drivers
+        .as_ref()
+        .is_some_and(|d| d.iter().any(|d| !d.always()));
+    let sums = chunk_sums(thetas, parts, weights, c, big_n, n, tilted, dates, 1.0)?;
     let mut total_sum = sums;
     let mut targets = None;
     if let Some((base, base_weights)) = untilted {
         // The untilted free parts, taken away (their shock split too).
-        let away = chunk_sums(thetas, base, base_weights, 0, big_n, n, true, -1.0)?;
+        let away = chunk_sums(thetas, base, base_weights, 0, big_n, n, true, dates, -1.0)?;
         targets = Some(&total_sum.free + &away.free);
         total_sum.shock += away.shock;
+        total_sum.date += away.date;
     }
     let Sums {
         condition: cond_sum,
         shock: shock_sum,
         mu_weighted: mu_w,
+        date: date_sum,
         ..
     } = total_sum;
     let mu_eq = thetas_mean(thetas, parts, equal, big_n);
@@ -203,6 +213,7 @@ pub fn attribute(
             )
             .collect(),
         by_shock: columns(&shock_sum),
+        by_date: dates.then(|| columns(&date_sum)),
         by_condition: columns(&cond_sum),
         parameters,
         targets,
@@ -222,10 +233,13 @@ struct Sums {
     mu_weighted: DVector<f64>,
     /// Σ w·free (with the free parts only).
     free: DVector<f64>,
+    /// Σ w·by shock date (N × h; with dates only).
+    date: DMatrix<f64>,
 }
 
 /// The parts' weighted sums, each weight times `sign`; with `free`, the parts' free
-/// components are summed and split by shock with their conditions' parts.
+/// components are summed and split by shock with their conditions' parts; with `dates`, the
+/// split by shock date is summed too.
 #[allow(clippy::too_many_arguments)]
 fn chunk_sums(
     thetas: &[Theta],
@@ -235,6 +249,7 @@ fn chunk_sums(
     big_n: usize,
     n: usize,
     free: bool,
+    dates: bool,
     sign: f64,
 ) -> Result<Sums, ForecastError> {
     let equal = 1.0 / parts.len().max(1) as f64;
@@ -244,6 +259,7 @@ fn chunk_sums(
         shock: DMatrix::zeros(big_n, n),
         mu_weighted: DVector::zeros(big_n),
         free: DVector::zeros(big_n),
+        date: DMatrix::zeros(big_n, if dates { big_n / n.max(1) } else { 0 }),
     };
     let chunks = parts
         .par_chunks(CHUNK)
@@ -265,7 +281,11 @@ fn chunk_sums(
                     delta += &part.free;
                     sums.free += w * &part.free;
                 }
-                sums.shock += w * by_shock(theta, delta.as_slice())?;
+                let (shock, date) = by_shock(theta, delta.as_slice(), dates)?;
+                sums.shock += w * shock;
+                if let Some(date) = date {
+                    sums.date += w * date;
+                }
                 sums.mu_weighted += w * DVector::from_column_slice(&theta.mean);
             }
             Ok(sums)
@@ -277,6 +297,7 @@ fn chunk_sums(
         out.shock += s.shock;
         out.mu_weighted += s.mu_weighted;
         out.free += s.free;
+        out.date += s.date;
     }
     Ok(out)
 }
@@ -303,28 +324,60 @@ const NEGLIGIBLE: f64 = 1e-13;
 
 /// The part of every shock in a mean shift `Δ` (N): `ε̄ = M⁻¹Δ`, then
 /// `C_t = Σ_l B_l C_{t−l} + L diag(ε̄_t)`; column `j` of the result (N × n) is shock `j`'s part.
-/// Only the shocks that move are carried through the recursion (with drivers, a few).
-pub fn by_shock(theta: &Theta, delta: &[f64]) -> Result<DMatrix<f64>, ForecastError> {
+/// With `dates`, also the part of the shocks hitting at each future period (N × h): column
+/// `s` carries `L ε̄_s` alone through the same recursion. Only the groups that move are
+/// carried (with drivers, a few shocks; with timed drivers, a few dates).
+pub fn by_shock(
+    theta: &Theta,
+    delta: &[f64],
+    dates: bool,
+) -> Result<(DMatrix<f64>, Option<DMatrix<f64>>), ForecastError> {
     let (n, h) = (theta.n(), theta.h);
     let eps = theta.shocks_from_departures(&DMatrix::from_column_slice(delta.len(), 1, delta))?;
+    let shocks = grouped(theta, &eps, n, |_, j| j);
+    let dates = dates.then(|| grouped(theta, &eps, h, |t, _| t));
+    Ok((shocks, dates))
+}
+
+/// The parts of the shocks `ε̄` (N × 1) gathered into `count` groups, shock `j` at horizon
+/// `t + 1` going to group `group(t, j)`: each group's `L ε̄_t` carried through the VAR's own
+/// recursion (`H⁻¹`); N × count.
+fn grouped(
+    theta: &Theta,
+    eps: &DMatrix<f64>,
+    count: usize,
+    group: impl Fn(usize, usize) -> usize,
+) -> DMatrix<f64> {
+    let (n, h) = (theta.n(), theta.h);
     let largest = eps.amax();
-    let moving: Vec<usize> = (0..n)
-        .filter(|&j| (0..h).any(|t| eps[(t * n + j, 0)].abs() > NEGLIGIBLE * largest))
-        .collect();
-    // The recursion is the VAR's own: X_t = L diag(ε̄_t) over the moving shocks, then H⁻¹.
-    let impact = theta.impact.select_columns(&moving);
+    let mut moves = vec![false; count];
+    for t in 0..h {
+        for j in 0..n {
+            if eps[(t * n + j, 0)].abs() > NEGLIGIBLE * largest {
+                moves[group(t, j)] = true;
+            }
+        }
+    }
+    let moving: Vec<usize> = (0..count).filter(|&g| moves[g]).collect();
+    let mut column = vec![None; count];
+    for (k, &g) in moving.iter().enumerate() {
+        column[g] = Some(k);
+    }
     let mut x = DMatrix::zeros(n * h, moving.len());
     for t in 0..h {
-        let mut xt = x.rows_mut(t * n, n);
-        xt.copy_from(&impact);
-        for (k, &j) in moving.iter().enumerate() {
-            xt.column_mut(k).scale_mut(eps[(t * n + j, 0)]);
+        for j in 0..n {
+            if let Some(k) = column[group(t, j)] {
+                let e = eps[(t * n + j, 0)];
+                for i in 0..n {
+                    x[(t * n + i, k)] += theta.impact[(i, j)] * e;
+                }
+            }
         }
     }
     theta.forward_in_place(&mut x);
-    let mut out = DMatrix::zeros(n * h, n);
-    for (k, &j) in moving.iter().enumerate() {
-        out.set_column(j, &x.column(k));
+    let mut out = DMatrix::zeros(n * h, count);
+    for (k, &g) in moving.iter().enumerate() {
+        out.set_column(g, &x.column(k));
     }
-    Ok(out)
+    out
 }

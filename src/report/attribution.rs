@@ -60,7 +60,8 @@ pub fn series_part(n: usize, terms: &[(usize, f64)], part: &[f64], i: usize) -> 
 
 /// `attribution.csv`: `series,period,horizon,units,kind,part,value`, where `kind` is `total`
 /// (conditional minus unconditional mean), `shock` (a structural shock, named after the
-/// series it is ordered with), `condition` (a pin or corridor, by its label), `targets` (with
+/// series it is ordered with), `shock_date` (with timed drivers: every shock hitting at the
+/// period named, together), `condition` (a pin or corridor, by its label), `targets` (with
 /// targets on the distribution: what the tilt adds beyond the conditions; the shocks' parts
 /// include it) or `parameters` (the weights on the posterior draws).
 pub fn write_attribution(
@@ -74,12 +75,18 @@ pub fn write_attribution(
             "series", "period", "horizon", "units", "kind", "part", "value",
         ])?;
         let (last, n) = (setup.last_period(), setup.n());
+        let dates: Vec<String> = (1..=a.h)
+            .map(|t| last.offset(t as i64).to_string())
+            .collect();
         for i in 0..n {
             let (terms, units) = linear_units(setup, i);
             let mut parts: Vec<(&str, &str, Vec<f64>)> =
                 vec![("total", "", series_part(n, &terms, &a.total, i))];
             for (j, shock) in a.by_shock.iter().enumerate() {
                 parts.push(("shock", &setup.names[j], series_part(n, &terms, shock, i)));
+            }
+            for (part, date) in a.by_date.iter().flatten().zip(&dates) {
+                parts.push(("shock_date", date, series_part(n, &terms, part, i)));
             }
             for ((label, _), part) in a.conditions.iter().zip(&a.by_condition) {
                 parts.push(("condition", label, series_part(n, &terms, part, i)));
