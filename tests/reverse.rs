@@ -217,3 +217,38 @@ fn several_outcomes_and_a_binding_corridor_match_a_general_solver() {
     );
     assert!(r.probability.1.is_some());
 }
+
+/// A cumulative outcome ("realinv at most so many percent above its last observation by
+/// 2010Q4", 29.9% here) is the same condition as the level it implies: the closed form's path again
+/// (`reverse.json`), the threshold written as a percent change on the last observed level
+/// (`pins_gaussian.json`'s history, in 100 ln units).
+#[test]
+fn a_cumulative_outcome_is_the_level_it_implies() {
+    let fx = json("pins_gaussian.json");
+    let want = json("reverse.json");
+    let dir = tempfile::tempdir().unwrap();
+    let setup = levels(&fx, |_| {}, &dir);
+    let theta = Model::new(&setup).unwrap().central;
+    let last = fx["history_tail"]["values"]
+        .as_array()
+        .unwrap()
+        .last()
+        .unwrap()[2]
+        .as_f64()
+        .unwrap();
+    let level = want["threshold_level"].as_f64().unwrap();
+    let percent = 100.0 * (level / (last / 100.0).exp() - 1.0);
+    let outcome = Outcome {
+        units: Units::Cumulative,
+        threshold: percent,
+        ..realinv(0.0, true, "2010Q4", "2010Q4")
+    };
+    let r = reverse(&setup, &theta, &[outcome]).unwrap();
+    let tol = EXACT * want["condition_number"].as_f64().unwrap();
+    let e = rel_err(
+        &DMatrix::from_column_slice(32, 1, &r.path),
+        &DMatrix::from_column_slice(32, 1, vector(&want["mean"]).as_slice()),
+    );
+    println!("{percent:.2}% since the last observation: path {e:.1e}");
+    assert!(e < tol, "path {e:e}");
+}

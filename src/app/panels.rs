@@ -14,12 +14,13 @@ use crate::report::CAUTION;
 use crate::scenario::{DriverSpec, Units};
 
 /// Units a chart can switch to (those that apply to every transform).
-pub const CHART_UNITS: [Units; 5] = [
+pub const CHART_UNITS: [Units; 6] = [
     Units::Level,
     Units::YearOnYear,
     Units::Annualised,
     Units::PctChange,
     Units::Difference,
+    Units::Cumulative,
 ];
 
 pub fn palette(ui: &egui::Ui) -> Palette {

@@ -20,6 +20,7 @@ fn units_offered(per_year: usize, current: Units) -> Vec<Units> {
         Units::YearOnYear,
         Units::Difference,
         Units::Average(per_year),
+        Units::Cumulative,
     ];
     if !list.contains(&current) {
         list.push(current);

@@ -222,6 +222,9 @@ pub enum Units {
     /// Average of the level over this many periods ending at the period
     /// (geometric for log series).
     Average(usize),
+    /// Percent change since the last observation: the cumulative change over the forecast
+    /// up to the period ("output 5% below its last level by 2028Q4").
+    Cumulative,
 }
 
 impl Units {
@@ -235,6 +238,7 @@ impl Units {
             Units::YearOnYear => "% on a year earlier".into(),
             Units::Difference => "change on the previous period".into(),
             Units::Average(k) => format!("average over {k} periods"),
+            Units::Cumulative => "% change since the last observation".into(),
         }
     }
 
@@ -246,6 +250,7 @@ impl Units {
             Units::YearOnYear => "year_on_year".into(),
             Units::Difference => "difference".into(),
             Units::Average(k) => format!("average({k})"),
+            Units::Cumulative => "cumulative".into(),
         }
     }
 }

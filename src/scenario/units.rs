@@ -58,6 +58,7 @@ fn statement(
     transform: Transform,
     value: f64,
     f: usize,
+    t: usize,
 ) -> Result<(Vec<(usize, f64)>, f64), UnitsError> {
     let growth = |g: f64| -> Result<f64, UnitsError> {
         if g > -100.0 {
@@ -89,6 +90,9 @@ fn statement(
         (Units::PctChange, true) => (vec![(0, 1.0), (1, -1.0)], 100.0 * growth(value)?.ln()),
         (Units::Annualised, true) => (vec![(0, 1.0), (1, -1.0)], 100.0 / fl * growth(value)?.ln()),
         (Units::YearOnYear, true) => (vec![(0, 1.0), (f, -1.0)], 100.0 * growth(value)?.ln()),
+        // Back to horizon 0, the last observation (moved to the right-hand side).
+        (Units::Cumulative, true) => (vec![(0, 1.0), (t, -1.0)], 100.0 * growth(value)?.ln()),
+        (Units::Cumulative, false) => (vec![(0, 1.0), (t, -growth(value)?)], 0.0),
         (Units::Difference, true) => {
             return Err(UnitsError::NotLinear {
                 units: units.label(),
@@ -129,7 +133,7 @@ pub fn pin_row(
             periods: k - t - history.len(),
         });
     }
-    let (terms, mut rhs) = statement(units, transform, value, f)?;
+    let (terms, mut rhs) = statement(units, transform, value, f, t)?;
     let mut row = Vec::new();
     for (lag, a) in terms {
         let at = t as i64 - lag as i64; // horizon of the term; ≤ 0 is history
@@ -165,7 +169,7 @@ pub fn corridor_row(
     if !log
         && matches!(
             units,
-            Units::PctChange | Units::Annualised | Units::YearOnYear
+            Units::PctChange | Units::Annualised | Units::YearOnYear | Units::Cumulative
         )
     {
         return Err(UnitsError::NotLinearBound {
@@ -174,7 +178,7 @@ pub fn corridor_row(
     }
     let growth = matches!(
         units,
-        Units::PctChange | Units::Annualised | Units::YearOnYear
+        Units::PctChange | Units::Annualised | Units::YearOnYear | Units::Cumulative
     );
     // Below the domain, a lower bound says nothing.
     let floor = match (log, growth) {
@@ -217,6 +221,7 @@ pub fn display_value(
         Units::PctChange => 100.0 * (ratio(1)? - 1.0),
         Units::Annualised => 100.0 * (ratio(1)?.powi(f as i32) - 1.0),
         Units::YearOnYear => 100.0 * (ratio(f as i64)? - 1.0),
+        Units::Cumulative => 100.0 * (ratio(t)? - 1.0),
         Units::Difference => level(x(t)?) - level(x(t - 1)?),
         Units::Average(k) => {
             let k = k.max(1) as i64;
@@ -243,12 +248,14 @@ mod tests {
             (Units::Annualised, Transform::Log100, 2.5),
             (Units::YearOnYear, Transform::Log100, -3.0),
             (Units::Average(4), Transform::Log100, 102.0),
+            (Units::Cumulative, Transform::Log100, -5.0),
             (Units::Level, Transform::AsIs, 4.5),
             (Units::Difference, Transform::AsIs, -0.25),
             (Units::PctChange, Transform::AsIs, 1.5),
             (Units::Annualised, Transform::AsIs, 6.0),
             (Units::YearOnYear, Transform::AsIs, 12.0),
             (Units::Average(3), Transform::AsIs, 464.0),
+            (Units::Cumulative, Transform::AsIs, 2.0),
         ];
         let h = 3;
         for (units, transform, value) in cases {
