@@ -161,11 +161,13 @@ pub fn reverse(
     // Each outcome at each period of its range: its pin at the threshold (for the row and
     // the model-unit value) and its constraint.
     let mut choices: Vec<Vec<(usize, Pin, ShockRow)>> = Vec::new();
-    for o in outcomes {
-        let first = setup.horizon_of(&o.from, "outcome.from")?;
-        let last = setup.horizon_of(&o.to, "outcome.to")?;
+    for (k, o) in outcomes.iter().enumerate() {
+        // Messages name the outcome by its place (1-based), as the form and --also list them.
+        let field = format!("outcome {}", k + 1);
+        let first = setup.horizon_of(&o.from, &format!("{field}, from"))?;
+        let last = setup.horizon_of(&o.to, &format!("{field}, to"))?;
         let pins: Vec<(usize, Pin)> = (first..=last)
-            .map(|t| outcome_pin(setup, o, t).map(|p| (t, p)))
+            .map(|t| outcome_pin(setup, o, t, &field).map(|p| (t, p)))
             .collect::<Result<_, _>>()?;
         let rows = pins
             .iter()
@@ -378,8 +380,14 @@ fn exact_probability(
     })
 }
 
-/// The outcome at horizon `t` as a pin at the threshold (its row and model-unit value).
-fn outcome_pin(setup: &Setup, outcome: &Outcome, t: usize) -> Result<Pin, ScenarioError> {
+/// The outcome at horizon `t` as a pin at the threshold (its row and model-unit value);
+/// `field` names it in messages.
+fn outcome_pin(
+    setup: &Setup,
+    outcome: &Outcome,
+    t: usize,
+    field: &str,
+) -> Result<Pin, ScenarioError> {
     let spec = PinSpec {
         series: Some(outcome.series.clone()),
         shock: None,
@@ -388,7 +396,7 @@ fn outcome_pin(setup: &Setup, outcome: &Outcome, t: usize) -> Result<Pin, Scenar
         value: outcome.threshold,
         active: true,
     };
-    setup.pin_at("outcome", &spec)
+    setup.pin_at(field, &spec)
 }
 
 /// The outcome's quantity `Σ coef · y[cell]` on a path in model units.

@@ -1516,7 +1516,8 @@ fn a_timed_driver_shows_its_periods() {
 }
 
 /// The reverse stress test from the window: the outcome found off the window's thread is the
-/// headless command's (same period), and its button adds the outcome as a pin (one undo step).
+/// headless command's (same period), and its button adds the outcome as a pin (one undo step);
+/// then two outcomes together, the second added in the form, their pins added in one step.
 #[test]
 fn the_reverse_stress_test_adds_its_outcome_as_a_pin() {
     let dir = tempfile::tempdir().unwrap();
@@ -1531,7 +1532,7 @@ fn the_reverse_stress_test_adds_its_outcome_as_a_pin() {
     h.get_by_label("reverse stress test…").click();
     h.run_steps(2);
     {
-        let r = &mut h.state_mut().reverse;
+        let r = &mut h.state_mut().reverse.outcomes[0];
         r.series = "bank_lending".into();
         r.units = scenario::Units::YearOnYear;
         r.at_most = true;
@@ -1571,6 +1572,61 @@ fn the_reverse_stress_test_adds_its_outcome_as_a_pin() {
     assert_eq!(file.pins.len(), pins + 1);
     assert_eq!(&file.pins[pins].period, period);
     assert!(h.state().doc.can_undo());
+    // Two outcomes together: the second added in the form, the answer the headless one, and
+    // both pins added in one undo step.
+    h.get_by_label("+ another outcome").click();
+    h.run_steps(2);
+    {
+        let r = &mut h.state_mut().reverse.outcomes[1];
+        r.series = "unemployment".into();
+        r.threshold = 9.5;
+        r.at_most = false;
+        r.from = "2027Q1".into();
+        r.to = "2027Q4".into();
+    }
+    h.run_steps(2);
+    h.get_by_label("Find").click();
+    let start = Instant::now();
+    while h.state().reverse.answer.is_none() {
+        h.step();
+        std::thread::sleep(Duration::from_millis(20));
+        assert!(start.elapsed() < Duration::from_secs(60), "no answer");
+    }
+    h.run_steps(2);
+    let file = h.state().doc.file.clone();
+    let setup = scenario::Setup::new(file.clone(), &path).unwrap();
+    let model = tiltyard::pipeline::Model::new(&setup).unwrap();
+    let second = tiltyard::reverse::Outcome {
+        series: "unemployment".into(),
+        units: scenario::Units::Level,
+        threshold: 9.5,
+        at_most: false,
+        from: "2027Q1".into(),
+        to: "2027Q4".into(),
+    };
+    let both = [outcome.clone(), second.clone()];
+    let want = tiltyard::reverse::reverse(&setup, &model.central, &both).unwrap();
+    let said = format!(
+        "{} in {}",
+        tiltyard::reverse::describe(&second),
+        want.at[1].0
+    );
+    assert!(
+        want.at[1].1 && h.query_by_label_contains(&said).is_some(),
+        "{said}: {:?}",
+        h.state().reverse.answer
+    );
+    let binding = want.at.iter().filter(|a| a.1).count();
+    let button = if binding == 1 {
+        "Add the outcome as a pin"
+    } else {
+        "Add the outcomes as pins"
+    };
+    h.get_by_label(button).click();
+    h.run_steps(2);
+    assert_eq!(h.state().doc.file.pins.len(), file.pins.len() + binding);
+    assert!(h.state_mut().doc.undo());
+    assert_eq!(h.state().doc.file.pins.len(), file.pins.len());
 }
 
 /// A target on the distribution added in the window tilts the fans (the footer says so and the

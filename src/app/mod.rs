@@ -430,7 +430,15 @@ impl TiltyardApp {
 
     /// Add a pin (one undo step) and select it.
     pub fn add_pin(&mut self, pin: PinSpec) {
-        self.doc.edit(|f| f.pins.push(pin));
+        self.add_pins(vec![pin]);
+    }
+
+    /// Add pins (one undo step) and select the last.
+    pub fn add_pins(&mut self, pins: Vec<PinSpec>) {
+        if pins.is_empty() {
+            return;
+        }
+        self.doc.edit(|f| f.pins.extend(pins));
         self.view.selected = Some(CondRef::Pin(self.doc.file.pins.len() - 1));
     }
 

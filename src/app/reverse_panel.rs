@@ -1,7 +1,7 @@
-//! The reverse stress test in the window: the outcome (a series at most or at least a
-//! threshold, at some period of a range), found off the window's thread with the headless
+//! The reverse stress test in the window: one or more outcomes (a series at most or at least
+//! a threshold, at some period of a range), found off the window's thread with the headless
 //! engine ([`crate::reverse`]) on the scenario as it stands, and a button that adds the
-//! outcome as a pin where it happens (one undo step; the user edits it further).
+//! outcomes that bind as pins where they happen (one undo step; the user edits them further).
 
 use std::sync::Arc;
 use std::sync::mpsc::{Receiver, TryRecvError, channel};
@@ -15,26 +15,47 @@ use crate::pipeline::Model;
 use crate::reverse::{Outcome, path_table, reverse, summary_lines};
 use crate::scenario::{PinSpec, ScenarioFile, Setup, Units};
 
-/// The form, the search under way and its last answer.
-#[derive(Default)]
-pub struct ReverseState {
-    pub open: bool,
+/// One outcome of the form.
+#[derive(Debug, Clone, Default)]
+pub struct OutcomeForm {
     pub series: String,
     pub units: Units,
     pub at_most: bool,
     pub threshold: f64,
     pub from: String,
     pub to: String,
+}
+
+impl OutcomeForm {
+    fn outcome(&self) -> Outcome {
+        Outcome {
+            series: self.series.clone(),
+            units: self.units,
+            threshold: self.threshold,
+            at_most: self.at_most,
+            from: self.from.clone(),
+            to: self.to.clone(),
+        }
+    }
+}
+
+/// The form, the search under way and its last answer.
+#[derive(Default)]
+pub struct ReverseState {
+    pub open: bool,
+    /// The outcomes to reach together (at least one once the form is shown).
+    pub outcomes: Vec<OutcomeForm>,
     job: Option<Receiver<Result<Found, String>>>,
     pub answer: Option<Result<Found, String>>,
 }
 
-/// What a search found: lines to read, and the pin that makes it a scenario.
+/// What a search found: lines to read, and the pins that make it a scenario.
 #[derive(Debug, Clone)]
 pub struct Found {
     pub lines: Vec<String>,
-    /// `None` when the scenario already meets the outcome on average.
-    pub pin: Option<PinSpec>,
+    /// The outcomes that bind, as pins where they happen (none when the scenario already
+    /// meets them all).
+    pub pins: Vec<PinSpec>,
 }
 
 impl ReverseState {
@@ -44,20 +65,13 @@ impl ReverseState {
         path: std::path::PathBuf,
         wake: Arc<dyn Fn() + Send + Sync>,
     ) {
-        let outcome = Outcome {
-            series: self.series.clone(),
-            units: self.units,
-            threshold: self.threshold,
-            at_most: self.at_most,
-            from: self.from.clone(),
-            to: self.to.clone(),
-        };
+        let outcomes: Vec<Outcome> = self.outcomes.iter().map(OutcomeForm::outcome).collect();
         let (tx, rx) = channel();
         let spawned = std::thread::Builder::new()
             .name("reverse stress test".into())
             .spawn(move || {
                 // A panic is an answer too: the window must not wait for ever.
-                let answer = std::panic::catch_unwind(|| find(file, &path, &outcome))
+                let answer = std::panic::catch_unwind(|| find(file, &path, &outcomes))
                     .unwrap_or_else(|_| Err("an internal error stopped the search".into()));
                 let _ = tx.send(answer);
                 wake();
@@ -89,11 +103,10 @@ impl ReverseState {
 }
 
 /// The search itself (on its own thread): the model at its central parameters, then the
-/// most plausible path to the outcome.
-fn find(file: ScenarioFile, path: &std::path::Path, outcome: &Outcome) -> Result<Found, String> {
+/// most plausible path to the outcomes.
+fn find(file: ScenarioFile, path: &std::path::Path, outcomes: &[Outcome]) -> Result<Found, String> {
     let setup = Setup::new(file, path).map_err(|e| e.to_string())?;
     let model = Model::new(&setup).map_err(|e| e.to_string())?;
-    let outcomes = std::slice::from_ref(outcome);
     let r = reverse(&setup, &model.central, outcomes).map_err(|e| e.to_string())?;
     let mut lines = summary_lines(outcomes, &r);
     let period = &r.at[0].0;
@@ -106,8 +119,28 @@ fn find(file: ScenarioFile, path: &std::path::Path, outcome: &Outcome) -> Result
         .map(|(i, (_, v))| format!("{} {:.2}", setup.shown(i), v[t - 1]))
         .collect();
     lines.push(format!("The path in {period}: {}.", at.join(", ")));
-    let pin = r.at[0].1.then(|| r.scenario.pins.last().cloned()).flatten();
-    Ok(Found { lines, pin })
+    let pins = r.scenario.pins[setup.file.pins.len()..].to_vec();
+    Ok(Found { lines, pins })
+}
+
+/// A new outcome: the first series, at most, over the whole forecast.
+fn new_outcome(app: &TiltyardApp) -> OutcomeForm {
+    let f = &app.doc.file;
+    let label = |t: f64| {
+        app.session
+            .results
+            .as_ref()
+            .and_then(|r| r.label(t))
+            .unwrap_or_default()
+            .to_string()
+    };
+    OutcomeForm {
+        series: f.series.first().map(|s| s.name.clone()).unwrap_or_default(),
+        at_most: true,
+        from: label(1.0),
+        to: label(f.horizon as f64),
+        ..OutcomeForm::default()
+    }
 }
 
 /// The window of the reverse stress test, when open.
@@ -116,24 +149,9 @@ pub fn show(ctx: &egui::Context, app: &mut TiltyardApp, pal: &Palette) {
     if !app.reverse.open {
         return;
     }
-    if app.reverse.series.is_empty() {
-        let f = &app.doc.file;
-        app.reverse.series = f.series.first().map(|s| s.name.clone()).unwrap_or_default();
-        app.reverse.from = app
-            .session
-            .results
-            .as_ref()
-            .and_then(|r| r.label(1.0))
-            .unwrap_or_default()
-            .to_string();
-        app.reverse.to = app
-            .session
-            .results
-            .as_ref()
-            .and_then(|r| r.label(f.horizon as f64))
-            .unwrap_or_default()
-            .to_string();
-        app.reverse.at_most = true;
+    if app.reverse.outcomes.is_empty() {
+        let first = new_outcome(app);
+        app.reverse.outcomes.push(first);
     }
     let mut open = true;
     egui::Window::new("Reverse stress test")
@@ -148,7 +166,7 @@ pub fn show(ctx: &egui::Context, app: &mut TiltyardApp, pal: &Palette) {
 
 fn form(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     ui.label(
-        RichText::new("The most plausible way (the smallest structural shocks) for a series to reach a threshold at some period, keeping the scenario's pins, corridors and drivers.")
+        RichText::new("The most plausible way (the smallest structural shocks) for series to reach thresholds at some period, keeping the scenario's pins, corridors and drivers.")
             .small()
             .color(pal.muted),
     );
@@ -160,38 +178,67 @@ fn form(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
             )
         })
         .collect();
+    let fresh = new_outcome(app);
     let r = &mut app.reverse;
-    egui::Grid::new("reverse form")
+    let several = r.outcomes.len() > 1;
+    let mut remove = None;
+    for (k, o) in r.outcomes.iter_mut().enumerate() {
+        if several {
+            ui.horizontal(|ui| {
+                ui.strong(format!("outcome {}", k + 1));
+                if ui.small_button("remove").clicked() {
+                    remove = Some(k);
+                }
+            });
+        }
+        outcome_rows(ui, o, k, &names);
+    }
+    if let Some(k) = remove {
+        r.outcomes.remove(k);
+    }
+    if ui
+        .button("+ another outcome")
+        .on_hover_text("Outcomes to reach together: every combination of their periods is searched")
+        .clicked()
+    {
+        r.outcomes.push(fresh);
+    }
+    answer(ui, app, pal);
+}
+
+/// One outcome's fields (ids salted by its place `k`).
+fn outcome_rows(ui: &mut egui::Ui, o: &mut OutcomeForm, k: usize, names: &[(String, String)]) {
+    egui::Grid::new(("reverse form", k))
         .num_columns(2)
         .show(ui, |ui| {
             ui.label("series");
             let shown = names
                 .iter()
-                .find(|n| n.0 == r.series)
+                .find(|n| n.0 == o.series)
                 .map_or(String::new(), |n| n.1.clone());
-            egui::ComboBox::from_id_salt("reverse series")
+            egui::ComboBox::from_id_salt(("reverse series", k))
                 .selected_text(shown)
                 .show_ui(ui, |ui| {
-                    for (name, shown) in &names {
-                        ui.selectable_value(&mut r.series, name.clone(), shown);
+                    for (name, shown) in names {
+                        ui.selectable_value(&mut o.series, name.clone(), shown);
                     }
                 });
             ui.end_row();
             ui.label("units");
-            egui::ComboBox::from_id_salt("reverse units")
-                .selected_text(r.units.words())
+            egui::ComboBox::from_id_salt(("reverse units", k))
+                .selected_text(o.units.words())
                 .show_ui(ui, |ui| {
                     for u in CHART_UNITS {
-                        ui.selectable_value(&mut r.units, u, u.words());
+                        ui.selectable_value(&mut o.units, u, u.words());
                     }
                 });
             ui.end_row();
             ui.label("outcome");
             ui.horizontal(|ui| {
-                ui.selectable_value(&mut r.at_most, true, "at most");
-                ui.selectable_value(&mut r.at_most, false, "at least");
+                ui.selectable_value(&mut o.at_most, true, "at most");
+                ui.selectable_value(&mut o.at_most, false, "at least");
                 ui.add(
-                    egui::DragValue::new(&mut r.threshold)
+                    egui::DragValue::new(&mut o.threshold)
                         .speed(0.1)
                         .max_decimals(4),
                 )
@@ -200,15 +247,14 @@ fn form(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
             ui.end_row();
             ui.label("at some period from");
             ui.horizontal(|ui| {
-                ui.add(egui::TextEdit::singleline(&mut r.from).desired_width(70.0))
+                ui.add(egui::TextEdit::singleline(&mut o.from).desired_width(70.0))
                     .accessible_name("from");
                 ui.label("to");
-                ui.add(egui::TextEdit::singleline(&mut r.to).desired_width(70.0))
+                ui.add(egui::TextEdit::singleline(&mut o.to).desired_width(70.0))
                     .accessible_name("to");
             });
             ui.end_row();
         });
-    answer(ui, app, pal);
 }
 
 /// Find, and the answer: its lines and the button that adds the outcome as a pin.
@@ -229,13 +275,18 @@ fn answer(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
             for line in &found.lines {
                 ui.label(line);
             }
-            if let Some(pin) = found.pin
+            let label = if found.pins.len() == 1 {
+                "Add the outcome as a pin"
+            } else {
+                "Add the outcomes as pins"
+            };
+            if !found.pins.is_empty()
                 && ui
-                    .button("Add the outcome as a pin")
-                    .on_hover_text("The most plausible scenario is the current one with this pin: add it, then edit further")
+                    .button(label)
+                    .on_hover_text("The most plausible scenario is the current one with these pins where the outcomes happen: add them (one undo step), then edit further")
                     .clicked()
             {
-                app.add_pin(pin);
+                app.add_pins(found.pins);
                 app.reverse.answer = None;
             }
         }
