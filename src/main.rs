@@ -446,29 +446,10 @@ fn reverse_command(
             Err(why) => println!("  {at}  out of reach: {why}"),
         }
     }
-    for line in reverse::summary_lines(&wanted, &found) {
+    for line in reverse::summary_lines(&setup, &wanted, &found) {
         println!("{line}");
     }
     println!("(at {})", model.central_label);
-    let n = setup.n();
-    let mut by_shock: Vec<(f64, String)> = (0..n)
-        .map(|j| {
-            let ss: f64 = found.shocks.iter().skip(j).step_by(n).map(|e| e * e).sum();
-            (ss, setup.names[j].clone())
-        })
-        .collect();
-    by_shock.sort_by(|a, b| b.0.total_cmp(&a.0));
-    let total: f64 = by_shock
-        .iter()
-        .map(|b| b.0)
-        .sum::<f64>()
-        .max(f64::MIN_POSITIVE);
-    let shares: Vec<String> = by_shock
-        .iter()
-        .filter(|b| b.0 > 1e-12 * total)
-        .map(|(ss, name)| format!("{name} {:.0}%", 100.0 * ss / total))
-        .collect();
-    println!("shocks     share of ε'ε by shock: {}", shares.join(", "));
     let period = &found.at[0].0;
     let t = setup.horizon_of(period, "period")?;
     let at: Vec<String> = reverse::path_table(&setup, &found)

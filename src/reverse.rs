@@ -70,6 +70,9 @@ pub struct Reverse {
     pub probability: (f64, Option<f64>),
     /// `P(every outcome at some period of its range)`, estimated, and its standard error.
     pub probability_any: (f64, f64),
+    /// `P(every outcome at its period)` under the model alone, without the scenario's
+    /// conditions: exact for one outcome, else drawn, with its standard error.
+    pub unconditional: (f64, Option<f64>),
     /// Every combination of periods tried (one per outcome): `½ε'ε` of the best scenario
     /// there, or why there is none.
     pub tried: Vec<(Vec<String>, Result<f64, String>)>,
@@ -323,6 +326,17 @@ pub fn reverse(
     } else {
         (drawn.0, Some(drawn.1))
     };
+    // The model alone: no pins, corridors or drivers.
+    let free = Conditions::default();
+    let unconditional = if outcomes.len() == 1 {
+        (
+            exact_probability(theta, &free, &outcomes[0], &chosen[0])?,
+            None,
+        )
+    } else {
+        let (at, _) = probabilities(setup, theta, &free, outcomes, &chosen, &ranges)?;
+        (at.0, Some(at.1))
+    };
     let mut scenario = setup.file.clone();
     if at.iter().any(|a| a.1) {
         let names: Vec<String> = outcomes.iter().map(describe).collect();
@@ -348,6 +362,7 @@ pub fn reverse(
         path,
         probability,
         probability_any,
+        unconditional,
         tried,
         scenario,
     })
@@ -480,7 +495,7 @@ pub fn path_table(setup: &Setup, r: &Reverse) -> Vec<(String, Vec<f64>)> {
 /// What the answer says, in lines to read (the command and the window both show them): each
 /// outcome where it happens, the shocks it needs, the corridors it presses against, and the
 /// probabilities.
-pub fn summary_lines(outcomes: &[Outcome], r: &Reverse) -> Vec<String> {
+pub fn summary_lines(setup: &Setup, outcomes: &[Outcome], r: &Reverse) -> Vec<String> {
     let mut lines = Vec::new();
     for (o, (period, binding)) in outcomes.iter().zip(&r.at) {
         lines.push(if *binding {
@@ -496,16 +511,19 @@ pub fn summary_lines(outcomes: &[Outcome], r: &Reverse) -> Vec<String> {
         "Most plausible: structural shocks of ½ε'ε = {:.3} nats.",
         r.divergence
     ));
+    lines.push(format!(
+        "Shocks it needs, by share of ε'ε: {}.",
+        shock_shares(setup, r).join(", ")
+    ));
     if !r.binding_corridors.is_empty() {
         lines.push(format!(
             "Corridors at their bounds on the way: {}.",
             r.binding_corridors.join(", ")
         ));
     }
-    let (p, se) = r.probability;
     // No drawn path reaching the outcomes bounds the probability, it does not measure it
     // (the rule of three: below 3/n at 95%).
-    let said = match se {
+    let said = |(p, se): (f64, Option<f64>)| match se {
         None => format!(
             "{} ({p:.2e}, exact)",
             crate::checks::one_in(p.max(f64::MIN_POSITIVE).log10())
@@ -519,17 +537,39 @@ pub fn summary_lines(outcomes: &[Outcome], r: &Reverse) -> Vec<String> {
             crate::checks::one_in(p.log10())
         ),
     };
+    let (scenario_law, model_alone) = (said(r.probability), said(r.unconditional));
+    let any = said((r.probability_any.0, Some(r.probability_any.1)));
     let what = if outcomes.len() == 1 {
         format!("the outcome in {}", r.at[0].0)
     } else {
         "every outcome at its period".to_string()
     };
     lines.push(format!(
-        "Probability under the scenario's own law of {what}: {said}; of {} at some period of {}: {:.3} ± {:.3} (from drawn paths).",
+        "Probability of {what} under the scenario's own law: {scenario_law}; of {} at some period of {}: {any}; under the model alone, without the scenario's conditions: {model_alone}.",
         if outcomes.len() == 1 { "it" } else { "every outcome" },
         if outcomes.len() == 1 { "its range" } else { "their ranges" },
-        r.probability_any.0,
-        r.probability_any.1
     ));
     lines
+}
+
+/// The shocks of the answer by their share of `ε'ε`, largest first ("house_prices 37%").
+fn shock_shares(setup: &Setup, r: &Reverse) -> Vec<String> {
+    let n = setup.n();
+    let mut by_shock: Vec<(f64, String)> = (0..n)
+        .map(|j| {
+            let ss: f64 = r.shocks.iter().skip(j).step_by(n).map(|e| e * e).sum();
+            (ss, setup.names[j].clone())
+        })
+        .collect();
+    by_shock.sort_by(|a, b| b.0.total_cmp(&a.0));
+    let total: f64 = by_shock
+        .iter()
+        .map(|b| b.0)
+        .sum::<f64>()
+        .max(f64::MIN_POSITIVE);
+    by_shock
+        .iter()
+        .filter(|b| b.0 > 1e-12 * total)
+        .map(|(ss, name)| format!("{name} {:.0}%", 100.0 * ss / total))
+        .collect()
 }

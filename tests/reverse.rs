@@ -73,6 +73,19 @@ fn one_outcome_matches_the_closed_form() {
     // The new scenario carries the outcome as a pin where it happens.
     let pin = r.scenario.pins.last().unwrap();
     assert_eq!((pin.period.as_str(), pin.value), ("2010Q4", x));
+    // Under the model alone (no pins): Φ((x − e'μ)/√(e'Ce)) from the fixture's unconditional
+    // mean and covariance (statrs' normal distribution function).
+    let cell = 4 * 4 + 2; // realinv (series 2 of 4) in 2010Q4 (horizon 5)
+    let (mu, c) = (vector(&fx["uncond_mean"]), matrix(&fx["uncond_cov"]));
+    let z = (100.0 * x.ln() - mu[cell]) / c[(cell, cell)].sqrt();
+    let alone =
+        statrs::distribution::ContinuousCDF::cdf(&statrs::distribution::Normal::standard(), z);
+    println!("unconditional {} ({alone})", r.unconditional.0);
+    assert!(
+        (r.unconditional.0 - alone).abs() < tol * alone,
+        "unconditional"
+    );
+    assert_eq!(r.unconditional.1, None);
     // Over one period, drawn paths give the same probability within 4 standard errors.
     let (any, se) = r.probability_any;
     assert!((any - p).abs() < 4.0 * se, "{any} ± {se} against {p}");

@@ -108,7 +108,7 @@ fn find(file: ScenarioFile, path: &std::path::Path, outcomes: &[Outcome]) -> Res
     let setup = Setup::new(file, path).map_err(|e| e.to_string())?;
     let model = Model::new(&setup).map_err(|e| e.to_string())?;
     let r = reverse(&setup, &model.central, outcomes).map_err(|e| e.to_string())?;
-    let mut lines = summary_lines(outcomes, &r);
+    let mut lines = summary_lines(&setup, outcomes, &r);
     let period = &r.at[0].0;
     let t = setup
         .horizon_of(period, "period")
@@ -119,6 +119,14 @@ fn find(file: ScenarioFile, path: &std::path::Path, outcomes: &[Outcome]) -> Res
         .map(|(i, (_, v))| format!("{} {:.2}", setup.shown(i), v[t - 1]))
         .collect();
     lines.push(format!("The path in {period}: {}.", at.join(", ")));
+    // How the scenario with the outcomes pinned compares with history.
+    let pinned = Setup::new(r.scenario.clone(), path).map_err(|e| e.to_string())?;
+    if let Some(h) = crate::run::check(&pinned)
+        .ok()
+        .and_then(|report| report.against_history)
+    {
+        lines.push(format!("Against history: {}.", h.reading));
+    }
     let pins = r.scenario.pins[setup.file.pins.len()..].to_vec();
     Ok(Found { lines, pins })
 }
