@@ -1515,6 +1515,18 @@ fn a_timed_driver_shows_its_periods() {
     assert!(!h.state().stale(), "the edited drivers still meet the pins");
 }
 
+/// Press Find in the reverse stress test and wait for its answer.
+fn find_reverse(h: &mut Harness<'static, TiltyardApp>) {
+    h.get_by_label("Find").click();
+    let start = Instant::now();
+    while h.state().reverse.answer.is_none() {
+        h.step();
+        std::thread::sleep(Duration::from_millis(20));
+        assert!(start.elapsed() < Duration::from_secs(60), "no answer");
+    }
+    h.run_steps(2);
+}
+
 /// The reverse stress test from the window: the outcome found off the window's thread is the
 /// headless command's (same period), and its button adds the outcome as a pin (one undo step);
 /// then two outcomes together, the second added in the form, their pins added in one step.
@@ -1541,14 +1553,7 @@ fn the_reverse_stress_test_adds_its_outcome_as_a_pin() {
         r.to = "2028Q4".into();
     }
     h.run_steps(2);
-    h.get_by_label("Find").click();
-    let start = Instant::now();
-    while h.state().reverse.answer.is_none() {
-        h.step();
-        std::thread::sleep(Duration::from_millis(20));
-        assert!(start.elapsed() < Duration::from_secs(60), "no answer");
-    }
-    h.run_steps(2);
+    find_reverse(&mut h);
     // The headless engine on the same file.
     let setup = scenario::Setup::new(file, &path).unwrap();
     let model = tiltyard::pipeline::Model::new(&setup).unwrap();
@@ -1585,14 +1590,7 @@ fn the_reverse_stress_test_adds_its_outcome_as_a_pin() {
         r.to = "2027Q4".into();
     }
     h.run_steps(2);
-    h.get_by_label("Find").click();
-    let start = Instant::now();
-    while h.state().reverse.answer.is_none() {
-        h.step();
-        std::thread::sleep(Duration::from_millis(20));
-        assert!(start.elapsed() < Duration::from_secs(60), "no answer");
-    }
-    h.run_steps(2);
+    find_reverse(&mut h);
     let file = h.state().doc.file.clone();
     let setup = scenario::Setup::new(file.clone(), &path).unwrap();
     let model = tiltyard::pipeline::Model::new(&setup).unwrap();

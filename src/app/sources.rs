@@ -12,7 +12,7 @@ use egui_plot::{Bar, BarChart, GridMark, Legend, Line, Plot};
 use super::TiltyardApp;
 use super::palette::Palette;
 use super::worker::Sources;
-use crate::report::attribution::{PART_COLOURS, SHOWN_PARTS, series_part, shock_parts};
+use crate::report::attribution::{PART_COLOURS, date_parts, series_part, shock_parts};
 
 /// How the attribution view splits the move.
 #[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
@@ -105,8 +105,15 @@ fn parts(
 ) -> Vec<Part> {
     let a = &sources.attribution;
     let terms = &sources.units[i].0;
-    if split == Split::Shock {
-        return shock_parts(a, shown, terms, i)
+    let shown_parts = match split {
+        Split::Shock => Some(shock_parts(a, shown, terms, i)),
+        Split::Date => {
+            date_parts(a, labels, terms, i).or_else(|| Some(shock_parts(a, shown, terms, i)))
+        }
+        Split::Condition => None,
+    };
+    if let Some(list) = shown_parts {
+        return list
             .into_iter()
             .enumerate()
             .map(|(k, p)| Part {
@@ -115,41 +122,6 @@ fn parts(
                 values: p.values,
             })
             .collect();
-    }
-    if let (Split::Date, Some(dates)) = (split, &a.by_date) {
-        let mut list: Vec<Part> = dates
-            .iter()
-            .enumerate()
-            .map(|(s, part)| (s, series_part(a.n, terms, part, i)))
-            .filter(|(_, v)| v.iter().any(|x| *x != 0.0))
-            .enumerate()
-            .map(|(k, (s, values))| Part {
-                name: format!("shocks in {}", labels.get(s).map_or("", String::as_str)),
-                values,
-                colour: part_colour(k),
-            })
-            .collect();
-        // Beyond the first dates, the later ones summed into one part.
-        if list.len() > SHOWN_PARTS {
-            let later = list.split_off(SHOWN_PARTS - 1);
-            let mut sum = vec![0.0; later[0].values.len()];
-            for p in &later {
-                sum.iter_mut().zip(&p.values).for_each(|(s, x)| *s += x);
-            }
-            list.push(Part {
-                name: format!("shocks in the {} later periods", later.len()),
-                values: sum,
-                colour: pal.muted,
-            });
-        }
-        if let Some(p) = &a.parameters {
-            list.push(Part {
-                name: "weighting of the parameters".into(),
-                values: series_part(a.n, terms, p, i),
-                colour: pal.muted,
-            });
-        }
-        return list;
     }
     let mut list: Vec<Part> = a
         .conditions

@@ -164,14 +164,52 @@ pub fn shock_parts(
         .filter(|p| size(&p.values) > 0.0)
         .collect();
     parts.sort_by(|x, y| size(&y.values).total_cmp(&size(&x.values)));
+    finish(parts, a, terms, i, |k| format!("{k} other shocks"))
+}
+
+/// Series `i`'s split by the date the shocks hit (timed drivers; `None` without), in date
+/// order (`labels`: the future periods): the dates whose shocks move it; beyond
+/// [`SHOWN_PARTS`] the later ones summed into one part; then the parameters' part.
+pub fn date_parts(
+    a: &Attribution,
+    labels: &[String],
+    terms: &[(usize, f64)],
+    i: usize,
+) -> Option<Vec<ShownPart>> {
+    let parts = a
+        .by_date
+        .as_ref()?
+        .iter()
+        .enumerate()
+        .map(|(s, p)| ShownPart {
+            name: format!("shocks in {}", labels.get(s).map_or("", String::as_str)),
+            values: series_part(a.n, terms, p, i),
+            rest: false,
+        })
+        .filter(|p| p.values.iter().any(|x| *x != 0.0))
+        .collect();
+    Some(finish(parts, a, terms, i, |k| {
+        format!("shocks in the {k} later periods")
+    }))
+}
+
+/// Beyond [`SHOWN_PARTS`], the parts from the last shown on summed into one (named by
+/// `rest` from their count); then, with weights on the draws, the parameters' part.
+fn finish(
+    mut parts: Vec<ShownPart>,
+    a: &Attribution,
+    terms: &[(usize, f64)],
+    i: usize,
+    rest: impl Fn(usize) -> String,
+) -> Vec<ShownPart> {
     if parts.len() > SHOWN_PARTS {
-        let rest = parts.split_off(SHOWN_PARTS - 1);
-        let mut sum = vec![0.0; rest[0].values.len()];
-        for p in &rest {
+        let later = parts.split_off(SHOWN_PARTS - 1);
+        let mut sum = vec![0.0; later[0].values.len()];
+        for p in &later {
             sum.iter_mut().zip(&p.values).for_each(|(s, x)| *s += x);
         }
         parts.push(ShownPart {
-            name: format!("{} other shocks", rest.len()),
+            name: rest(later.len()),
             values: sum,
             rest: true,
         });
