@@ -463,11 +463,10 @@ fn reverse_command(
             .map_or("scenario".into(), |s| s.to_string_lossy());
         scenario.with_file_name(format!("{stem}-reverse.ron"))
     });
-    let original = std::fs::read_to_string(&scenario).ok();
-    let text = tiltyard::scenario::layout::save_text(original.as_deref(), &found.scenario);
-    tiltyard::report::write_atomic(&path, text.as_bytes())
+    // Written elsewhere, a relative dataset path is rewritten to point at the same file.
+    let written = tiltyard::scenario::layout::write_scenario(&scenario, &path, &found.scenario)
         .with_context(|| format!("cannot write {}", path.display()))?;
-    let new = tiltyard::scenario::Setup::new(found.scenario.clone(), &path)?;
+    let new = tiltyard::scenario::Setup::new(written, &path)?;
     let report = check(&new)?;
     if let Some(h) = &report.against_history {
         println!("history    {}", h.reading);

@@ -552,7 +552,8 @@ pub fn summary_lines(setup: &Setup, outcomes: &[Outcome], r: &Reverse) -> Vec<St
     lines
 }
 
-/// The shocks of the answer by their share of `ε'ε`, largest first ("house_prices 37%").
+/// The shocks of the answer by their share of `ε'ε`, largest first ("house_prices 37%"),
+/// those under half a percent together at the end.
 fn shock_shares(setup: &Setup, r: &Reverse) -> Vec<String> {
     let n = setup.n();
     let mut by_shock: Vec<(f64, String)> = (0..n)
@@ -567,9 +568,21 @@ fn shock_shares(setup: &Setup, r: &Reverse) -> Vec<String> {
         .map(|b| b.0)
         .sum::<f64>()
         .max(f64::MIN_POSITIVE);
-    by_shock
+    let (large, small): (Vec<_>, Vec<_>) = by_shock
         .iter()
         .filter(|b| b.0 > 1e-12 * total)
+        .partition(|b| b.0 >= 0.005 * total);
+    let mut out: Vec<String> = large
+        .iter()
         .map(|(ss, name)| format!("{name} {:.0}%", 100.0 * ss / total))
-        .collect()
+        .collect();
+    if !small.is_empty() {
+        let rest: f64 = small.iter().map(|b| b.0).sum();
+        out.push(format!(
+            "{} others {:.1}% together",
+            small.len(),
+            100.0 * rest / total
+        ));
+    }
+    out
 }

@@ -4,6 +4,8 @@
 use std::path::Path;
 use std::process::Command;
 
+use tiltyard::scenario;
+
 fn tiltyard() -> Command {
     Command::new(env!("CARGO_BIN_EXE_tiltyard"))
 }
@@ -458,4 +460,78 @@ fn compare_writes_its_tables_and_refuses_a_clash() {
         .output()
         .unwrap();
     assert_eq!(clash.status.code(), Some(2));
+}
+
+/// `tiltyard reverse` writes the new scenario where it is told, with two outcomes (`--also`),
+/// and the file loads from there (its dataset path follows the move), carrying the outcomes
+/// that bind as pins (here unemployment's; reaching it takes bank lending past its threshold
+/// already).
+#[test]
+fn reverse_writes_a_scenario_that_loads_where_it_is_written() {
+    let out = tempfile::tempdir().unwrap();
+    let written = out.path().join("elsewhere.ron");
+    let done = tiltyard()
+        .args([
+            "reverse",
+            &demo("adverse-pins.ron"),
+            "--series",
+            "bank_lending",
+            "--units",
+            "year_on_year",
+            "--at-most",
+            "-10",
+            "--from",
+            "2026Q1",
+            "--to",
+            "2028Q4",
+            "--also",
+            "unemployment level at-least 9.5 2027Q1 2027Q4",
+            "--out",
+        ])
+        .arg(&written)
+        .output()
+        .unwrap();
+    let said = String::from_utf8_lossy(&done.stdout);
+    assert!(
+        done.status.success(),
+        "{said}\n{}",
+        String::from_utf8_lossy(&done.stderr)
+    );
+    assert!(
+        said.contains("history ") && said.contains("Shocks it needs"),
+        "{said}"
+    );
+    let before = scenario::read(Path::new(&demo("adverse-pins.ron"))).unwrap();
+    let setup = scenario::load(&written).unwrap();
+    // Each outcome says where it happens; those the rest already meets add no pin.
+    let binding = said
+        .lines()
+        .filter(|l| l.starts_with("bank_lending (") || l.starts_with("unemployment ("))
+        .filter(|l| !l.contains("nothing to add"))
+        .count();
+    assert!(binding >= 1, "{said}");
+    assert_eq!(setup.file.pins.len(), before.pins.len() + binding, "{said}");
+    let last = setup.file.pins.last().unwrap();
+    assert_eq!(
+        (last.series.as_deref(), last.value),
+        (Some("unemployment"), 9.5)
+    );
+    // A malformed --also is refused with the form it takes.
+    let bad = tiltyard()
+        .args([
+            "reverse",
+            &demo("adverse-pins.ron"),
+            "--series",
+            "output",
+            "--at-most",
+            "0",
+        ])
+        .args(["--from", "2026Q1", "--also", "unemployment 9"])
+        .output()
+        .unwrap();
+    assert!(!bad.status.success());
+    assert!(
+        String::from_utf8_lossy(&bad.stderr)
+            .contains("SERIES UNITS at-most|at-least VALUE FROM [TO]")
+    );
 }

@@ -5,7 +5,6 @@
 
 use std::path::{Path, PathBuf};
 
-use crate::report::write_atomic;
 use crate::scenario::{self, ScenarioError, ScenarioFile};
 
 /// Most undo steps kept.
@@ -145,7 +144,7 @@ impl Document {
     }
 
     /// Record that `written` (this document's file when the save began, its dataset path
-    /// rewritten from `old_dataset` by [`write_scenario`]) is now at `path`, which becomes the
+    /// rewritten from `old_dataset` by [`crate::scenario::layout::write_scenario`]) is now at `path`, which becomes the
     /// document's path. The dataset path is rewritten the same way in the current file (edits
     /// made while saving stay unsaved) and in the undo history, so that undoing after a move
     /// still finds the dataset.
@@ -210,58 +209,11 @@ pub fn recovery_path(path: &Path) -> PathBuf {
     path.with_file_name(format!(".{name}.recovery"))
 }
 
-/// Save `file`, a scenario that was at `from`, atomically to `to` (write a temporary file
-/// beside it, then rename). The text of the file at `from` is kept wherever its values did
-/// not change — comments, line breaks, one-line conditions ([`scenario::layout`]). A relative
-/// dataset path is rewritten so that it still points at the same file from the new folder.
-/// Returns the file as written.
-pub fn write_scenario(
-    from: &Path,
-    to: &Path,
-    file: &ScenarioFile,
-) -> std::io::Result<ScenarioFile> {
-    let mut file = file.clone();
-    file.dataset = rebase(from, to, &file.dataset);
-    let original = std::fs::read_to_string(from).ok();
-    let text = scenario::layout::save_text(original.as_deref(), &file);
-    write_atomic(to, text.as_bytes())?;
-    Ok(file)
-}
-
-/// A dataset path relative to the scenario at `from`, rewritten for a scenario at `to`
-/// (absolute paths are kept).
-fn rebase(from: &Path, to: &Path, dataset: &str) -> String {
-    let ds = Path::new(dataset);
-    if ds.is_absolute() {
-        return dataset.to_string();
-    }
-    let from_dir = from.parent().unwrap_or(Path::new("."));
-    let to_dir = to.parent().unwrap_or(Path::new("."));
-    if same_dir(from_dir, to_dir) {
-        return dataset.to_string();
-    }
-    let target = from_dir.join(ds);
-    std::path::absolute(&target)
-        .unwrap_or(target)
-        .display()
-        .to_string()
-}
-
-fn same_dir(a: &Path, b: &Path) -> bool {
-    let canon = |p: &Path| {
-        let p = if p.as_os_str().is_empty() {
-            Path::new(".")
-        } else {
-            p
-        };
-        std::fs::canonicalize(p).unwrap_or_else(|_| p.to_path_buf())
-    };
-    canon(a) == canon(b)
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::report::write_atomic;
+    use crate::scenario::layout::write_scenario;
 
     fn save_as(doc: &mut Document, path: &Path) {
         let old = doc.file.dataset.clone();

@@ -368,7 +368,9 @@ impl Chores {
                         .map(|e| Reply::Failed(format!("cannot write {}: {e}", path.display()))),
                     Chore::Remove(path) => remove(&path).err().map(Reply::Failed),
                     Chore::Save(save) => Some(
-                        match super::document::write_scenario(&save.from, &save.to, &save.file) {
+                        match crate::scenario::layout::write_scenario(
+                            &save.from, &save.to, &save.file,
+                        ) {
                             Ok(written) => {
                                 // The recovery file of the old place has served its turn.
                                 let old = super::document::recovery_path(&save.from);

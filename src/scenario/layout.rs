@@ -7,8 +7,10 @@
 //! printed text is written instead.
 
 use std::ops::Range;
+use std::path::Path;
 
 use super::{ScenarioFile, parse, to_text};
+use crate::report::write_atomic;
 
 /// The text to save for `new` over a file whose text is `original`: the original with only
 /// the changed values rewritten, or the plainly printed text when `original` cannot be read
@@ -663,6 +665,55 @@ fn apply(text: &str, mut edits: Vec<Edit>) -> String {
         out.replace_range(range, &with);
     }
     out
+}
+
+/// Save `file`, a scenario that was at `from`, atomically to `to` (write a temporary file
+/// beside it, then rename). The text of the file at `from` is kept wherever its values did
+/// not change — comments, line breaks, one-line conditions ([`scenario::layout`]). A relative
+/// dataset path is rewritten so that it still points at the same file from the new folder.
+/// Returns the file as written.
+pub fn write_scenario(
+    from: &Path,
+    to: &Path,
+    file: &ScenarioFile,
+) -> std::io::Result<ScenarioFile> {
+    let mut file = file.clone();
+    file.dataset = rebase(from, to, &file.dataset);
+    let original = std::fs::read_to_string(from).ok();
+    let text = save_text(original.as_deref(), &file);
+    write_atomic(to, text.as_bytes())?;
+    Ok(file)
+}
+
+/// A dataset path relative to the scenario at `from`, rewritten for a scenario at `to`
+/// (absolute paths are kept).
+fn rebase(from: &Path, to: &Path, dataset: &str) -> String {
+    let ds = Path::new(dataset);
+    if ds.is_absolute() {
+        return dataset.to_string();
+    }
+    let from_dir = from.parent().unwrap_or(Path::new("."));
+    let to_dir = to.parent().unwrap_or(Path::new("."));
+    if same_dir(from_dir, to_dir) {
+        return dataset.to_string();
+    }
+    let target = from_dir.join(ds);
+    std::path::absolute(&target)
+        .unwrap_or(target)
+        .display()
+        .to_string()
+}
+
+fn same_dir(a: &Path, b: &Path) -> bool {
+    let canon = |p: &Path| {
+        let p = if p.as_os_str().is_empty() {
+            Path::new(".")
+        } else {
+            p
+        };
+        std::fs::canonicalize(p).unwrap_or_else(|_| p.to_path_buf())
+    };
+    canon(a) == canon(b)
 }
 
 #[cfg(test)]
