@@ -17,12 +17,17 @@
 //!   computed for all shocks at once by the recursion
 //!   `C_t = Σ_l B_l C_{t−l} + L diag(ε̄_t)` (`C_t`: n × n, series × shock); the row sums of
 //!   `C_t` are `Δ_{θ,t}`.
+//! - **By shock date** (with timed drivers): the same recursion with the shocks of each
+//!   future period `s` together, `L ε̄_s` alone at `s`; the dates' parts sum to the shocks'.
 //!
 //! Every part is averaged over the posterior draws (weighted when the draws are reweighted):
 //! additivity holds draw by draw, so it holds for the averages. With reweighting the
 //! unconditional mean keeps `p(θ | data)`, and the difference of the two weightings of `μ_θ`
-//! is a part of its own ("parameters"). The split by shock depends on the identification
-//! (the ordering).
+//! is a part of its own ("parameters"). With targets on the distribution, each draw's part is
+//! taken at its paths' tilted mean, and what the tilt adds beyond the conditions — its choice
+//! among the paths' free components `(I − W𝒢)(y* − μ)`, tilted less untilted — is the
+//! "targets" part (split by shock with the rest). The split by shock depends on the
+//! identification (the ordering).
 
 pub mod leave_one_out;
 
