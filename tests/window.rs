@@ -1614,6 +1614,7 @@ fn the_reverse_stress_test_adds_its_outcome_as_a_pin() {
     {
         let r = &mut h.state_mut().reverse.outcomes[1];
         r.series = "unemployment".into();
+        r.units = scenario::Units::Level;
         r.threshold = 9.5;
         r.at_most = false;
         r.from = "2027Q1".into();

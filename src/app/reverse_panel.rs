@@ -131,9 +131,40 @@ fn find(file: ScenarioFile, path: &std::path::Path, outcomes: &[Outcome]) -> Res
     Ok(Found { lines, pins })
 }
 
-/// A new outcome: the first series, at most, over the whole forecast.
-fn new_outcome(app: &TiltyardApp) -> OutcomeForm {
-    let f = &app.doc.file;
+/// A series the form offers: its name, its label, its chart's units and the low end of its
+/// fan at the last period (5% quantile, two decimals), the outcome's starting point.
+struct Choice {
+    name: String,
+    shown: String,
+    units: Units,
+    low: f64,
+}
+
+fn choices(app: &TiltyardApp) -> Vec<Choice> {
+    let views = app.session.results.as_ref().map(|r| &r.series);
+    app.doc
+        .file
+        .series
+        .iter()
+        .enumerate()
+        .map(|(i, s)| {
+            let view = views.and_then(|v| v.get(i));
+            Choice {
+                name: s.name.clone(),
+                shown: app.shown(&s.name),
+                units: view.map_or(Units::Level, |v| v.units),
+                low: view
+                    .and_then(|v| v.conditional.last())
+                    .map(|p| (p.q[0] * 100.0).round() / 100.0)
+                    .filter(|v| v.is_finite())
+                    .unwrap_or(0.0),
+            }
+        })
+        .collect()
+}
+
+/// A new outcome: the first series, at most the low end of its fan, over the whole forecast.
+fn new_outcome(app: &TiltyardApp, first: Option<&Choice>) -> OutcomeForm {
     let label = |t: f64| {
         app.session
             .results
@@ -143,11 +174,12 @@ fn new_outcome(app: &TiltyardApp) -> OutcomeForm {
             .to_string()
     };
     OutcomeForm {
-        series: f.series.first().map(|s| s.name.clone()).unwrap_or_default(),
+        series: first.map(|c| c.name.clone()).unwrap_or_default(),
+        units: first.map_or(Units::Level, |c| c.units),
+        threshold: first.map_or(0.0, |c| c.low),
         at_most: true,
         from: label(1.0),
-        to: label(f.horizon as f64),
-        ..OutcomeForm::default()
+        to: label(app.doc.file.horizon as f64),
     }
 }
 
@@ -158,7 +190,7 @@ pub fn show(ctx: &egui::Context, app: &mut TiltyardApp, pal: &Palette) {
         return;
     }
     if app.reverse.outcomes.is_empty() {
-        let first = new_outcome(app);
+        let first = new_outcome(app, choices(app).first());
         app.reverse.outcomes.push(first);
     }
     let mut open = true;
@@ -178,15 +210,8 @@ fn form(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
             .small()
             .color(pal.muted),
     );
-    let names: Vec<(String, String)> = (0..app.doc.file.series.len())
-        .map(|i| {
-            (
-                app.doc.file.series[i].name.clone(),
-                app.shown(&app.doc.file.series[i].name),
-            )
-        })
-        .collect();
-    let fresh = new_outcome(app);
+    let names = choices(app);
+    let fresh = new_outcome(app, names.first());
     let r = &mut app.reverse;
     let several = r.outcomes.len() > 1;
     let mut remove = None;
@@ -214,21 +239,27 @@ fn form(ui: &mut egui::Ui, app: &mut TiltyardApp, pal: &Palette) {
     answer(ui, app, pal);
 }
 
-/// One outcome's fields (ids salted by its place `k`).
-fn outcome_rows(ui: &mut egui::Ui, o: &mut OutcomeForm, k: usize, names: &[(String, String)]) {
+/// One outcome's fields (ids salted by its place `k`); another series brings its own units
+/// and starting threshold.
+fn outcome_rows(ui: &mut egui::Ui, o: &mut OutcomeForm, k: usize, names: &[Choice]) {
     egui::Grid::new(("reverse form", k))
         .num_columns(2)
         .show(ui, |ui| {
             ui.label("series");
             let shown = names
                 .iter()
-                .find(|n| n.0 == o.series)
-                .map_or(String::new(), |n| n.1.clone());
+                .find(|n| n.name == o.series)
+                .map_or(String::new(), |n| n.shown.clone());
             egui::ComboBox::from_id_salt(("reverse series", k))
                 .selected_text(shown)
                 .show_ui(ui, |ui| {
-                    for (name, shown) in names {
-                        ui.selectable_value(&mut o.series, name.clone(), shown);
+                    for c in names {
+                        if ui
+                            .selectable_value(&mut o.series, c.name.clone(), &c.shown)
+                            .changed()
+                        {
+                            (o.units, o.threshold) = (c.units, c.low);
+                        }
                     }
                 });
             ui.end_row();
