@@ -95,6 +95,12 @@ pub enum ReverseError {
     TooManyCombinations { count: usize },
     #[error("give at least one outcome")]
     NoOutcome,
+    #[error("{field}: its last period {to} comes before its first {from}")]
+    EmptyRange {
+        field: String,
+        from: String,
+        to: String,
+    },
 }
 
 /// A path row in shock space: `lower ≤ normal'ε ≤ upper`.
@@ -169,6 +175,13 @@ pub fn reverse(
         let field = format!("outcome {}", k + 1);
         let first = setup.horizon_of(&o.from, &format!("{field}, from"))?;
         let last = setup.horizon_of(&o.to, &format!("{field}, to"))?;
+        if last < first {
+            return Err(ReverseError::EmptyRange {
+                field,
+                from: o.from.clone(),
+                to: o.to.clone(),
+            });
+        }
         let pins: Vec<(usize, Pin)> = (first..=last)
             .map(|t| outcome_pin(setup, o, t, &field).map(|p| (t, p)))
             .collect::<Result<_, _>>()?;

@@ -136,6 +136,12 @@ fn an_outcome_the_drivers_cannot_reach_is_named() {
     let setup = Setup::new(file, &setup.path).unwrap();
     let theta = Model::new(&setup).unwrap().central;
     let err = reverse(&setup, &theta, &[realinv(1.0, true, "2010Q2", "2010Q4")]).unwrap_err();
+    // A range that ends before it starts is named, not searched.
+    let backwards = reverse(&setup, &theta, &[realinv(1.0, true, "2010Q4", "2010Q2")]);
+    assert!(
+        matches!(&backwards, Err(ReverseError::EmptyRange { field, .. }) if field == "outcome 1"),
+        "{backwards:?}"
+    );
     assert!(matches!(err, ReverseError::Unreachable { .. }));
     let text = err.to_string();
     assert!(
