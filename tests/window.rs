@@ -72,11 +72,21 @@ impl PathPicker for NoDialogService {
 /// The adverse demo, copied into a temporary folder (so recovery files land there) with the
 /// dataset by absolute path, and fewer draws to keep the tests quick.
 fn demo_copy(dir: &tempfile::TempDir) -> PathBuf {
+    demo_file(dir, "adverse.ron", |_| {})
+}
+
+/// The demo scenario `name`, copied likewise after `edit`.
+fn demo_file(
+    dir: &tempfile::TempDir,
+    name: &str,
+    edit: impl FnOnce(&mut scenario::ScenarioFile),
+) -> PathBuf {
     let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("scenarios-demo");
-    let mut file = scenario::read(&root.join("adverse.ron")).unwrap();
+    let mut file = scenario::read(&root.join(name)).unwrap();
     file.dataset = root.join("economy.csv").display().to_string();
     file.draws = 100;
-    let path = dir.path().join("adverse.ron");
+    edit(&mut file);
+    let path = dir.path().join(name);
     std::fs::write(&path, scenario::to_text(&file)).unwrap();
     path
 }
@@ -552,12 +562,7 @@ fn the_shocks_view_draws_shocks_and_takes_conditions_on_them() {
 #[test]
 fn a_clashing_scenario_opens_on_its_clash() {
     let dir = tempfile::tempdir().unwrap();
-    let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("scenarios-demo");
-    let mut file = scenario::read(&root.join("clash.ron")).unwrap();
-    file.dataset = root.join("economy.csv").display().to_string();
-    file.draws = 100;
-    let path = dir.path().join("clash.ron");
-    std::fs::write(&path, scenario::to_text(&file)).unwrap();
+    let path = demo_file(&dir, "clash.ron", |_| {});
     let mut h = harness(&path);
     let start = Instant::now();
     while h.state().session.state != EngineState::Clashing || h.state().session.results.is_none() {
@@ -1514,22 +1519,18 @@ fn the_checks_show_the_severity_against_history() {
 #[test]
 fn a_timed_driver_shows_its_periods() {
     let dir = tempfile::tempdir().unwrap();
-    let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("scenarios-demo");
-    let mut file = scenario::read(&root.join("adverse-pins.ron")).unwrap();
-    file.dataset = root.join("economy.csv").display().to_string();
-    file.draws = 100;
-    file.drivers = Some(vec![
-        scenario::DriverSpec::Always("output".into()),
-        scenario::DriverSpec::Timed {
-            shock: "credit_spread".into(),
-            from: "2026Q1".into(),
-            to: "2026Q2".into(),
-        },
-        scenario::DriverSpec::Always("house_prices".into()),
-        scenario::DriverSpec::Always("unemployment".into()),
-    ]);
-    let path = dir.path().join("timed.ron");
-    std::fs::write(&path, scenario::to_text(&file)).unwrap();
+    let path = demo_file(&dir, "adverse-pins.ron", |file| {
+        file.drivers = Some(vec![
+            scenario::DriverSpec::Always("output".into()),
+            scenario::DriverSpec::Timed {
+                shock: "credit_spread".into(),
+                from: "2026Q1".into(),
+                to: "2026Q2".into(),
+            },
+            scenario::DriverSpec::Always("house_prices".into()),
+            scenario::DriverSpec::Always("unemployment".into()),
+        ]);
+    });
     let mut h = harness(&path);
     settle(&mut h);
     assert!(h.query_by_label("credit_spread moves from").is_some());
@@ -1563,12 +1564,7 @@ fn find_reverse(h: &mut Harness<'static, TiltyardApp>) {
 #[test]
 fn the_reverse_stress_test_adds_its_outcome_as_a_pin() {
     let dir = tempfile::tempdir().unwrap();
-    let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("scenarios-demo");
-    let mut file = scenario::read(&root.join("adverse-pins.ron")).unwrap();
-    file.dataset = root.join("economy.csv").display().to_string();
-    file.draws = 100;
-    let path = dir.path().join("reverse.ron");
-    std::fs::write(&path, scenario::to_text(&file)).unwrap();
+    let path = demo_file(&dir, "adverse-pins.ron", |_| {});
     let mut h = harness(&path);
     settle(&mut h);
     h.get_by_label("reverse stress test…").click();
@@ -1585,7 +1581,7 @@ fn the_reverse_stress_test_adds_its_outcome_as_a_pin() {
     h.run_steps(2);
     find_reverse(&mut h);
     // The headless engine on the same file.
-    let setup = scenario::Setup::new(file, &path).unwrap();
+    let setup = scenario::load(&path).unwrap();
     let model = tiltyard::pipeline::Model::new(&setup).unwrap();
     let outcome = tiltyard::reverse::Outcome {
         series: "bank_lending".into(),
@@ -1696,19 +1692,18 @@ fn a_target_added_in_the_window_tilts_the_fans() {
 #[test]
 fn timed_drivers_split_by_shock_date_in_the_window() {
     let dir = tempfile::tempdir().unwrap();
-    let path = demo_copy(&dir);
-    let mut file = scenario::read(&path).unwrap();
-    file.drivers = Some(
-        ["output", "unemployment", "credit_spread", "house_prices"]
-            .iter()
-            .map(|s| scenario::DriverSpec::Timed {
-                shock: s.to_string(),
-                from: "2026Q1".into(),
-                to: "2027Q4".into(),
-            })
-            .collect(),
-    );
-    std::fs::write(&path, scenario::to_text(&file)).unwrap();
+    let path = demo_file(&dir, "adverse.ron", |file| {
+        file.drivers = Some(
+            ["output", "unemployment", "credit_spread", "house_prices"]
+                .iter()
+                .map(|s| scenario::DriverSpec::Timed {
+                    shock: s.to_string(),
+                    from: "2026Q1".into(),
+                    to: "2027Q4".into(),
+                })
+                .collect(),
+        );
+    });
     let mut setup = scenario::load(&path).unwrap();
     let out = tiltyard::run::run(&mut setup, &Default::default()).unwrap();
     let dates = out.attribution.as_ref().unwrap().by_date.as_ref().unwrap();

@@ -163,29 +163,19 @@ pub fn attribute(
     let c = condition_count(cond);
     let count = parts.len();
     let equal = 1.0 / count.max(1) as f64;
-    let tilted = untilted.is_some();
     // With timed drivers the split by shock also goes by the date the shocks hit.
     let dates = cond
         .drivers
         .as_ref()
         .is_some_and(|d| d.iter().any(|d| !d.always()));
-    let sums = chunk_sums(thetas, parts, weights, c, big_n, n, tilted, dates, 1.0)?;
-    let mut total_sum = sums;
-    let mut targets = None;
-    if let Some((base, base_weights)) = untilted {
-        // The untilted free parts, taken away (their shock split too).
-        let away = chunk_sums(thetas, base, base_weights, 0, big_n, n, true, dates, -1.0)?;
-        targets = Some(&total_sum.free + &away.free);
-        total_sum.shock += away.shock;
-        total_sum.date += away.date;
-    }
     let Sums {
         condition: cond_sum,
         shock: shock_sum,
         mu_weighted: mu_w,
         date: date_sum,
-        ..
-    } = total_sum;
+        free,
+    } = chunk_sums(thetas, parts, weights, untilted, c, big_n, n, dates)?;
+    let targets = untilted.map(|_| free);
     let mu_eq = thetas_mean(thetas, parts, equal, big_n);
     let parameters = weights.map(|_| (&mu_w - &mu_eq).iter().copied().collect::<Vec<f64>>());
     let mut total: Vec<f64> = cond_sum.column_sum().iter().copied().collect();
@@ -236,29 +226,30 @@ struct Sums {
     shock: DMatrix<f64>,
     /// Σ w·μ.
     mu_weighted: DVector<f64>,
-    /// Σ w·free (with the free parts only).
+    /// Σ (tilted less untilted weight·free) (with a tilt only).
     free: DVector<f64>,
     /// Σ w·by shock date (N × h; with dates only).
     date: DMatrix<f64>,
 }
 
-/// The parts' weighted sums, each weight times `sign`; with `free`, the parts' free
-/// components are summed and split by shock with their conditions' parts; with `dates`, the
-/// split by shock date is summed too.
+/// The parts' weighted sums. With `untilted` (a tilt to targets: the same draws' parts at
+/// equal weights within each draw, and their weights), each draw's free component, tilted
+/// less untilted, is summed as the targets' part and split by shock with its conditions'
+/// parts: one split of one weighted shift per draw. With `dates`, the split by shock date is
+/// summed too.
 #[allow(clippy::too_many_arguments)]
 fn chunk_sums(
     thetas: &[Theta],
     parts: &[Part],
     weights: Option<&[f64]>,
+    untilted: Option<(&[Part], Option<&[f64]>)>,
     c: usize,
     big_n: usize,
     n: usize,
-    free: bool,
     dates: bool,
-    sign: f64,
 ) -> Result<Sums, ForecastError> {
     let equal = 1.0 / parts.len().max(1) as f64;
-    let weight = |k: usize| sign * weights.map_or(equal, |w| w[k]);
+    let weight = |w: Option<&[f64]>, k: usize| w.map_or(equal, |w| w[k]);
     let zero = || Sums {
         condition: DMatrix::zeros(big_n, c),
         shock: DMatrix::zeros(big_n, n),
@@ -272,24 +263,20 @@ fn chunk_sums(
         .map(|(chunk, list)| {
             let mut sums = zero();
             for (k, part) in list.iter().enumerate() {
-                let w = weight(chunk * CHUNK + k);
+                let k = chunk * CHUNK + k;
+                let w = weight(weights, k);
                 let theta = &thetas[part.theta];
-                if c > 0 {
-                    sums.condition += w * &part.by_condition;
+                sums.condition += w * &part.by_condition;
+                let mut shift = w * part.by_condition.column_sum();
+                if let Some((base, base_weights)) = untilted {
+                    let free = w * &part.free - weight(base_weights, k) * &base[k].free;
+                    shift += &free;
+                    sums.free += free;
                 }
-                let mut delta = if c > 0 {
-                    part.by_condition.column_sum()
-                } else {
-                    DVector::zeros(big_n)
-                };
-                if free {
-                    delta += &part.free;
-                    sums.free += w * &part.free;
-                }
-                let (shock, date) = by_shock(theta, delta.as_slice(), dates)?;
-                sums.shock += w * shock;
+                let (shock, date) = by_shock(theta, shift.as_slice(), dates)?;
+                sums.shock += shock;
                 if let Some(date) = date {
-                    sums.date += w * date;
+                    sums.date += date;
                 }
                 sums.mu_weighted += w * DVector::from_column_slice(&theta.mean);
             }
