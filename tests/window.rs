@@ -135,6 +135,16 @@ fn screen_of(h: &Harness<'static, TiltyardApp>, s: Subject, i: usize, x: f64, y:
 
 /// Press at `from`, move in steps to `to`, release.
 fn drag(h: &mut Harness<'static, TiltyardApp>, from: Pos2, to: Pos2) {
+    drag_watching(h, from, to, |_| {});
+}
+
+/// A drag, with `watch` called after each frame on the way and after the drop.
+fn drag_watching(
+    h: &mut Harness<'static, TiltyardApp>,
+    from: Pos2,
+    to: Pos2,
+    mut watch: impl FnMut(&Harness<'static, TiltyardApp>),
+) {
     h.hover_at(from);
     h.step();
     h.drag_at(from);
@@ -142,9 +152,11 @@ fn drag(h: &mut Harness<'static, TiltyardApp>, from: Pos2, to: Pos2) {
     for k in 1..=5 {
         h.hover_at(from + (to - from) * (k as f32 / 5.0));
         h.step();
+        watch(h);
     }
     h.drop_at(to);
     h.step();
+    watch(h);
 }
 
 fn horizon(h: &Harness<'static, TiltyardApp>, label: &str) -> f64 {
@@ -1337,18 +1349,7 @@ fn the_axes_stay_put_when_the_fans_update() {
             *s = (s.0.min(w.0), s.1.max(w.1));
         }
     };
-    h.hover_at(from);
-    h.step();
-    h.drag_at(from);
-    h.step();
-    for k in 1..=5 {
-        h.hover_at(from + (to - from) * (k as f32 / 5.0));
-        h.step();
-        record(&h);
-    }
-    h.drop_at(to);
-    h.step();
-    record(&h);
+    drag_watching(&mut h, from, to, &mut record);
     let start = Instant::now();
     while h.state().busy() || h.state().session.results.is_none() {
         h.step();
