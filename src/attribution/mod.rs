@@ -95,14 +95,15 @@ impl Part {
             .iter()
             .map(|l| owner(l, true))
             .chain(rows.corridor_names.iter().map(|l| owner(l, false)));
-        let w = plan.gain();
-        let mut by_condition = DMatrix::zeros(theta.len(), condition_count(cond));
+        // Each condition's departures, in its own column: W D (M E_J F_J⁺ D, one recursion
+        // a condition).
+        let mut split = DMatrix::zeros(d.len(), condition_count(cond));
         for (r, c) in owners.enumerate() {
             if let Some(c) = c {
-                let mut col = by_condition.column_mut(c);
-                col.axpy(d[r], &w.column(r), 1.0);
+                split[(r, c)] = d[r];
             }
         }
+        let by_condition = plan.shift(theta, &split);
         let free = DVector::from_vec(gap) - by_condition.column_sum();
         Some(Part {
             theta: theta_index,

@@ -137,7 +137,7 @@ pub fn severity(
     Ok(Some(out))
 }
 
-/// `ε̄ = M⁻¹ W d̄` (stacked by period): the pins' departures `r − Rμ`, and the corridor
+/// `ε̄ = E_J F_J⁺ d̄ = M⁻¹ W d̄` (stacked by period): the pins' departures `r − Rμ`, and the corridor
 /// quantities' mean departures over [`CORRIDOR_DRAWS`] draws of their law (given fresh
 /// non-driver shocks).
 fn mean_shocks(theta: &Theta, plan: &Plan, seed: u64) -> Result<DVector<f64>, ForecastError> {
@@ -152,12 +152,12 @@ fn mean_shocks(theta: &Theta, plan: &Plan, seed: u64) -> Result<DVector<f64>, Fo
         let eps = DMatrix::from_fn(theta.len(), 1, |_, _| StandardNormal.sample(&mut rng));
         sum += plan.target(&eps, 0, &mut rng)?;
     }
-    let shift = plan.gain() * plan.departures(&(sum / draws as f64));
-    let eps = theta.shocks_from_departures(&DMatrix::from_column_slice(
-        shift.len(),
+    let departures = plan.departures(&(sum / draws as f64));
+    let eps = plan.shock_shift(&DMatrix::from_column_slice(
+        departures.len(),
         1,
-        shift.as_slice(),
-    ))?;
+        departures.as_slice(),
+    ));
     Ok(eps.column(0).into_owned())
 }
 

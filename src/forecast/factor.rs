@@ -25,6 +25,8 @@ pub struct Factor {
     /// `U = R S⁻¹` (unit-norm columns) and `U⁻¹` (none when `U` is singular).
     u: DMatrix<f64>,
     u_inv: Option<DMatrix<f64>>,
+    /// `R_2⁻¹ U⁻ᵀ` (k × k; none when `U` is singular): `F_J⁺ = Q_1 (R_2⁻¹ U⁻ᵀ) S⁻¹`.
+    inner: Option<DMatrix<f64>>,
     /// `S`, the column norms of `F_J'` (and of `R`).
     scale: Vec<f64>,
 }
@@ -85,14 +87,23 @@ impl Factor {
         self.r.view((m, m), (q, q)).into_owned()
     }
 
-    /// `F_J⁺ = Q R⁻ᵀ = Q_1 (R_2⁻¹ U⁻ᵀ) S⁻¹` (|J| × k), one product of size |J| × k × k.
-    pub fn pseudo_inverse(&self) -> Option<DMatrix<f64>> {
-        let inner = &self.r2_inv * self.u_inv.as_ref()?.transpose();
-        let mut out = &self.q1 * inner;
-        for (mut col, s) in out.column_iter_mut().zip(&self.scale) {
-            col.scale_mut(1.0 / s);
+    /// Whether `F_J⁺` exists (`U` is invertible).
+    pub fn invertible(&self) -> bool {
+        self.inner.is_some()
+    }
+
+    /// `F_J⁺ D = Q R⁻ᵀ D = Q_1 (R_2⁻¹ U⁻ᵀ) S⁻¹ D` (|J| × c) for `D` (k × c): products of size
+    /// |J| × k × c and k × k × c, so that a few columns never pay for `F_J⁺` itself. NaN when
+    /// `U` is singular (see [`Factor::invertible`]).
+    pub fn pinv_times(&self, d: &DMatrix<f64>) -> DMatrix<f64> {
+        let Some(inner) = &self.inner else {
+            return DMatrix::from_element(self.q1.nrows(), d.ncols(), f64::NAN);
+        };
+        let mut scaled = d.clone();
+        for (mut row, s) in scaled.row_iter_mut().zip(&self.scale) {
+            row /= *s;
         }
-        Some(out)
+        &self.q1 * (inner * scaled)
     }
 
     /// `‖U‖_F ‖U⁻¹‖_F ≥ cond₂(U)` (at most `k` times too large): a screen that spares the
@@ -162,13 +173,15 @@ fn cholesky_qr2(fjt: &DMatrix<f64>) -> Option<Factor> {
     let r2 = (q1.transpose() * &q1).cholesky()?.l().transpose();
     let r2_inv = upper_inverse(&r2)?;
     let u = &r2 * r1;
-    let u_inv = Some(r1_inv * &r2_inv);
+    let u_inv = r1_inv * &r2_inv;
+    let inner = Some(&r2_inv * u_inv.transpose());
     Some(Factor {
         r: with_scale(&u, &scale),
         q1,
         r2_inv,
         u,
-        u_inv,
+        u_inv: Some(u_inv),
+        inner,
         scale,
     })
 }
@@ -185,10 +198,12 @@ fn householder(fjt: DMatrix<f64>) -> Factor {
     for (mut col, s) in u.column_iter_mut().zip(&scale) {
         col.scale_mut(1.0 / s);
     }
+    let u_inv = upper_inverse(&u);
     Factor {
         q1: qr.q(),
         r2_inv: DMatrix::identity(k, k),
-        u_inv: upper_inverse(&u),
+        inner: u_inv.as_ref().map(|inv| inv.transpose()),
+        u_inv,
         u,
         r,
         scale,
@@ -264,7 +279,8 @@ mod tests {
             if !deficient && rows >= k {
                 let eye = DMatrix::<f64>::identity(k, k);
                 assert!((q.transpose() * &q - eye).amax() < 1e-12, "Q'Q = I");
-                let pinv = f.pseudo_inverse().unwrap();
+                assert!(f.invertible());
+                let pinv = f.pinv_times(&DMatrix::identity(k, k));
                 let fj = padded.transpose();
                 // Entry (i, j) is a sum of products of size s_i / s_j: relative to that.
                 let id = &fj * pinv - DMatrix::identity(k, k);

@@ -9,7 +9,10 @@
 //! thin QR `F_J' = Q R` (R k×k upper triangular, pins first), never the Gram matrix
 //! `F_J F_J'`, so nothing squares the conditioning:
 //!
-//! - `F_J⁺ = Q R⁻ᵀ`; the gain `W = M E_J F_J⁺` (N × k) moves only driver shocks;
+//! - `F_J⁺ = Q R⁻ᵀ`; the gain `W = M E_J F_J⁺` (N × k) moves only driver shocks. It is
+//!   applied to a few columns (one path of a posterior draw, the conditions' parts) as
+//!   `M E_J (F_J⁺ D)` — a product with `Q` and one forward recursion a column — and formed
+//!   only for a block of at least k columns, where forming it costs no more than that;
 //! - with `R = [[R_RR, R_RS], [0, R_SS]]`, the corridor quantities `z = S y` given the pins
 //!   and the non-driver shocks `ε*_J̄` are Gaussian with mean
 //!   `Sμ + R_RS'R_RR⁻ᵀ r̃ + (F_SJ̄ − R_RS'R_RR⁻ᵀ F_RJ̄) ε*_J̄` and covariance `R_SS'R_SS`
@@ -24,7 +27,7 @@
 //! The model's own law (every shock free: pin surprise, the corridors' probability, weights)
 //! uses the same factorisation of `F'`, with `Γ = 𝒢K⁻¹𝒢' = R'R`.
 
-use std::sync::OnceLock;
+use std::sync::{Arc, OnceLock};
 
 use nalgebra::{DMatrix, DMatrixView, DVector};
 use rand::Rng;
@@ -76,11 +79,11 @@ pub struct Plan {
     cells: Option<Vec<usize>>,
     rest: Vec<usize>,
     /// QR of `F_J'`.
-    factor: Factor,
+    factor: Arc<Factor>,
     /// QR of `F'` (every shock free), the same as `factor` without drivers.
-    model: OnceLock<Factor>,
-    /// `W = M E_J F_J⁺` (N × k).
-    gain: DMatrix<f64>,
+    model: OnceLock<Arc<Factor>>,
+    /// `W = M E_J F_J⁺` (N × k), formed when first needed for a block of at least k columns.
+    gain: OnceLock<DMatrix<f64>>,
     /// The corridor quantities' law under this plan's drivers (none without corridors).
     law: Option<CorridorLaw>,
     draw: Option<usize>,
@@ -132,24 +135,14 @@ impl Plan {
             })?;
         }
         well_conditioned(&factor, &labels, draw)?;
-        let pinv = factor
-            .pseudo_inverse()
-            .ok_or_else(|| ForecastError::NearlyDependent {
+        if !factor.invertible() {
+            return Err(ForecastError::NearlyDependent {
                 conditions: labels.clone(),
                 draw,
-            })?;
-        let mut gain = match &cells {
-            None => pinv,
-            Some(cells) => {
-                let mut w = DMatrix::zeros(theta.len(), m + q);
-                for (k, &c) in cells.iter().enumerate() {
-                    w.set_row(c, &pinv.row(k));
-                }
-                w
-            }
-        };
-        theta.shocks_to_paths(&mut gain);
+            });
+        }
         let law = plan_law(&factor, &rows, &rtilde, &smean, &shock_rows, &rest, like)?;
+        let factor = Arc::new(factor);
         let model = OnceLock::new();
         if cells.is_none() {
             let _ = model.set(factor.clone());
@@ -164,7 +157,7 @@ impl Plan {
             rest,
             factor,
             model,
-            gain,
+            gain: OnceLock::new(),
             law,
             draw,
         })
@@ -218,7 +211,7 @@ impl Plan {
     /// The factor of the model's law (every shock free).
     fn model_factor(&self) -> &Factor {
         self.model
-            .get_or_init(|| Factor::new(&self.shock_rows, None))
+            .get_or_init(|| Arc::new(Factor::new(&self.shock_rows, None)))
     }
 
     /// Condition number of `Γ = 𝒢 K⁻¹ 𝒢'` scaled to a unit diagonal (1 for fewer than two
@@ -299,7 +292,7 @@ impl Plan {
             }
         }
         let gy = self.stacked_times(&ystar);
-        let y = self.correct(ystar.as_view(), gy.as_view(), &target);
+        let y = self.correct(theta, ystar.as_view(), gy.as_view(), &target);
         failed
             .into_iter()
             .enumerate()
@@ -320,11 +313,12 @@ impl Plan {
     /// gap costs the rows' few non-zeros, the step a product as large as the first).
     pub fn correct(
         &self,
+        theta: &Theta,
         ystar: DMatrixView<f64>,
         gy: DMatrixView<f64>,
         target: &DMatrix<f64>,
     ) -> DMatrix<f64> {
-        let mut y = mul(&self.gain, &(target - gy));
+        let mut y = self.shift(theta, &(target - gy));
         y += ystar;
         let gap = target - self.stacked.times(&y);
         let missed = gap
@@ -332,9 +326,45 @@ impl Plan {
             .zip(target.iter())
             .any(|(g, t)| g.abs() > REFINE * (1.0 + t.abs()));
         if missed {
-            y += mul(&self.gain, &gap);
+            y += self.shift(theta, &gap);
         }
         y
+    }
+
+    /// `W D = M E_J F_J⁺ D` (N × c) for departures `D` (k × c) of the rows from `𝒢y`: the
+    /// paths' moves that meet them. A block of at least k columns goes through `W` (formed
+    /// once: k forward recursions and a product of size |J| × k × k, no more than the block's
+    /// own recursions would cost); fewer go through the factor, one recursion a column. The
+    /// route depends on the block's width alone, so a path does not depend on the threads.
+    pub fn shift(&self, theta: &Theta, d: &DMatrix<f64>) -> DMatrix<f64> {
+        if d.ncols() >= d.nrows() {
+            let w = self.gain.get_or_init(|| {
+                let k = self.stacked.nrows();
+                let mut w = self.shock_shift(&DMatrix::identity(k, k));
+                theta.shocks_to_paths(&mut w);
+                w
+            });
+            return mul(w, d);
+        }
+        let mut e = self.shock_shift(d);
+        theta.shocks_to_paths(&mut e);
+        e
+    }
+
+    /// `E_J F_J⁺ D` (N × c): the least-norm moves of the driver shocks that change the rows
+    /// by the columns of `D` (k × c).
+    pub fn shock_shift(&self, d: &DMatrix<f64>) -> DMatrix<f64> {
+        let x = self.factor.pinv_times(d);
+        match &self.cells {
+            None => x,
+            Some(cells) => {
+                let mut e = DMatrix::zeros(self.shock_rows.nrows(), d.ncols());
+                for (k, &c) in cells.iter().enumerate() {
+                    e.set_row(c, &x.row(k));
+                }
+                e
+            }
+        }
     }
 
     /// `𝒢 Y` for paths in the columns of `y`.
@@ -367,16 +397,12 @@ impl Plan {
         let ystar = DMatrix::from_vec(eps.len(), 1, theta.path_from_shocks(eps));
         let target = DMatrix::from_column_slice(self.pin_count(), 1, self.rows.values.as_slice());
         let y = self.correct(
+            theta,
             ystar.as_view(),
             self.stacked_times(&ystar).as_view(),
             &target,
         );
         (y.as_slice().to_vec(), ystar.as_slice().to_vec())
-    }
-
-    /// The gain `W = M E_J F_J⁺` (N × k): the conditional mean shift is `W (E[t] − 𝒢μ)`.
-    pub fn gain(&self) -> &DMatrix<f64> {
-        &self.gain
     }
 
     /// The stacked rows `𝒢 = [R; S]` (k × N).

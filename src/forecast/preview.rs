@@ -149,7 +149,7 @@ impl Preview {
                     }
                 }
                 let ystar = self.ystar.columns(start, end - start);
-                let y = plan.correct(ystar, gy.columns(start, end - start), &target);
+                let y = plan.correct(&self.theta, ystar, gy.columns(start, end - start), &target);
                 let kept: Vec<usize> = (0..failed.len()).filter(|&k| failed[k].is_none()).collect();
                 let errors = if kept.len() == failed.len() {
                     plan.rows().errors(&y)
