@@ -119,15 +119,31 @@ impl Theta {
 
     /// `X ← H⁻ᵀ X` for `N × k` blocks: `x_t += Σ_{j=1}^{min(p,h−t)} B_j' x_{t+j}`, `t = h … 1`.
     pub fn backward_in_place(&self, x: &mut DMatrix<f64>) {
+        self.backward_staircase(x, &vec![self.h; x.ncols()]);
+    }
+
+    /// [`Theta::backward_in_place`] for columns zero after their first `reach[c]` periods,
+    /// `reach` non-increasing: `H⁻ᵀ` keeps them so (it is block upper triangular), and each
+    /// period's step runs on the leading columns still non-zero after it.
+    fn backward_staircase(&self, x: &mut DMatrix<f64>, reach: &[usize]) {
         let (n, p) = (self.n(), self.p());
         // A product with transposed copies runs as a matrix product, where a transposed
         // product would run as dot products.
         let lags_t = self.lags_side_by_side(true);
         for t in (0..self.h.saturating_sub(1)).rev() {
             let m = p.min(self.h - 1 - t);
+            let active = reach.partition_point(|&r| r > t + 1);
+            if active == 0 {
+                continue;
+            }
             let (mut now, future) =
                 x.rows_range_pair_mut(t * n..(t + 1) * n, (t + 1) * n..(t + 1 + m) * n);
-            now.gemm(1.0, &lags_t.columns(0, m * n), &future, 1.0);
+            now.columns_mut(0, active).gemm(
+                1.0,
+                &lags_t.columns(0, m * n),
+                &future.columns(0, active),
+                1.0,
+            );
         }
     }
 
@@ -147,10 +163,40 @@ impl Theta {
         self.forward_in_place(e);
     }
 
-    /// `V ← M' V = (I ⊗ L') H⁻ᵀ V`.
+    /// `V ← M' V = (I ⊗ L') H⁻ᵀ V`. A column zero after some period stays so (`M'` is block
+    /// upper triangular), as the stacked rows of conditions at early periods are: the columns
+    /// are taken in order of their last non-zero period, latest first, and each period's
+    /// products run on those still non-zero there.
     pub fn adjoint_in_place(&self, v: &mut DMatrix<f64>) {
-        self.backward_in_place(v);
-        self.each_period(v, &self.impact.transpose());
+        let (n, k) = (self.n(), v.ncols());
+        let reach_of = |c: usize| {
+            v.column(c)
+                .iter()
+                .rposition(|x| *x != 0.0)
+                .map_or(0, |r| r / n + 1)
+        };
+        let mut order: Vec<(usize, usize)> = (0..k).map(|c| (reach_of(c), c)).collect();
+        order.sort_by_key(|&(reach, c)| (std::cmp::Reverse(reach), c));
+        let reach: Vec<usize> = order.iter().map(|&(r, _)| r).collect();
+        let mut w = DMatrix::zeros(v.nrows(), k);
+        for (to, &(_, from)) in order.iter().enumerate() {
+            w.column_mut(to).copy_from(&v.column(from));
+        }
+        self.backward_staircase(&mut w, &reach);
+        let lt = self.impact.transpose();
+        let mut tmp = DMatrix::zeros(n, k);
+        for t in 0..self.h {
+            let active = reach.partition_point(|&r| r > t);
+            if active == 0 {
+                break;
+            }
+            let mut now = tmp.columns_mut(0, active);
+            now.gemm(1.0, &lt, &w.view((t * n, 0), (n, active)), 0.0);
+            w.view_mut((t * n, 0), (n, active)).copy_from(&now);
+        }
+        for (from, &(_, to)) in order.iter().enumerate() {
+            v.column_mut(to).copy_from(&w.column(from));
+        }
     }
 
     /// `V ← K⁻¹ V = M M' V`: the unconditional forecast covariance times `V`.
@@ -421,6 +467,22 @@ mod tests {
             let mt = m.transpose() * DVector::from_column_slice(&col);
             let got = DVector::from_vec(theta.shock_map_transpose(&col));
             assert!((got - mt).amax() < tol * (1.0 + m.amax()), "M' v");
+            // Columns zero after some period (in no order, one zero throughout), as the rows
+            // of conditions at early periods are: the recursion skips their zero blocks.
+            let reach = [h, 1, 0, h.div_ceil(2), h, 1];
+            let mut stairs = DMatrix::from_fn(big_n, reach.len(), |i, c| {
+                if i < reach[c] * n {
+                    ((i + 5 * c) as f64 * 0.73).cos()
+                } else {
+                    0.0
+                }
+            });
+            let want = m_def.transpose() * &stairs;
+            theta.adjoint_in_place(&mut stairs);
+            assert!(
+                (&stairs - &want).amax() < tol * (1.0 + m_def.amax()),
+                "M' V for staircase columns"
+            );
             let eps: Vec<f64> = (0..big_n).map(|i| (i as f64 * 0.91).cos()).collect();
             let y = theta.path_from_shocks(&eps);
             let back = theta.shocks_from_paths(std::slice::from_ref(&y)).unwrap();
