@@ -329,8 +329,8 @@ pub fn check_draws(
             Err(e) => return Some(e),
         };
         let mut rng = stream(setup.file.seed, Purpose::Acceptance, i as u64);
-        match plan.acceptance(&mut rng, RECHECK_PROPOSALS) {
-            Ok(Some(a)) if a < settings.min_acceptance => Some(ForecastError::TooImprobable {
+        match plan.acceptance_below(&mut rng, RECHECK_PROPOSALS, settings.min_acceptance) {
+            Ok(Some(a)) => Some(ForecastError::TooImprobable {
                 corridors: plan.corridor_names(),
                 acceptance: a,
                 draw: Some(i),

@@ -13,7 +13,7 @@ use nalgebra::{DMatrix, DVector};
 use rand::Rng;
 
 use super::{ForecastError, rows::Extra};
-use crate::truncnorm::{Probability, SolveStatus, TruncError, TruncatedNormal};
+use crate::truncnorm::{Probability, SolveStatus, TruncError, TruncatedNormal, multivariate::Keep};
 
 /// Work allowed for one path (multiply–adds, about a second on one core) before the corridors
 /// count as too improbable to sample; a proposal costs about `d²/2 + 20 d`.
@@ -140,6 +140,27 @@ impl CorridorLaw {
             let z = mean.as_ref() + DVector::from_column_slice(x);
             self.extra.iter().all(|e| e.holds(&z))
         }))
+    }
+
+    /// The sampler's acceptance rate at the mean `m₀ + A ε_J̄`, estimated by `n` proposals
+    /// (inside the extra inequalities too), when it is below `floor`; `None` when it is not
+    /// (often known after the first proposals: [`TruncatedNormal::acceptance_below`]).
+    pub fn acceptance_below<R: Rng + ?Sized>(
+        &self,
+        nondrivers: &[f64],
+        rng: &mut R,
+        n: usize,
+        floor: f64,
+    ) -> Result<Option<f64>, ForecastError> {
+        let (tn, mean) = self
+            .at(nondrivers)
+            .map_err(|e| explain(e, &self.labels, &self.names, None))?;
+        let keep = |x: &[f64]| {
+            let z = mean.as_ref() + DVector::from_column_slice(x);
+            self.extra.iter().all(|e| e.holds(&z))
+        };
+        let keep: Keep = (!self.extra.is_empty()).then_some(&keep);
+        Ok(tn.acceptance_below(rng, n, floor, keep))
     }
 
     /// How the saddle point of the sampler at `m₀` was found.

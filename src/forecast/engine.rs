@@ -600,8 +600,8 @@ fn plan_for(
     }?;
     // Fail fast, naming the draw, rather than spend the path budget on a hopeless θ.
     let mut rng = stream(how.seed, Purpose::Acceptance, i as u64);
-    if let Some(acceptance) = plan.acceptance(&mut rng, ACCEPTANCE_PROPOSALS)?
-        && acceptance < how.min_acceptance
+    if let Some(acceptance) =
+        plan.acceptance_below(&mut rng, ACCEPTANCE_PROPOSALS, how.min_acceptance)?
     {
         return Err(ForecastError::TooImprobable {
             corridors: plan.corridor_names(),

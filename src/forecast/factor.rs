@@ -11,80 +11,178 @@
 //! orthogonality to rounding whenever `cond(A) ≲ 10⁸`, and every accepted plan has
 //! `cond(A) ≤ 10⁶`. When a Cholesky fails (rank deficient or nearly so) Householder QR takes
 //! over, and its `R` names the deficiency.
+//!
+//! A condition at period t involves the shocks up to t only, so its column of `F_J'` is zero
+//! below some row: the columns are factored with the pins first and the corridor rows after
+//! (the order the conditional law needs), each group in order of how far its columns reach,
+//! and the three products run by blocks of columns over the rows the block reaches — about a
+//! third of the dense products when the conditions spread over the horizon. Everything this
+//! module returns is in the conditions' own order.
 
 use nalgebra::{DMatrix, SVD};
 
-/// The factor, with what products with it need.
+/// Columns per block of the staircase products.
+const BLOCK: usize = 16;
+
+/// The factor, with what products with it need. Internally the columns are permuted
+/// ([`Places`]); every method speaks the conditions' own order unless it says otherwise.
 #[derive(Debug, Clone)]
 pub struct Factor {
     /// `Q_1` (|J| × k) and `R_2⁻¹`: `Q = Q_1 R_2⁻¹` (Householder: `Q` and the identity).
     q1: DMatrix<f64>,
     r2_inv: DMatrix<f64>,
-    /// `R` (k × k, upper triangular).
-    pub r: DMatrix<f64>,
+    /// `R` (k × k, upper triangular), of the permuted columns.
+    r: DMatrix<f64>,
     /// `U = R S⁻¹` (unit-norm columns) and `U⁻¹` (none when `U` is singular).
     u: DMatrix<f64>,
     u_inv: Option<DMatrix<f64>>,
     /// `R_2⁻¹ U⁻ᵀ` (k × k; none when `U` is singular): `F_J⁺ = Q_1 (R_2⁻¹ U⁻ᵀ) S⁻¹`.
     inner: Option<DMatrix<f64>>,
-    /// `S`, the column norms of `F_J'` (and of `R`).
+    /// `S`, the column norms of `F_J'` (and of `R`), permuted.
     scale: Vec<f64>,
+    places: Places,
+}
+
+/// Where each condition sits in the factor: the `pins` pins first, then the corridor rows.
+#[derive(Debug, Clone)]
+struct Places {
+    pins: usize,
+    /// `order[p]`: the condition in place `p`; `place[i]`: the place of condition `i`.
+    order: Vec<usize>,
+    place: Vec<usize>,
 }
 
 impl Factor {
-    /// Factor `F_J'` (the rows `cells` of `F'`; every row when `None`), padded with zero rows
-    /// to at least k rows so that too few cells show up as a rank deficiency.
-    pub fn new(ft: &DMatrix<f64>, cells: Option<&[usize]>) -> Factor {
+    /// Factor `F_J'` (the rows `cells` of `F'`; every row when `None`) whose first `pins`
+    /// columns are the pins, padded with zero rows to at least k rows so that too few cells
+    /// show up as a rank deficiency.
+    pub fn new(ft: &DMatrix<f64>, cells: Option<&[usize]>, pins: usize) -> Factor {
         let k = ft.ncols();
-        let fjt = match cells {
-            None if ft.nrows() >= k => ft.clone(),
-            None => ft.clone().resize_vertically(k, 0.0),
-            Some(cells) => {
-                let rows = cells.len().max(k);
-                DMatrix::from_fn(rows, k, |i, c| cells.get(i).map_or(0.0, |&j| ft[(j, c)]))
-            }
+        let rows = cells.map_or(ft.nrows(), <[usize]>::len).max(k);
+        let row = |i: usize| match cells {
+            None => (i < ft.nrows()).then_some(i),
+            Some(cells) => cells.get(i).copied(),
         };
-        cholesky_qr2(&fjt).unwrap_or_else(|| householder(fjt))
+        // How many leading rows each column reaches, and the order: pins, then corridor rows,
+        // each by reach (stable).
+        let reach: Vec<usize> = (0..k)
+            .map(|c| {
+                (0..rows)
+                    .rev()
+                    .find(|&i| row(i).is_some_and(|j| ft[(j, c)] != 0.0))
+                    .map_or(0, |i| i + 1)
+            })
+            .collect();
+        let mut order: Vec<usize> = (0..k).collect();
+        order[..pins].sort_by_key(|&c| reach[c]);
+        order[pins..].sort_by_key(|&c| reach[c]);
+        let mut fjt = DMatrix::zeros(rows, k);
+        for (p, &c) in order.iter().enumerate() {
+            let col = fjt.column_mut(p).data.into_slice_mut();
+            for (i, v) in col.iter_mut().enumerate().take(reach[c]) {
+                *v = row(i).map_or(0.0, |j| ft[(j, c)]);
+            }
+        }
+        let reach: Vec<usize> = order.iter().map(|&c| reach[c]).collect();
+        let mut place = vec![0; k];
+        for (p, &c) in order.iter().enumerate() {
+            place[c] = p;
+        }
+        let places = Places { pins, order, place };
+        match cholesky_qr2(&fjt, &reach, &places) {
+            Some(f) => f,
+            None => householder(fjt, places),
+        }
     }
 
     pub fn size(&self) -> usize {
         self.r.nrows()
     }
 
-    /// `Q` (|J| × k).
-    pub fn q(&self) -> DMatrix<f64> {
+    /// `Q` (|J| × k), its columns in the factor's places.
+    fn q(&self) -> DMatrix<f64> {
         &self.q1 * &self.r2_inv
     }
 
-    /// `R_RR⁻¹ x` for the leading `m × m` block (x: m × c); NaN when it is singular.
-    pub fn rr_solve(&self, m: usize, x: &DMatrix<f64>) -> DMatrix<f64> {
+    /// `R_RR⁻¹ x` for the leading `pins × pins` block (x: pins × c, in places); NaN when
+    /// singular.
+    fn rr_solve(&self, x: &DMatrix<f64>) -> DMatrix<f64> {
+        let m = self.places.pins;
         let rr = self.r.view((0, 0), (m, m));
         rr.solve_upper_triangular(x)
             .unwrap_or_else(|| DMatrix::from_element(m, x.ncols(), f64::NAN))
     }
 
-    /// `R_RR⁻ᵀ x` (x: m × c); NaN when singular.
-    pub fn rr_solve_transpose(&self, m: usize, x: &DMatrix<f64>) -> DMatrix<f64> {
-        let rrt = self.r.view((0, 0), (m, m)).transpose();
-        rrt.solve_lower_triangular(x)
-            .unwrap_or_else(|| DMatrix::from_element(m, x.ncols(), f64::NAN))
+    /// The condition in place `p` of the factor.
+    pub fn original(&self, p: usize) -> usize {
+        self.places.order[p]
     }
 
-    /// `C = R_RS' R_RR⁻ᵀ` (q × m): the corridor rows' regression on the pins.
-    pub fn corridor_on_pins(&self, m: usize) -> DMatrix<f64> {
+    /// `R` (k × k, upper triangular), its columns in the factor's places
+    /// ([`Factor::original`]).
+    pub fn r(&self) -> &DMatrix<f64> {
+        &self.r
+    }
+
+    /// `Γ_ii`, the variance of condition `i`'s row (`Γ = F_J F_J' = R'R`).
+    pub fn variance(&self, i: usize) -> f64 {
+        let p = self.places.place[i];
+        self.r.view((0, p), (p + 1, 1)).norm_squared()
+    }
+
+    /// `ln|Γ_RR| = 2 Σ ln|R_ii|` over the pins.
+    pub fn pin_log_det(&self) -> f64 {
+        2.0 * (0..self.places.pins)
+            .map(|i| self.r[(i, i)].abs().ln())
+            .sum::<f64>()
+    }
+
+    /// `r̃'Γ_RR⁻¹r̃ = ‖R_RR⁻ᵀ r̃‖²` for departures `r̃` of the pins (NaN when singular).
+    pub fn pin_distance(&self, rtilde: &[f64]) -> f64 {
+        let m = self.places.pins;
+        let x = DMatrix::from_fn(m, 1, |p, _| rtilde[self.places.order[p]]);
+        let rrt = self.r.view((0, 0), (m, m)).transpose();
+        rrt.solve_lower_triangular(&x)
+            .map_or(f64::NAN, |w| w.norm_squared())
+    }
+
+    /// `F_RJ⁺ = Q_R R_RR⁻ᵀ` (|J| × pins), the pins' pseudo-inverse; `None` when singular.
+    pub fn pins_pinv(&self) -> Option<DMatrix<f64>> {
+        let m = self.places.pins;
+        let q = self.q().columns(0, m).into_owned();
+        let x = self.rr_solve(&q.transpose()).transpose();
+        if x.iter().any(|v| !v.is_finite()) {
+            return None;
+        }
+        let mut out = DMatrix::zeros(x.nrows(), m);
+        for p in 0..m {
+            out.column_mut(self.places.order[p]).copy_from(&x.column(p));
+        }
+        Some(out)
+    }
+
+    /// `C = R_RS' R_RR⁻ᵀ` (q × pins): the corridor rows' regression on the pins.
+    pub fn corridor_on_pins(&self) -> DMatrix<f64> {
+        let m = self.places.pins;
         let q = self.size() - m;
         if m == 0 {
             return DMatrix::zeros(q, 0);
         }
         let rrs = self.r.view((0, m), (m, q)).into_owned();
         // (R_RR⁻¹ R_RS)' = R_RS' R_RR⁻ᵀ.
-        self.rr_solve(m, &rrs).transpose()
+        let c = self.rr_solve(&rrs).transpose();
+        let place = &self.places.place;
+        DMatrix::from_fn(q, m, |a, b| c[(place[m + a] - m, place[b])])
     }
 
-    /// `R_SS` (q × q).
-    pub fn corridor_block(&self, m: usize) -> DMatrix<f64> {
+    /// `R_SS'R_SS` (q × q): the corridor rows' covariance given the pins.
+    pub fn corridor_covariance(&self) -> DMatrix<f64> {
+        let m = self.places.pins;
         let q = self.size() - m;
-        self.r.view((m, m), (q, q)).into_owned()
+        let r_ss = self.r.view((m, m), (q, q));
+        let cov = r_ss.transpose() * r_ss;
+        let place = &self.places.place;
+        DMatrix::from_fn(q, q, |a, b| cov[(place[m + a] - m, place[m + b] - m)])
     }
 
     /// Whether `F_J⁺` exists (`U` is invertible).
@@ -99,9 +197,9 @@ impl Factor {
         let Some(inner) = &self.inner else {
             return DMatrix::from_element(self.q1.nrows(), d.ncols(), f64::NAN);
         };
-        let mut scaled = d.clone();
-        for (mut row, s) in scaled.row_iter_mut().zip(&self.scale) {
-            row /= *s;
+        let mut scaled = DMatrix::zeros(d.nrows(), d.ncols());
+        for (p, (&c, s)) in self.places.order.iter().zip(&self.scale).enumerate() {
+            scaled.row_mut(p).copy_from(&(d.row(c) / *s));
         }
         &self.q1 * (inner * scaled)
     }
@@ -151,13 +249,18 @@ impl Factor {
         let involved = svd.v_t.map_or_else(Vec::new, |vt| {
             let v = vt.row(lo_at);
             let top = v.amax();
-            (0..k).filter(|&i| v[i].abs() > 1e-3 * top).collect()
+            (0..k)
+                .filter(|&i| v[i].abs() > 1e-3 * top)
+                .map(|i| self.places.order[i])
+                .collect()
         });
         (cond, involved)
     }
 }
 
-fn cholesky_qr2(fjt: &DMatrix<f64>) -> Option<Factor> {
+/// CholeskyQR2 of the permuted columns (each zero below its `reach`), or `None` when a
+/// Cholesky fails.
+fn cholesky_qr2(fjt: &DMatrix<f64>, reach: &[usize], places: &Places) -> Option<Factor> {
     let k = fjt.ncols();
     let scale: Vec<f64> = (0..k).map(|c| fjt.column(c).norm()).collect();
     if scale.iter().any(|&s| !(s > 0.0 && s.is_finite())) {
@@ -167,10 +270,18 @@ fn cholesky_qr2(fjt: &DMatrix<f64>) -> Option<Factor> {
     for (mut col, s) in a.column_iter_mut().zip(&scale) {
         col.scale_mut(1.0 / s);
     }
-    let r1 = (a.transpose() * &a).cholesky()?.l().transpose();
+    let r1 = gram(&a, reach).cholesky()?.l().transpose();
     let r1_inv = upper_inverse(&r1)?;
-    let q1 = a * &r1_inv;
-    let r2 = (q1.transpose() * &q1).cholesky()?.l().transpose();
+    // Column j of Q_1 = A R_1⁻¹ combines the columns up to j: it reaches as far as they do.
+    let reach_q: Vec<usize> = reach
+        .iter()
+        .scan(0, |far, &r| {
+            *far = (*far).max(r);
+            Some(*far)
+        })
+        .collect();
+    let q1 = times_upper(&a, &r1_inv, &reach_q);
+    let r2 = gram(&q1, &reach_q).cholesky()?.l().transpose();
     let r2_inv = upper_inverse(&r2)?;
     let u = &r2 * r1;
     let u_inv = r1_inv * &r2_inv;
@@ -183,10 +294,59 @@ fn cholesky_qr2(fjt: &DMatrix<f64>) -> Option<Factor> {
         u_inv: Some(u_inv),
         inner,
         scale,
+        places: places.clone(),
     })
 }
 
-fn householder(fjt: DMatrix<f64>) -> Factor {
+/// `A'A` for columns zero below their first `reach[c]` rows: each block of columns times the
+/// columns up to it, over the rows the block reaches (the upper triangle), then mirrored.
+fn gram(a: &DMatrix<f64>, reach: &[usize]) -> DMatrix<f64> {
+    let k = a.ncols();
+    let at = a.transpose();
+    let mut g = DMatrix::zeros(k, k);
+    for j0 in (0..k).step_by(BLOCK) {
+        let j1 = (j0 + BLOCK).min(k);
+        let rows = reach[j0..j1].iter().copied().max().unwrap_or(0);
+        if rows == 0 {
+            continue;
+        }
+        g.view_mut((0, j0), (j1, j1 - j0)).gemm(
+            1.0,
+            &at.view((0, 0), (j1, rows)),
+            &a.view((0, j0), (rows, j1 - j0)),
+            0.0,
+        );
+    }
+    for j in 0..k {
+        for i in j + 1..k {
+            g[(i, j)] = g[(j, i)];
+        }
+    }
+    g
+}
+
+/// `A U` for an upper-triangular `U` whose product's column j is zero below row `reach[j]`
+/// (non-decreasing): each block of columns from the columns of `A` up to it, over its rows.
+fn times_upper(a: &DMatrix<f64>, u: &DMatrix<f64>, reach: &[usize]) -> DMatrix<f64> {
+    let (rows_a, k) = a.shape();
+    let mut out = DMatrix::zeros(rows_a, k);
+    for j0 in (0..k).step_by(BLOCK) {
+        let j1 = (j0 + BLOCK).min(k);
+        let rows = reach[j1 - 1];
+        if rows == 0 {
+            continue;
+        }
+        out.view_mut((0, j0), (rows, j1 - j0)).gemm(
+            1.0,
+            &a.view((0, 0), (rows, j1)),
+            &u.view((0, j0), (j1, j1 - j0)),
+            0.0,
+        );
+    }
+    out
+}
+
+fn householder(fjt: DMatrix<f64>, places: Places) -> Factor {
     let k = fjt.ncols();
     let qr = fjt.qr();
     let r = qr.r();
@@ -207,6 +367,7 @@ fn householder(fjt: DMatrix<f64>) -> Factor {
         u,
         r,
         scale,
+        places,
     }
 }
 
@@ -267,15 +428,18 @@ mod tests {
                 let c0 = ft.column(0).into_owned();
                 ft.set_column(k - 1, &(c0 * 3.0));
             }
-            let f = Factor::new(&ft, None);
+            let f = Factor::new(&ft, None, 0);
             let padded = ft.clone().resize_vertically(rows.max(k), 0.0);
             let q = f.q();
-            let back = &q * &f.r;
+            let back = &q * f.r();
             let scale = padded.amax();
-            assert!(
-                (&back - &padded).amax() < 1e-12 * scale,
-                "QR = F' ({rows}×{k})"
-            );
+            for p in 0..k {
+                let want = padded.column(f.original(p));
+                assert!(
+                    (back.column(p) - want).amax() < 1e-12 * scale,
+                    "QR = F'P ({rows}×{k})"
+                );
+            }
             if !deficient && rows >= k {
                 let eye = DMatrix::<f64>::identity(k, k);
                 assert!((q.transpose() * &q - eye).amax() < 1e-12, "Q'Q = I");
@@ -297,11 +461,88 @@ mod tests {
             }
             for i in 0..k {
                 for j in 0..i {
-                    assert_eq!(f.r[(i, j)], 0.0);
+                    assert_eq!(f.r()[(i, j)], 0.0);
                 }
             }
             let (cond, _) = f.scaled_condition();
             assert_eq!(cond.is_infinite() || cond > 1e20, deficient || rows < k);
+        }
+    }
+
+    /// Columns zero below different rows (conditions at different periods), in no order, with
+    /// pins first, every shock free and with drivers: what the factor returns, in the
+    /// conditions' order, equals the dense formulas on `Γ = F_J F_J'` (pins R, corridor rows S):
+    /// `Γ_ii`; the corridor rows' law given the pins `Γ_SS − Γ_SR Γ_RR⁻¹ Γ_RS` and regression
+    /// `Γ_SR Γ_RR⁻¹`; `r'Γ_RR⁻¹r` and `ln|Γ_RR|`; `F_R⁺ = F_R'Γ_RR⁻¹`; `F_J⁺D = F_J'Γ⁻¹D`.
+    #[test]
+    fn staircase_columns_come_back_in_the_conditions_order() {
+        let (rows, k, pins) = (60, 23, 4);
+        let mut rng = ChaCha8Rng::seed_from_u64(17);
+        let reach: Vec<usize> = (0..k).map(|c| 5 + (c * 37) % 55).collect();
+        let ft = DMatrix::from_fn(rows, k, |i, c| {
+            let z: f64 = StandardNormal.sample(&mut rng);
+            if i < reach[c] {
+                z * (1.0 + c as f64)
+            } else {
+                0.0
+            }
+        });
+        let cells: Vec<usize> = (0..rows).filter(|i| i % 3 != 1).collect();
+        for cells in [None, Some(cells.as_slice())] {
+            let fj = match cells {
+                None => ft.transpose(),
+                Some(cells) => DMatrix::from_fn(k, cells.len(), |c, i| ft[(cells[i], c)]),
+            };
+            let f = Factor::new(&ft, cells, pins);
+            assert!(
+                (0..k).any(|p| f.original(p) != p),
+                "the columns were reordered"
+            );
+            // By the staircase products, not the Householder fallback (whose R_2⁻¹ is I).
+            assert!(f.r2_inv != DMatrix::identity(k, k), "CholeskyQR2");
+            let gamma = &fj * fj.transpose();
+            let close = |a: &DMatrix<f64>, b: &DMatrix<f64>, what: &str| {
+                let err = (a - b).amax();
+                assert!(err < 1e-10 * (1.0 + b.amax()), "{what}: {err:e}");
+            };
+            let q = k - pins;
+            let g_rr = gamma.view((0, 0), (pins, pins)).into_owned();
+            let g_sr = gamma.view((pins, 0), (q, pins)).into_owned();
+            let g_rr_inv = g_rr.clone().try_inverse().unwrap();
+            let variances = DMatrix::from_fn(k, 1, |i, _| f.variance(i));
+            close(
+                &variances,
+                &DMatrix::from_fn(k, 1, |i, _| gamma[(i, i)]),
+                "Γ_ii",
+            );
+            let schur = gamma.view((pins, pins), (q, q)) - &g_sr * &g_rr_inv * g_sr.transpose();
+            close(&f.corridor_covariance(), &schur, "corridor covariance");
+            close(
+                &f.corridor_on_pins(),
+                &(&g_sr * &g_rr_inv),
+                "regression on the pins",
+            );
+            let r: Vec<f64> = (0..pins).map(|i| 0.3 * i as f64 - 0.5).collect();
+            let rv = DMatrix::from_column_slice(pins, 1, &r);
+            let want = (rv.transpose() * &g_rr_inv * &rv)[(0, 0)];
+            assert!(
+                (f.pin_distance(&r) - want).abs() < 1e-10 * want,
+                "r'Γ_RR⁻¹r"
+            );
+            let logdet = g_rr.determinant().ln();
+            assert!(
+                (f.pin_log_det() - logdet).abs() < 1e-10 * logdet.abs(),
+                "ln|Γ_RR|"
+            );
+            let f_r = fj.rows(0, pins).into_owned();
+            close(
+                &f.pins_pinv().unwrap(),
+                &(f_r.transpose() * &g_rr_inv),
+                "F_R⁺",
+            );
+            let d = DMatrix::from_fn(k, 3, |i, j| ((i * 3 + j) as f64).sin());
+            let want = fj.transpose() * gamma.try_inverse().unwrap() * &d;
+            close(&f.pinv_times(&d), &want, "F_J⁺ D");
         }
     }
 

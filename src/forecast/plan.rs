@@ -125,7 +125,7 @@ impl Plan {
                 (0..theta.len()).filter(|&c| !mask[c]).collect(),
             ),
         };
-        let factor = Factor::new(&shock_rows, cells.as_deref());
+        let factor = Factor::new(&shock_rows, cells.as_deref(), m);
         if cells.is_some() {
             let width = cells.as_ref().map_or(0, Vec::len).max(m + q);
             reach::check(&factor, width).map_err(|involved| ForecastError::Unreachable {
@@ -211,7 +211,7 @@ impl Plan {
     /// The factor of the model's law (every shock free).
     fn model_factor(&self) -> &Factor {
         self.model
-            .get_or_init(|| Arc::new(Factor::new(&self.shock_rows, None)))
+            .get_or_init(|| Arc::new(Factor::new(&self.shock_rows, None, self.pin_count())))
     }
 
     /// Condition number of `Γ = 𝒢 K⁻¹ 𝒢'` scaled to a unit diagonal (1 for fewer than two
@@ -220,17 +220,20 @@ impl Plan {
         self.model_factor().scaled_condition().0
     }
 
-    /// Estimated acceptance rate of this plan's corridor sampler (at non-driver shocks zero),
-    /// by `n` proposals; `None` without corridors.
-    pub fn acceptance<R: Rng + ?Sized>(
+    /// The acceptance rate of this plan's corridor sampler (at non-driver shocks zero),
+    /// estimated by `n` proposals, when it is below `floor`; `None` when it is not, or
+    /// without corridors. Proposals stop as soon as the estimate cannot fall below `floor`.
+    pub fn acceptance_below<R: Rng + ?Sized>(
         &self,
         rng: &mut R,
         n: usize,
+        floor: f64,
     ) -> Result<Option<f64>, ForecastError> {
         let zeros = vec![0.0; self.nondriver_count()];
-        Ok(self
-            .corridor_probability(&zeros, rng, n)?
-            .map(|p| p.acceptance()))
+        match &self.law {
+            Some(law) => law.acceptance_below(&zeros, rng, n, floor),
+            None => Ok(None),
+        }
     }
 
     /// The corridors of this plan (each once), for messages.
@@ -446,15 +449,13 @@ impl Plan {
         let f = self.model_factor();
         let z = (0..m)
             .map(|i| {
-                let g_ii = f.r.view((0, i), (i + 1, 1)).norm_squared();
                 (
                     self.rows.pin_labels[i].clone(),
-                    self.rtilde[i] / g_ii.sqrt(),
+                    self.rtilde[i] / f.variance(i).sqrt(),
                 )
             })
             .collect();
-        let w = f.rr_solve_transpose(m, &DMatrix::from_column_slice(m, 1, self.rtilde.as_slice()));
-        let d2 = w.norm_squared();
+        let d2 = f.pin_distance(self.rtilde.as_slice());
         (z, if d2.is_finite() { d2 } else { f64::INFINITY })
     }
 
@@ -466,8 +467,7 @@ impl Plan {
         if m == 0 {
             return 0.0;
         }
-        let f = self.model_factor();
-        let logdet: f64 = 2.0 * (0..m).map(|i| f.r[(i, i)].abs().ln()).sum::<f64>();
+        let logdet = self.model_factor().pin_log_det();
         let (_, d2) = self.pin_surprise();
         let jacobian: f64 = self.rows.pin_norms.iter().map(|c| c.ln()).sum();
         let lp = -0.5 * (m as f64 * (2.0 * std::f64::consts::PI).ln() + logdet + d2) - jacobian;
@@ -485,12 +485,10 @@ impl Plan {
         if self.cells.is_none() {
             return Ok(self.law.clone());
         }
-        let m = self.pin_count();
         let f = self.model_factor();
-        let r_ss = f.corridor_block(m);
-        let mean = &self.smean + f.corridor_on_pins(m) * &self.rtilde;
+        let mean = &self.smean + f.corridor_on_pins() * &self.rtilde;
         let rows = law_rows(&self.rows);
-        CorridorLaw::new(r_ss.transpose() * r_ss, mean, None, rows, self.law.as_ref()).map(Some)
+        CorridorLaw::new(f.corridor_covariance(), mean, None, rows, self.law.as_ref()).map(Some)
     }
 
     /// Probability of the corridors under this plan's own law given the non-driver shocks
@@ -514,16 +512,14 @@ impl Plan {
 
     /// The pins-only scenario distribution of the shocks, `ε = μ_ε + (I − U F_R) ε*` with
     /// `ε* ~ N(0, I)`: `U = E_J F_RJ⁺` (every shock free: `U = F_R⁺`) and `μ_ε = U r̃`
-    /// (ALGORITHMS §5.2–5.3). `F_RJ⁺ = Q_1 R_RR⁻ᵀ` from the plan's factor.
+    /// (ALGORITHMS §5.2–5.3). `F_RJ⁺ = Q_R R_RR⁻ᵀ` from the plan's factor.
     pub fn pin_shock_law(&self, theta: &Theta) -> Result<ShockLaw, ForecastError> {
         let big_n = theta.len();
         let m = self.pin_count();
-        let f = &self.factor;
-        let q1 = f.q().columns(0, m).into_owned();
-        let pinv = f.rr_solve(m, &q1.transpose()).transpose();
-        if pinv.iter().any(|x| !x.is_finite()) {
-            return Err(ForecastError::Singular("the pins' shock map F_R".into()));
-        }
+        let pinv = self
+            .factor
+            .pins_pinv()
+            .ok_or_else(|| ForecastError::Singular("the pins' shock map F_R".into()))?;
         let mut u = DMatrix::zeros(big_n, m);
         for k in 0..big_n.min(pinv.nrows()) {
             let c = self
@@ -601,9 +597,8 @@ fn plan_law(
     if q == 0 {
         return Ok(None);
     }
-    let on_pins = factor.corridor_on_pins(m);
-    let r_ss = factor.corridor_block(m);
-    let cov = r_ss.transpose() * r_ss;
+    let on_pins = factor.corridor_on_pins();
+    let cov = factor.corridor_covariance();
     let m0 = smean + &on_pins * rtilde;
     let shift = (!rest.is_empty()).then(|| {
         let f_rest = DMatrix::from_fn(m + q, rest.len(), |i, c| shock_rows[(rest[c], i)]);

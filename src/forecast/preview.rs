@@ -118,8 +118,8 @@ impl Preview {
             }
         };
         let mut rng = stream(self.seed, Purpose::Acceptance, 0);
-        if let Some(acceptance) = plan.acceptance(&mut rng, ACCEPTANCE_PROPOSALS)?
-            && acceptance < how.min_acceptance
+        if let Some(acceptance) =
+            plan.acceptance_below(&mut rng, ACCEPTANCE_PROPOSALS, how.min_acceptance)?
         {
             return Err(ForecastError::TooImprobable {
                 corridors: plan.corridor_names(),

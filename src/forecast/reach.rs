@@ -24,7 +24,7 @@ const INVOLVED: f64 = 1e-3;
 /// Check that `F_J` (its factor, k × k, from `width = max(|J|, k)` columns) has full row rank;
 /// on failure return the rows involved (indices).
 pub fn check(factor: &Factor, width: usize) -> Result<(), Vec<usize>> {
-    let r = &factor.r;
+    let r = factor.r();
     let rows = r.ncols();
     if rows == 0 {
         return Ok(());
@@ -47,6 +47,7 @@ pub fn check(factor: &Factor, width: usize) -> Result<(), Vec<usize>> {
         let v = vt.row(k);
         return Err((0..rows)
             .filter(|&i| v[i].abs() > INVOLVED * v.amax())
+            .map(|p| factor.original(p))
             .collect());
     }
     Ok(())

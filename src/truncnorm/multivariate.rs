@@ -45,6 +45,9 @@ pub struct Probability {
     pub proposals: usize,
 }
 
+/// An optional test that a point (in the variables' own order and scale) must pass.
+pub type Keep<'a> = Option<&'a dyn Fn(&[f64]) -> bool>;
+
 impl Probability {
     /// log10 of the estimate.
     pub fn log10(&self) -> f64 {
@@ -227,10 +230,8 @@ impl TruncatedNormal {
 
     /// The unbiased estimate `ℓ̂` from `n` proposals, with its relative standard error.
     pub fn probability<R: Rng + ?Sized>(&self, rng: &mut R, n: usize) -> Probability {
-        let psi = self.tilt.psi_star;
-        // Terms exp(ψ_i − ψ*) ∈ (0, 1]: no overflow, and the shift cancels in the ratio.
-        let terms = (0..n.max(2)).map(|_| (self.propose(rng, false).1 - psi).exp());
-        summarise(terms.collect(), psi)
+        let terms = (0..n.max(2)).map(|_| self.term(rng, None));
+        summarise(terms.collect(), self.tilt.psi_star)
     }
 
     /// The unbiased estimate of `P(l ≤ X ≤ u, keep(X))`: whole proposals, each term times
@@ -241,16 +242,43 @@ impl TruncatedNormal {
         n: usize,
         keep: impl Fn(&[f64]) -> bool,
     ) -> Probability {
-        let psi = self.tilt.psi_star;
-        let terms = (0..n.max(2)).map(|_| {
-            let (w, lw) = self.propose(rng, true);
-            if keep(&self.order.unscale(&w)) {
-                (lw - psi).exp()
-            } else {
-                0.0
+        let terms = (0..n.max(2)).map(|_| self.term(rng, Some(&keep)));
+        summarise(terms.collect(), self.tilt.psi_star)
+    }
+
+    /// The acceptance rate [`Probability::acceptance`] of the estimate from `n` proposals
+    /// (times `keep`, when given) when it is below `floor`; `None` when it is not. The terms
+    /// `exp(ψ_i − ψ*)` are never negative, so once their running sum reaches `n · floor` the
+    /// rest cannot bring the mean below `floor`: the proposals stop there, and the answer is
+    /// the one all `n` would give.
+    pub fn acceptance_below<R: Rng + ?Sized>(
+        &self,
+        rng: &mut R,
+        n: usize,
+        floor: f64,
+        keep: Keep,
+    ) -> Option<f64> {
+        let n = n.max(2);
+        let mut sum = 0.0;
+        for _ in 0..n {
+            sum += self.term(rng, keep);
+            if sum >= n as f64 * floor {
+                return None;
             }
-        });
-        summarise(terms.collect(), psi)
+        }
+        Some((sum / n as f64).min(1.0))
+    }
+
+    /// One term of the estimates: `exp(ψ(w) − ψ*) ∈ (0, 1]` for a proposal `w` (no overflow,
+    /// and the shift cancels in the ratio), times the indicator of `keep` when given (then
+    /// the whole proposal is drawn).
+    fn term<R: Rng + ?Sized>(&self, rng: &mut R, keep: Keep) -> f64 {
+        let (w, lw) = self.propose(rng, keep.is_some());
+        if keep.is_none_or(|keep| keep(&self.order.unscale(&w))) {
+            (lw - self.tilt.psi_star).exp()
+        } else {
+            0.0
+        }
     }
 }
 
@@ -298,6 +326,51 @@ mod tests {
         match tn.sample(&mut rng, 1000) {
             Err(TruncError::BoundExceeded { by }) => assert!(by > 0.0),
             other => panic!("expected the bound to be exceeded, got {other:?}"),
+        }
+    }
+
+    /// The screen with early stopping answers as the estimate from all `n` proposals does:
+    /// below a floor (then with that estimate) or not, for floors on both sides of it, with
+    /// and without an extra inequality; far above the floor it stops at the first proposal.
+    #[test]
+    fn acceptance_screen_matches_the_full_estimate() {
+        let sigma = DMatrix::from_row_slice(3, 3, &[1.0, 0.5, 0.2, 0.5, 2.0, -0.3, 0.2, -0.3, 1.5]);
+        let (lo, hi) = ([0.2, -1.0, -2.0], [2.0, f64::INFINITY, 0.5]);
+        let tn = TruncatedNormal::new(&sigma, &lo, &hi).unwrap();
+        let half = |x: &[f64]| x[0] + x[2] > 0.0;
+        let n = 16;
+        for keep in [None, Some(&half as &dyn Fn(&[f64]) -> bool)] {
+            let full = |seed| {
+                let mut rng = ChaCha8Rng::seed_from_u64(seed);
+                match keep {
+                    None => tn.probability(&mut rng, n).acceptance(),
+                    Some(k) => tn.probability_where(&mut rng, n, k).acceptance(),
+                }
+            };
+            for seed in 0..20 {
+                let a = full(seed);
+                for floor in [a * 0.999, a * 1.001, 1e-5, 0.999] {
+                    let mut rng = ChaCha8Rng::seed_from_u64(seed);
+                    let got = tn.acceptance_below(&mut rng, n, floor, keep);
+                    match got {
+                        Some(b) => {
+                            assert!(a < floor, "seed {seed}: below {floor} though {a}");
+                            assert!((a - b).abs() <= 1e-12 * a, "{a} against {b}");
+                        }
+                        None => assert!(a >= floor, "seed {seed}: not below {floor} though {a}"),
+                    }
+                }
+                // Far above the floor: one proposal, so the stream is where one term leaves it.
+                let (mut once, mut screen) = (
+                    ChaCha8Rng::seed_from_u64(seed),
+                    ChaCha8Rng::seed_from_u64(seed),
+                );
+                let first = tn.term(&mut once, keep);
+                if first >= n as f64 * 1e-5 {
+                    assert!(tn.acceptance_below(&mut screen, n, 1e-5, keep).is_none());
+                    assert_eq!(once.get_word_pos(), screen.get_word_pos());
+                }
+            }
         }
     }
 
