@@ -370,6 +370,8 @@ fn child_frames(args: &[&str]) -> String {
 }
 
 fn child(case: &str) {
+    // As the program does at start.
+    tiltyard::keep_freed_memory();
     let parts: Vec<&str> = case.split(':').collect();
     let out = match parts[0] {
         "run" => child_run(&parts[1..]),

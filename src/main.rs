@@ -189,6 +189,7 @@ enum Outcome {
 }
 
 fn main() -> ExitCode {
+    tiltyard::keep_freed_memory();
     let cli = Cli::parse();
     let result = match cli.command {
         Some(Command::Run {

@@ -465,6 +465,7 @@ fn probabilities(
         }
     };
     let (mut at, mut any) = (0usize, 0usize);
+    plan.expect_paths(theta, refs.len());
     for drawn in plan.sample_many(theta, &mut refs) {
         let (y, _) = drawn?;
         let all_at = outcomes.iter().zip(chosen).all(|(o, p)| happens(o, p, &y));

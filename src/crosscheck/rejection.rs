@@ -32,8 +32,11 @@ impl RejectionPlan {
             corridors: Vec::new(),
             ..cond.clone()
         };
+        let pins = Plan::new(theta, &pins_only, draw)?;
+        // Every proposal is a pinned path: up to `cap` a path.
+        pins.expect_paths(theta, cap);
         Ok(RejectionPlan {
-            pins: Plan::new(theta, &pins_only, draw)?,
+            pins,
             rows,
             cap,
             draw,

@@ -598,6 +598,7 @@ fn plan_for(
         Some(rows) => Plan::with_rows(theta, rows.clone(), cond, draw, shared.law),
         None => Plan::with_rows(theta, Rows::new(theta, cond, draw)?, cond, draw, shared.law),
     }?;
+    plan.expect_paths(theta, how.paths_per_theta);
     // Fail fast, naming the draw, rather than spend the path budget on a hopeless θ.
     let mut rng = stream(how.seed, Purpose::Acceptance, i as u64);
     if let Some(acceptance) =

@@ -36,8 +36,6 @@ pub struct Factor {
     /// `U = R S⁻¹` (unit-norm columns) and `U⁻¹` (none when `U` is singular).
     u: DMatrix<f64>,
     u_inv: Option<DMatrix<f64>>,
-    /// `R_2⁻¹ U⁻ᵀ` (k × k; none when `U` is singular): `F_J⁺ = Q_1 (R_2⁻¹ U⁻ᵀ) S⁻¹`.
-    inner: Option<DMatrix<f64>>,
     /// `S`, the column norms of `F_J'` (and of `R`), permuted.
     scale: Vec<f64>,
     places: Places,
@@ -187,21 +185,21 @@ impl Factor {
 
     /// Whether `F_J⁺` exists (`U` is invertible).
     pub fn invertible(&self) -> bool {
-        self.inner.is_some()
+        self.u_inv.is_some()
     }
 
-    /// `F_J⁺ D = Q R⁻ᵀ D = Q_1 (R_2⁻¹ U⁻ᵀ) S⁻¹ D` (|J| × c) for `D` (k × c): products of size
+    /// `F_J⁺ D = Q R⁻ᵀ D = Q_1 R_2⁻¹ U⁻ᵀ S⁻¹ D` (|J| × c) for `D` (k × c): products of size
     /// |J| × k × c and k × k × c, so that a few columns never pay for `F_J⁺` itself. NaN when
     /// `U` is singular (see [`Factor::invertible`]).
     pub fn pinv_times(&self, d: &DMatrix<f64>) -> DMatrix<f64> {
-        let Some(inner) = &self.inner else {
+        let Some(u_inv) = &self.u_inv else {
             return DMatrix::from_element(self.q1.nrows(), d.ncols(), f64::NAN);
         };
         let mut scaled = DMatrix::zeros(d.nrows(), d.ncols());
         for (p, (&c, s)) in self.places.order.iter().zip(&self.scale).enumerate() {
             scaled.row_mut(p).copy_from(&(d.row(c) / *s));
         }
-        &self.q1 * (inner * scaled)
+        &self.q1 * (&self.r2_inv * u_inv.tr_mul(&scaled))
     }
 
     /// `‖U‖_F ‖U⁻¹‖_F ≥ cond₂(U)` (at most `k` times too large): a screen that spares the
@@ -283,16 +281,14 @@ fn cholesky_qr2(fjt: &DMatrix<f64>, reach: &[usize], places: &Places) -> Option<
     let q1 = times_upper(&a, &r1_inv, &reach_q);
     let r2 = gram(&q1, &reach_q).cholesky()?.l().transpose();
     let r2_inv = upper_inverse(&r2)?;
-    let u = &r2 * r1;
-    let u_inv = r1_inv * &r2_inv;
-    let inner = Some(&r2_inv * u_inv.transpose());
+    let u = upper_times_upper(&r2, &r1);
+    let u_inv = upper_times_upper(&r1_inv, &r2_inv);
     Some(Factor {
         r: with_scale(&u, &scale),
         q1,
         r2_inv,
         u,
         u_inv: Some(u_inv),
-        inner,
         scale,
         places: places.clone(),
     })
@@ -362,7 +358,6 @@ fn householder(fjt: DMatrix<f64>, places: Places) -> Factor {
     Factor {
         q1: qr.q(),
         r2_inv: DMatrix::identity(k, k),
-        inner: u_inv.as_ref().map(|inv| inv.transpose()),
         u_inv,
         u,
         r,
@@ -377,6 +372,24 @@ fn with_scale(u: &DMatrix<f64>, scale: &[f64]) -> DMatrix<f64> {
         col.scale_mut(*s);
     }
     r
+}
+
+/// `A B` for upper-triangular `A` and `B` (k × k), upper triangular: column j is the
+/// columns `l ≤ j` of `A` (their rows up to `l`) times `B_lj`, `k³/6` multiply–adds.
+fn upper_times_upper(a: &DMatrix<f64>, b: &DMatrix<f64>) -> DMatrix<f64> {
+    let k = a.nrows();
+    let mut out = DMatrix::zeros(k, k);
+    for j in 0..k {
+        let col = out.column_mut(j).data.into_slice_mut();
+        for l in 0..=j {
+            let blj = b[(l, j)];
+            let acol = &a.column(l).data.into_slice()[..=l];
+            for (o, al) in col.iter_mut().zip(acol) {
+                *o += al * blj;
+            }
+        }
+    }
+    out
 }
 
 /// `U⁻¹` for an upper-triangular `U` by back substitution, column by column (`k³/6`
@@ -558,6 +571,8 @@ mod tests {
         });
         let x = upper_inverse(&u).unwrap();
         assert!((&u * &x - DMatrix::identity(k, k)).amax() < 1e-12);
+        assert!((upper_times_upper(&u, &x) - &u * &x).amax() < 1e-12);
+        assert!((upper_times_upper(&x, &u) - &x * &u).amax() < 1e-12);
         let mut singular = u.clone();
         singular[(3, 3)] = 0.0;
         assert!(upper_inverse(&singular).is_none());

@@ -12,7 +12,7 @@
 //! - `F_J⁺ = Q R⁻ᵀ`; the gain `W = M E_J F_J⁺` (N × k) moves only driver shocks. It is
 //!   applied to a few columns (one path of a posterior draw, the conditions' parts) as
 //!   `M E_J (F_J⁺ D)` — a product with `Q` and one forward recursion a column — and formed
-//!   only for a block of at least k columns, where forming it costs no more than that;
+//!   only for a plan that serves at least k paths, where forming it costs no more than that;
 //! - with `R = [[R_RR, R_RS], [0, R_SS]]`, the corridor quantities `z = S y` given the pins
 //!   and the non-driver shocks `ε*_J̄` are Gaussian with mean
 //!   `Sμ + R_RS'R_RR⁻ᵀ r̃ + (F_SJ̄ − R_RS'R_RR⁻ᵀ F_RJ̄) ε*_J̄` and covariance `R_SS'R_SS`
@@ -82,7 +82,7 @@ pub struct Plan {
     factor: Arc<Factor>,
     /// QR of `F'` (every shock free), the same as `factor` without drivers.
     model: OnceLock<Arc<Factor>>,
-    /// `W = M E_J F_J⁺` (N × k), formed when first needed for a block of at least k columns.
+    /// `W = M E_J F_J⁺` (N × k), formed for a plan that serves at least k paths.
     gain: OnceLock<DMatrix<f64>>,
     /// The corridor quantities' law under this plan's drivers (none without corridors).
     law: Option<CorridorLaw>,
@@ -334,19 +334,27 @@ impl Plan {
         y
     }
 
-    /// `W D = M E_J F_J⁺ D` (N × c) for departures `D` (k × c) of the rows from `𝒢y`: the
-    /// paths' moves that meet them. A block of at least k columns goes through `W` (formed
-    /// once: k forward recursions and a product of size |J| × k × k, no more than the block's
-    /// own recursions would cost); fewer go through the factor, one recursion a column. The
-    /// route depends on the block's width alone, so a path does not depend on the threads.
-    pub fn shift(&self, theta: &Theta, d: &DMatrix<f64>) -> DMatrix<f64> {
-        if d.ncols() >= d.nrows() {
-            let w = self.gain.get_or_init(|| {
-                let k = self.stacked.nrows();
+    /// Prepare for `paths` paths: at least k of them form the gain `W` once (k forward
+    /// recursions and a product of size |J| × k × k, no more than the paths' own corrections
+    /// through the factor would cost), kept by [`Plan::revalue`] for edits of values. Called
+    /// before any path is drawn, so that every path of a plan takes the same route whatever
+    /// the threads.
+    pub fn expect_paths(&self, theta: &Theta, paths: usize) {
+        let k = self.stacked.nrows();
+        if paths >= k {
+            self.gain.get_or_init(|| {
                 let mut w = self.shock_shift(&DMatrix::identity(k, k));
                 theta.shocks_to_paths(&mut w);
                 w
             });
+        }
+    }
+
+    /// `W D = M E_J F_J⁺ D` (N × c) for departures `D` (k × c) of the rows from `𝒢y`: the
+    /// paths' moves that meet them. Through `W` when [`Plan::expect_paths`] formed it,
+    /// otherwise through the factor, one forward recursion a column.
+    pub fn shift(&self, theta: &Theta, d: &DMatrix<f64>) -> DMatrix<f64> {
+        if let Some(w) = self.gain.get() {
             return mul(w, d);
         }
         let mut e = self.shock_shift(d);

@@ -117,6 +117,7 @@ impl Preview {
                 (plan, gy)
             }
         };
+        plan.expect_paths(&self.theta, self.ystar.ncols());
         let mut rng = stream(self.seed, Purpose::Acceptance, 0);
         if let Some(acceptance) =
             plan.acceptance_below(&mut rng, ACCEPTANCE_PROPOSALS, how.min_acceptance)?
