@@ -246,20 +246,24 @@ impl Theta {
             .collect())
     }
 
-    /// `M⁻¹ D` for departures `D = y − μ` in the columns: `ε_t = L⁻¹ (d_t − Σ_j B_j d_{t−j})`.
+    /// `M⁻¹ D` for departures `D = y − μ` in the columns: `ε_t = L⁻¹ (d_t − Σ_j B_j d_{t−j})`,
+    /// every period and column solved with one LU factor of `L` (the blocks `u_t` of a column
+    /// lie one after another, so the columns are read as `n × (h·c)` right-hand sides).
     pub fn shocks_from_departures(&self, d: &DMatrix<f64>) -> Result<DMatrix<f64>, ForecastError> {
         let n = self.n();
-        let linv = self.impact_inverse()?;
-        let mut eps = d.clone();
+        let mut u = d.clone();
         for t in 0..self.h {
-            let mut u = d.rows(t * n, n).into_owned();
             for (j, b) in self.lags.iter().enumerate() {
                 let Some(s) = t.checked_sub(j + 1) else { break };
-                u.gemm(-1.0, b, &d.rows(s * n, n), 1.0);
+                u.rows_mut(t * n, n).gemm(-1.0, b, &d.rows(s * n, n), 1.0);
             }
-            eps.rows_mut(t * n, n).copy_from(&(&linv * u));
         }
-        Ok(eps)
+        let (rows, cols) = u.shape();
+        let mut blocks = DMatrix::from_vec(n, rows / n.max(1) * cols, u.data.into());
+        if !self.impact.clone().lu().solve_mut(&mut blocks) {
+            return Err(ForecastError::Singular("the impact matrix L".into()));
+        }
+        Ok(DMatrix::from_vec(rows, cols, blocks.data.into()))
     }
 
     /// The path row of a shock cell: `ρ' = e'(I ⊗ L⁻¹) H`, so that `ε_{j,t} = ρ'(y − μ)`.

@@ -16,6 +16,7 @@ use rand::Rng;
 use rand_distr::{ChiSquared, Distribution, StandardNormal};
 
 use super::{ModelError, Params, prior::PriorMoments};
+use crate::forecast::product::upper_times;
 
 /// Posterior of `(B, Σ)`: everything needed for draws and for the marginal likelihood.
 #[derive(Debug, Clone)]
@@ -103,7 +104,7 @@ impl Posterior {
             })
             .as_ref()
             .ok_or(ModelError::Collinear)?;
-        let shift = r_x_inv * (z * &lambda_t);
+        let shift = upper_times(r_x_inv, &(z * &lambda_t));
         Ok(Params::from_stacked(&(&self.b_bar + shift), sigma))
     }
 }
