@@ -8,7 +8,9 @@
 //! unbiased estimate `ℓ̂ = mean exp(ψ(w))`, and `e^{ψ*}` is a deterministic upper bound on `ℓ`.
 
 use nalgebra::{DMatrix, DVector};
-use rand::Rng;
+use rand::{Rng, SeedableRng};
+use rand_chacha::ChaCha8Rng;
+use rayon::prelude::*;
 
 use super::{
     TruncError,
@@ -47,6 +49,12 @@ pub struct Probability {
 
 /// An optional test that a point (in the variables' own order and scale) must pass.
 pub type Keep<'a> = Option<&'a dyn Fn(&[f64]) -> bool>;
+
+/// [`Keep`] for tests shared by the threads of an estimate.
+type SyncKeep<'a> = Option<&'a (dyn Fn(&[f64]) -> bool + Sync)>;
+
+/// Proposals per block of an estimate ([`TruncatedNormal::probability`]).
+const TERM_BLOCK: usize = 250;
 
 impl Probability {
     /// log10 of the estimate.
@@ -230,8 +238,7 @@ impl TruncatedNormal {
 
     /// The unbiased estimate `ℓ̂` from `n` proposals, with its relative standard error.
     pub fn probability<R: Rng + ?Sized>(&self, rng: &mut R, n: usize) -> Probability {
-        let terms = (0..n.max(2)).map(|_| self.term(rng, None));
-        summarise(terms.collect(), self.tilt.psi_star)
+        summarise(self.terms(rng, n, None), self.tilt.psi_star)
     }
 
     /// The unbiased estimate of `P(l ≤ X ≤ u, keep(X))`: whole proposals, each term times
@@ -240,10 +247,28 @@ impl TruncatedNormal {
         &self,
         rng: &mut R,
         n: usize,
-        keep: impl Fn(&[f64]) -> bool,
+        keep: impl Fn(&[f64]) -> bool + Sync,
     ) -> Probability {
-        let terms = (0..n.max(2)).map(|_| self.term(rng, Some(&keep)));
-        summarise(terms.collect(), self.tilt.psi_star)
+        summarise(self.terms(rng, n, Some(&keep)), self.tilt.psi_star)
+    }
+
+    /// `max(n, 2)` terms of the estimates, in blocks of [`TERM_BLOCK`] proposals drawn on the
+    /// threads there are: each block from its own stream, seeded in order from `rng`, so the
+    /// terms do not depend on the threads.
+    fn terms<R: Rng + ?Sized>(&self, rng: &mut R, n: usize, keep: SyncKeep) -> Vec<f64> {
+        let n = n.max(2);
+        let seeds: Vec<u64> = (0..n.div_ceil(TERM_BLOCK)).map(|_| rng.random()).collect();
+        seeds
+            .par_iter()
+            .enumerate()
+            .flat_map_iter(|(b, &seed)| {
+                let mut stream = ChaCha8Rng::seed_from_u64(seed);
+                let count = TERM_BLOCK.min(n - b * TERM_BLOCK);
+                (0..count)
+                    .map(|_| self.term(&mut stream, keep.map(|k| k as &dyn Fn(&[f64]) -> bool)))
+                    .collect::<Vec<_>>()
+            })
+            .collect()
     }
 
     /// The acceptance rate [`Probability::acceptance`] of the estimate from `n` proposals
@@ -329,7 +354,31 @@ mod tests {
         }
     }
 
-    /// The screen with early stopping answers as the estimate from all `n` proposals does:
+    /// The estimate's blocks run on the threads there are and give the same terms whatever
+    /// their number (each block its own stream, seeded in order).
+    #[test]
+    fn the_estimate_does_not_depend_on_the_threads() {
+        let sigma = DMatrix::from_row_slice(3, 3, &[1.0, 0.5, 0.2, 0.5, 2.0, -0.3, 0.2, -0.3, 1.5]);
+        let tn =
+            TruncatedNormal::new(&sigma, &[0.2, -1.0, -2.0], &[2.0, f64::INFINITY, 0.5]).unwrap();
+        let with = |threads: usize| {
+            let pool = rayon::ThreadPoolBuilder::new()
+                .num_threads(threads)
+                .build()
+                .unwrap();
+            pool.install(|| {
+                let mut rng = ChaCha8Rng::seed_from_u64(9);
+                let p = tn.probability(&mut rng, 1_001);
+                (p.ln, p.rel_err, p.proposals)
+            })
+        };
+        let one = with(1);
+        assert_eq!(one.2, 1_001);
+        assert_eq!(one, with(2));
+        assert_eq!(one, with(3));
+    }
+
+    /// The screen with early stopping answers as the mean of all its `n` terms does:
     /// below a floor (then with that estimate) or not, for floors on both sides of it, with
     /// and without an extra inequality; far above the floor it stops at the first proposal.
     #[test]
@@ -340,12 +389,11 @@ mod tests {
         let half = |x: &[f64]| x[0] + x[2] > 0.0;
         let n = 16;
         for keep in [None, Some(&half as &dyn Fn(&[f64]) -> bool)] {
+            // The mean of all n terms of one stream.
             let full = |seed| {
                 let mut rng = ChaCha8Rng::seed_from_u64(seed);
-                match keep {
-                    None => tn.probability(&mut rng, n).acceptance(),
-                    Some(k) => tn.probability_where(&mut rng, n, k).acceptance(),
-                }
+                let sum: f64 = (0..n).map(|_| tn.term(&mut rng, keep)).sum();
+                (sum / n as f64).min(1.0)
             };
             for seed in 0..20 {
                 let a = full(seed);
