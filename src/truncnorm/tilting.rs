@@ -91,23 +91,34 @@ fn evaluate(o: &Ordered, lo: &[f64], hi: &[f64], v: &DVector<f64>) -> Eval {
     Eval { psi, grad, var }
 }
 
-/// The full Hessian `J` of `ψ` in `v = (x, μ)`.
+/// `W'W = −U_xx = −[L̃'ΔL̃]₁₁` with `W = diag(√−Δ) L̃[:, :m]` (−1 < Δ ≤ 0), as one matrix
+/// product: the x block of the Hessian, negated.
+fn minus_xx(o: &Ordered, var: &[f64]) -> DMatrix<f64> {
+    let (d, m) = (o.dim(), o.dim() - 1);
+    let w = DMatrix::from_fn(d, m, |k, a| (1.0 - var[k]).max(0.0).sqrt() * o.lt[(k, a)]);
+    w.transpose() * &w
+}
+
+/// `U_μx = [ΔL̃ − I]₁₁` (m × m, lower triangular with −1 on the diagonal).
+fn mu_x(o: &Ordered, var: &[f64]) -> DMatrix<f64> {
+    let m = o.dim() - 1;
+    DMatrix::from_fn(m, m, |k, c| match c.cmp(&k) {
+        std::cmp::Ordering::Less => (var[k] - 1.0) * o.lt[(k, c)],
+        std::cmp::Ordering::Equal => -1.0,
+        std::cmp::Ordering::Greater => 0.0,
+    })
+}
+
+/// The full Hessian `J` of `ψ` in `v = (x, μ)`, from its blocks (for the LU and
+/// Levenberg–Marquardt routes; Newton's usual route needs the blocks alone).
 fn hessian(o: &Ordered, var: &[f64]) -> DMatrix<f64> {
-    let d = o.dim();
-    let m = d - 1;
-    let delta: Vec<f64> = var.iter().map(|v| v - 1.0).collect();
+    let m = o.dim() - 1;
     let mut j = DMatrix::zeros(2 * m, 2 * m);
-    // [L̃'ΔL̃]₁₁ = −W'W with W = diag(√−Δ) L̃[:, :m] (−1 < Δ ≤ 0), as one matrix product.
-    let w = DMatrix::from_fn(d, m, |k, a| (-delta[k]).max(0.0).sqrt() * o.lt[(k, a)]);
-    j.view_mut((0, 0), (m, m))
-        .copy_from(&(-(w.transpose() * &w)));
+    j.view_mut((0, 0), (m, m)).copy_from(&(-minus_xx(o, var)));
+    let umx = mu_x(o, var);
+    j.view_mut((m, 0), (m, m)).copy_from(&umx);
+    j.view_mut((0, m), (m, m)).copy_from(&umx.transpose());
     for k in 0..m {
-        for c in 0..m {
-            let off = if c < k { delta[k] * o.lt[(k, c)] } else { 0.0 };
-            let u = if c == k { off - 1.0 } else { off };
-            j[(m + k, c)] = u;
-            j[(c, m + k)] = u;
-        }
         j[(m + k, m + k)] = var[k];
     }
     j
@@ -117,16 +128,15 @@ fn hessian(o: &Ordered, var: &[f64]) -> DMatrix<f64> {
 /// (`(U_μx' U_μμ⁻¹ U_μx − U_xx) δ_x = g_x − U_μx' U_μμ⁻¹ g_μ`, SPD), else LU of `J`.
 fn newton_direction(o: &Ordered, e: &Eval) -> Option<DVector<f64>> {
     let m = o.dim() - 1;
-    let jac = hessian(o, &e.var);
     if e.var[..m].iter().all(|&v| v > NARROW) {
-        let uxx = jac.view((0, 0), (m, m));
-        let umx = jac.view((m, 0), (m, m));
+        let umx = mu_x(o, &e.var);
         let inv: Vec<f64> = e.var[..m].iter().map(|v| 1.0 / v).collect();
         let scaled = DMatrix::from_fn(m, m, |k, c| inv[k] * umx[(k, c)]);
-        let schur = umx.transpose() * &scaled - uxx;
+        let umx_t = umx.transpose();
+        let schur = &umx_t * &scaled + minus_xx(o, &e.var);
         let (gx, gm) = (e.grad.rows(0, m), e.grad.rows(m, m));
         let gm_scaled = DVector::from_fn(m, |k, _| inv[k] * gm[k]);
-        let rhs = gx - umx.transpose() * &gm_scaled;
+        let rhs = gx - &umx_t * &gm_scaled;
         if let Some(chol) = schur.cholesky() {
             let dx = chol.solve(&rhs);
             let dm = -(gm_scaled + &scaled * &dx);
@@ -136,7 +146,7 @@ fn newton_direction(o: &Ordered, e: &Eval) -> Option<DVector<f64>> {
             return Some(step);
         }
     }
-    jac.lu().solve(&(-&e.grad))
+    hessian(o, &e.var).lu().solve(&(-&e.grad))
 }
 
 fn half_sq(g: &DVector<f64>) -> f64 {
@@ -243,14 +253,19 @@ fn finish(o: &Ordered, lo: &[f64], hi: &[f64], mut v: DVector<f64>, iterations: 
     let mut promise = 0.0;
     for _ in 0..POLISH_ITERATIONS {
         let gx = e.grad.rows(0, m).into_owned();
-        let neg = -hessian(o, &e.var).view((0, 0), (m, m)).into_owned();
+        let neg = minus_xx(o, &e.var);
         let ridge = 1e-12 * (1.0 + neg.diagonal().amax());
         let Some(chol) = (neg + DMatrix::identity(m, m) * ridge).cholesky() else {
             break;
         };
         let step = chol.solve(&gx);
         promise = 0.5 * gx.dot(&step);
-        if promise.is_nan() || promise <= 0.0 || gx.amax() <= GRAD_TOL * 1e-2 {
+        // A gain below the rounding of ψ cannot be seen by comparing ψ: stop rather than
+        // halve the step twenty times (the promise stays in the allowance below).
+        if promise.is_nan()
+            || promise <= PSI_ALLOWANCE * (1.0 + e.psi.abs())
+            || gx.amax() <= GRAD_TOL * 1e-2
+        {
             break;
         }
         let mut t = 1.0;
