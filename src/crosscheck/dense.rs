@@ -17,11 +17,7 @@ use rand::Rng;
 use rand_distr::{Distribution, StandardNormal};
 
 use crate::forecast::{
-    ForecastError, Theta,
-    conditions::Conditions,
-    corridor::{CorridorLaw, LawRows},
-    plan::Drawn,
-    product::mul,
+    ForecastError, Theta, conditions::Conditions, corridor::CorridorLaw, plan::Drawn, product::mul,
     rows::Rows,
 };
 
@@ -62,16 +58,6 @@ fn pinv(a: &DMatrix<f64>) -> Result<DMatrix<f64>, ForecastError> {
 
 fn columns(f: &DMatrix<f64>, cols: &[usize]) -> DMatrix<f64> {
     DMatrix::from_fn(f.nrows(), cols.len(), |i, k| f[(i, cols[k])])
-}
-
-fn law_rows(rows: &Rows) -> LawRows {
-    LawRows {
-        lower: rows.lower.clone(),
-        upper: rows.upper.clone(),
-        extra: rows.extra.clone(),
-        labels: rows.corridor_labels.clone(),
-        names: rows.corridor_names.clone(),
-    }
 }
 
 impl DensePlan {
@@ -127,7 +113,7 @@ impl DensePlan {
                             let solved = c.solve(&gsr.transpose());
                             (&smean + solved.transpose() * &rtilde, gss - &gsr * solved)
                         };
-                        CorridorLaw::new(cov, law_mean, None, law_rows(&rows), None)
+                        CorridorLaw::new(cov, law_mean, None, rows.law_rows(), None)
                     })
                     .transpose()?;
                 (Route::Free { chol, w }, law)
@@ -148,7 +134,7 @@ impl DensePlan {
                         let cov = &fsj * fsj.transpose() - &fsj_pr * (&frj * fsj.transpose());
                         let m0 = &smean + &fsj_pr * &rtilde;
                         let shift = fs_rest - &fsj_pr * fr_rest;
-                        CorridorLaw::new(cov, m0, Some(shift), law_rows(&rows), None)
+                        CorridorLaw::new(cov, m0, Some(shift), rows.law_rows(), None)
                     })
                     .transpose()?;
                 let route = Route::Drivers {

@@ -12,6 +12,8 @@ pub mod dense;
 pub mod kalman;
 pub mod rejection;
 
+use std::sync::Arc;
+
 use rand::Rng;
 
 use crate::forecast::{ForecastError, Plan, Theta, conditions::Conditions, rows::Rows};
@@ -64,9 +66,13 @@ impl Conditioner {
         draw: Option<usize>,
     ) -> Result<Conditioner, ForecastError> {
         Ok(match kind {
-            EngineKind::Main => {
-                Conditioner::Main(Box::new(Plan::with_rows(theta, rows, cond, draw, None)?))
-            }
+            EngineKind::Main => Conditioner::Main(Box::new(Plan::with_rows(
+                theta,
+                Arc::new(rows),
+                cond,
+                draw,
+                None,
+            )?)),
             EngineKind::Dense => {
                 Conditioner::Dense(Box::new(dense::DensePlan::new(theta, rows, cond, draw)?))
             }

@@ -7,7 +7,7 @@
 //! path, and the saddle point is solved again for the shifted box (warm-started, same variable
 //! order). Draws come from [`crate::truncnorm::TruncatedNormal`], so they are exact.
 
-use std::borrow::Cow;
+use std::{borrow::Cow, sync::Arc};
 
 use nalgebra::{DMatrix, DVector};
 use rand::Rng;
@@ -27,20 +27,18 @@ fn budget(d: usize) -> usize {
 
 #[derive(Debug, Clone)]
 pub struct CorridorLaw {
-    lower: DVector<f64>,
-    upper: DVector<f64>,
+    /// Bounds `a`, `b`, extra inequalities, labels: the same for every θ of a run.
+    rows: Arc<LawRows>,
     /// `m₀` and `A` (q × |J̄|, drivers only).
     mean: DVector<f64>,
     shift: Option<DMatrix<f64>>,
     /// The truncated normal at mean `m₀`.
     base: TruncatedNormal,
-    extra: Vec<Extra>,
-    /// Label of each row, and the corridors they belong to (each once).
-    labels: Vec<String>,
-    names: Vec<String>,
 }
 
-/// The rows of a corridor law: bounds, extra inequalities, and each row's label and corridor.
+/// The rows of a corridor law: bounds, extra inequalities, each row's label, and the
+/// corridors they belong to (each once).
+#[derive(Debug)]
 pub struct LawRows {
     pub lower: DVector<f64>,
     pub upper: DVector<f64>,
@@ -54,15 +52,9 @@ impl CorridorLaw {
         cov: DMatrix<f64>,
         mean: DVector<f64>,
         shift: Option<DMatrix<f64>>,
-        rows: LawRows,
+        rows: Arc<LawRows>,
         like: Option<&CorridorLaw>,
     ) -> Result<CorridorLaw, ForecastError> {
-        let mut names: Vec<String> = Vec::new();
-        for n in rows.names {
-            if !names.contains(&n) {
-                names.push(n);
-            }
-        }
         let sym = (&cov + cov.transpose()) * 0.5;
         let lo: Vec<f64> = (0..mean.len()).map(|i| rows.lower[i] - mean[i]).collect();
         let hi: Vec<f64> = (0..mean.len()).map(|i| rows.upper[i] - mean[i]).collect();
@@ -72,16 +64,12 @@ impl CorridorLaw {
             .filter(|l| l.mean.len() == mean.len())
             .and_then(|l| l.base.like(&sym, &lo, &hi).ok())
             .map_or_else(|| TruncatedNormal::new(&sym, &lo, &hi), Ok)
-            .map_err(|e| explain(e, &rows.labels, &names, None))?;
+            .map_err(|e| explain(e, &rows.labels, &rows.names, None))?;
         Ok(CorridorLaw {
-            lower: rows.lower,
-            upper: rows.upper,
+            rows,
             mean,
             shift,
             base,
-            extra: rows.extra,
-            labels: rows.labels,
-            names,
         })
     }
 
@@ -94,8 +82,12 @@ impl CorridorLaw {
             return Ok((Cow::Borrowed(&self.base), Cow::Borrowed(&self.mean)));
         };
         let mean = &self.mean + a * DVector::from_column_slice(nondrivers);
-        let lo: Vec<f64> = (0..mean.len()).map(|i| self.lower[i] - mean[i]).collect();
-        let hi: Vec<f64> = (0..mean.len()).map(|i| self.upper[i] - mean[i]).collect();
+        let lo: Vec<f64> = (0..mean.len())
+            .map(|i| self.rows.lower[i] - mean[i])
+            .collect();
+        let hi: Vec<f64> = (0..mean.len())
+            .map(|i| self.rows.upper[i] - mean[i])
+            .collect();
         Ok((
             Cow::Owned(self.base.with_bounds(&lo, &hi)?),
             Cow::Owned(mean),
@@ -109,12 +101,12 @@ impl CorridorLaw {
         rng: &mut R,
         draw: Option<usize>,
     ) -> Result<DVector<f64>, ForecastError> {
-        let fail = |e| explain(e, &self.labels, &self.names, draw);
+        let fail = |e| explain(e, &self.rows.labels, &self.rows.names, draw);
         let (tn, mean) = self.at(nondrivers).map_err(fail)?;
         // With extra inequalities, each accepted box draw is kept only inside them.
         let keep = |x: &[f64]| {
             let z = mean.as_ref() + DVector::from_column_slice(x);
-            self.extra.iter().all(|e| e.holds(&z))
+            self.rows.extra.iter().all(|e| e.holds(&z))
         };
         let x = tn
             .sample_where(rng, budget(self.mean.len()), keep)
@@ -132,13 +124,13 @@ impl CorridorLaw {
     ) -> Result<Probability, ForecastError> {
         let (tn, mean) = self
             .at(nondrivers)
-            .map_err(|e| explain(e, &self.labels, &self.names, None))?;
-        if self.extra.is_empty() {
+            .map_err(|e| explain(e, &self.rows.labels, &self.rows.names, None))?;
+        if self.rows.extra.is_empty() {
             return Ok(tn.probability(rng, n));
         }
         Ok(tn.probability_where(rng, n, |x| {
             let z = mean.as_ref() + DVector::from_column_slice(x);
-            self.extra.iter().all(|e| e.holds(&z))
+            self.rows.extra.iter().all(|e| e.holds(&z))
         }))
     }
 
@@ -154,12 +146,12 @@ impl CorridorLaw {
     ) -> Result<Option<f64>, ForecastError> {
         let (tn, mean) = self
             .at(nondrivers)
-            .map_err(|e| explain(e, &self.labels, &self.names, None))?;
+            .map_err(|e| explain(e, &self.rows.labels, &self.rows.names, None))?;
         let keep = |x: &[f64]| {
             let z = mean.as_ref() + DVector::from_column_slice(x);
-            self.extra.iter().all(|e| e.holds(&z))
+            self.rows.extra.iter().all(|e| e.holds(&z))
         };
-        let keep: Keep = (!self.extra.is_empty()).then_some(&keep);
+        let keep: Keep = (!self.rows.extra.is_empty()).then_some(&keep);
         Ok(tn.acceptance_below(rng, n, floor, keep))
     }
 
@@ -170,7 +162,7 @@ impl CorridorLaw {
 
     /// The corridors of this law (each once), for messages.
     pub fn names(&self) -> &[String] {
-        &self.names
+        &self.rows.names
     }
 }
 

@@ -10,7 +10,10 @@
 //! set aside and counted, not allowed to stop the run: [`PathSet::failures`] says which and
 //! why, and [`PathSet::within`] fails the run only past the share the scenario allows.
 
-use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::{
+    Arc,
+    atomic::{AtomicBool, Ordering},
+};
 
 use rayon::prelude::*;
 
@@ -435,7 +438,7 @@ pub fn sample_paths(
 ) -> Result<PathSet, ForecastError> {
     // Conditions on observables make the same rows under every θ: make them once.
     let shared = match (cond.on_shocks(), set.thetas.get(range.start)) {
-        (false, Some(theta)) => Some(Rows::new(theta, cond, None)?),
+        (false, Some(theta)) => Some(Arc::new(Rows::new(theta, cond, None)?)),
         _ => None,
     };
     // Every θ's corridor law is laid out like the first θ's (the order of its variables only
@@ -469,7 +472,7 @@ pub fn sample_paths(
 /// What every θ's plan starts from: the rows (when they do not depend on θ) and a corridor
 /// law to lay its own out like.
 struct Shared<'a> {
-    rows: Option<&'a Rows>,
+    rows: Option<&'a Arc<Rows>>,
     law: Option<&'a CorridorLaw>,
 }
 
@@ -506,7 +509,7 @@ fn one_theta(
         }),
         other => shared
             .rows
-            .map_or_else(|| Rows::new(theta, cond, draw), |r| Ok(r.clone()))
+            .map_or_else(|| Rows::new(theta, cond, draw), |r| Ok(Rows::clone(r)))
             .and_then(|rows| Conditioner::cross_check(other, theta, rows, cond, draw))
             .map(|c| (c, None)),
     }
@@ -596,7 +599,10 @@ fn plan_for(
 ) -> Result<(Plan, Option<f64>), ForecastError> {
     let plan = match shared.rows {
         Some(rows) => Plan::with_rows(theta, rows.clone(), cond, draw, shared.law),
-        None => Plan::with_rows(theta, Rows::new(theta, cond, draw)?, cond, draw, shared.law),
+        None => {
+            let rows = Arc::new(Rows::new(theta, cond, draw)?);
+            Plan::with_rows(theta, rows, cond, draw, shared.law)
+        }
     }?;
     plan.expect_paths(theta, how.paths_per_theta);
     // Fail fast, naming the draw, rather than spend the path budget on a hopeless θ.

@@ -36,7 +36,7 @@ use rand_distr::{Distribution, StandardNormal};
 use super::{
     ForecastError,
     conditions::Conditions,
-    corridor::{CorridorLaw, LawRows},
+    corridor::CorridorLaw,
     factor::Factor,
     product::{SparseRows, mul},
     reach,
@@ -66,9 +66,8 @@ const REFINE: f64 = 1e-14;
 /// Condition-dependent objects for one θ.
 #[derive(Debug, Clone)]
 pub struct Plan {
-    rows: Rows,
-    /// `𝒢 = [R; S]` (k × N), a few non-zeros a row.
-    stacked: SparseRows,
+    /// The conditions' rows, shared by the plans of a run when they do not depend on θ.
+    rows: Arc<Rows>,
     /// `F' = M'𝒢'` (N × k).
     shock_rows: DMatrix<f64>,
     /// `r̃ = r − R μ` (kept pins).
@@ -96,7 +95,8 @@ impl Plan {
         cond: &Conditions,
         draw: Option<usize>,
     ) -> Result<Plan, ForecastError> {
-        Plan::with_rows(theta, Rows::new(theta, cond, draw)?, cond, draw, None)
+        let rows = Arc::new(Rows::new(theta, cond, draw)?);
+        Plan::with_rows(theta, rows, cond, draw, None)
     }
 
     /// Build the plan on rows already made (conditions on observables give the same rows
@@ -104,18 +104,14 @@ impl Plan {
     /// corridor law laid out like `like`'s (another θ's law of the same corridors) when given.
     pub fn with_rows(
         theta: &Theta,
-        rows: Rows,
+        rows: Arc<Rows>,
         cond: &Conditions,
         draw: Option<usize>,
         like: Option<&CorridorLaw>,
     ) -> Result<Plan, ForecastError> {
-        let g = rows.stacked();
-        let stacked = SparseRows::new(&g);
         let (m, q) = (rows.pins.nrows(), rows.corridors.nrows());
-        let mean = DVector::from_column_slice(&theta.mean);
-        let rtilde = &rows.values - &rows.pins * &mean;
-        let smean = &rows.corridors * &mean;
-        let mut shock_rows = g.transpose();
+        let (rtilde, smean) = departures_of_mean(theta, &rows);
+        let mut shock_rows = rows.stacked_rows().transposed(theta.len());
         theta.adjoint_in_place(&mut shock_rows);
         let labels = rows.labels();
         let (cells, rest) = match cond.driver_cells(theta.n(), theta.h) {
@@ -148,7 +144,6 @@ impl Plan {
             let _ = model.set(factor.clone());
         }
         Ok(Plan {
-            stacked,
             shock_rows,
             rows,
             rtilde,
@@ -168,15 +163,13 @@ impl Plan {
     /// factor, the gain `W` and the corridor law's covariance — and only `r̃`, `Sμ` and the
     /// law's mean and bounds are made again (ALGORITHMS §8.2, the "values" level). `None` when
     /// the rows differ.
-    pub fn revalue(&self, theta: &Theta, rows: Rows) -> Option<Result<Plan, ForecastError>> {
-        if SparseRows::new(&rows.stacked()) != self.stacked
+    pub fn revalue(&self, theta: &Theta, rows: Arc<Rows>) -> Option<Result<Plan, ForecastError>> {
+        if rows.stacked_rows() != self.rows.stacked_rows()
             || rows.extra.len() != self.rows.extra.len()
         {
             return None;
         }
-        let mean = DVector::from_column_slice(&theta.mean);
-        let rtilde = &rows.values - &rows.pins * &mean;
-        let smean = &rows.corridors * &mean;
+        let (rtilde, smean) = departures_of_mean(theta, &rows);
         let law = plan_law(
             &self.factor,
             &rows,
@@ -238,13 +231,7 @@ impl Plan {
 
     /// The corridors of this plan (each once), for messages.
     pub fn corridor_names(&self) -> Vec<String> {
-        let mut names: Vec<String> = Vec::new();
-        for n in &self.rows.corridor_names {
-            if !names.contains(n) {
-                names.push(n.clone());
-            }
-        }
-        names
+        self.rows.law_rows().names.clone()
     }
 
     /// The conditions' rows.
@@ -275,7 +262,7 @@ impl Plan {
     /// matrix products over all of them.
     pub fn sample_many<R: Rng + ?Sized>(&self, theta: &Theta, rngs: &mut [&mut R]) -> Vec<Drawn> {
         let (big_n, count) = (theta.len(), rngs.len());
-        let k = self.stacked.nrows();
+        let k = self.stacked().nrows();
         let mut ystar = DMatrix::zeros(big_n, count);
         let mut target = DMatrix::zeros(k, count);
         let mut failed: Vec<Option<ForecastError>> = vec![None; count];
@@ -323,7 +310,7 @@ impl Plan {
     ) -> DMatrix<f64> {
         let mut y = self.shift(theta, &(target - gy));
         y += ystar;
-        let gap = target - self.stacked.times(&y);
+        let gap = target - self.stacked().times(&y);
         let missed = gap
             .iter()
             .zip(target.iter())
@@ -340,7 +327,7 @@ impl Plan {
     /// before any path is drawn, so that every path of a plan takes the same route whatever
     /// the threads.
     pub fn expect_paths(&self, theta: &Theta, paths: usize) {
-        let k = self.stacked.nrows();
+        let k = self.stacked().nrows();
         if paths >= k {
             self.gain.get_or_init(|| {
                 let mut w = self.shock_shift(&DMatrix::identity(k, k));
@@ -380,7 +367,7 @@ impl Plan {
 
     /// `𝒢 Y` for paths in the columns of `y`.
     pub fn stacked_times(&self, y: &DMatrix<f64>) -> DMatrix<f64> {
-        self.stacked.times(y)
+        self.rows.stacked_rows().times(y)
     }
 
     /// The targets `(r; z)` of one path: the pin values, then the corridor quantities drawn
@@ -418,7 +405,7 @@ impl Plan {
 
     /// The stacked rows `𝒢 = [R; S]` (k × N).
     pub fn stacked(&self) -> &SparseRows {
-        &self.stacked
+        self.rows.stacked_rows()
     }
 
     /// The departures `t − 𝒢μ` of targets `t = (r; z)` from the unconditional mean.
@@ -495,7 +482,7 @@ impl Plan {
         }
         let f = self.model_factor();
         let mean = &self.smean + f.corridor_on_pins() * &self.rtilde;
-        let rows = law_rows(&self.rows);
+        let rows = self.rows.law_rows();
         CorridorLaw::new(f.corridor_covariance(), mean, None, rows, self.law.as_ref()).map(Some)
     }
 
@@ -612,16 +599,14 @@ fn plan_law(
         let f_rest = DMatrix::from_fn(m + q, rest.len(), |i, c| shock_rows[(rest[c], i)]);
         f_rest.rows(m, q) - &on_pins * f_rest.rows(0, m)
     });
-    CorridorLaw::new(cov, m0, shift, law_rows(rows), like).map(Some)
+    CorridorLaw::new(cov, m0, shift, rows.law_rows(), like).map(Some)
 }
 
-/// The corridor rows of a plan as a law needs them.
-fn law_rows(rows: &Rows) -> LawRows {
-    LawRows {
-        lower: rows.lower.clone(),
-        upper: rows.upper.clone(),
-        extra: rows.extra.clone(),
-        labels: rows.corridor_labels.clone(),
-        names: rows.corridor_names.clone(),
-    }
+/// `r̃ = r − Rμ` and `Sμ` under θ, from the stacked rows' non-zeros.
+fn departures_of_mean(theta: &Theta, rows: &Rows) -> (DVector<f64>, DVector<f64>) {
+    let m = rows.pins.nrows();
+    let at_mean = rows.stacked_rows().apply(&theta.mean);
+    let rtilde = DVector::from_fn(m, |i, _| rows.values[i] - at_mean[i]);
+    let smean = DVector::from_column_slice(&at_mean[m..]);
+    (rtilde, smean)
 }

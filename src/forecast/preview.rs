@@ -16,7 +16,10 @@
 //! numbers are common across edits. The paths are exactly those of a fresh computation (the
 //! same streams, the same formulas), whatever was cached.
 
-use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::{
+    Arc,
+    atomic::{AtomicBool, Ordering},
+};
 
 use nalgebra::DMatrix;
 use rand_distr::{Distribution, StandardNormal};
@@ -104,7 +107,7 @@ impl Preview {
         how: Sampling,
         cancel: &AtomicBool,
     ) -> Result<PathSet, ForecastError> {
-        let rows = Rows::new(&self.theta, cond, None)?;
+        let rows = Arc::new(Rows::new(&self.theta, cond, None)?);
         let reused = self
             .prepared
             .as_ref()

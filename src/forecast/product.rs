@@ -104,6 +104,22 @@ impl SparseRows {
         self.rows.len()
     }
 
+    /// The rows of `more` below these.
+    pub fn extend(&mut self, more: SparseRows) {
+        self.rows.extend(more.rows);
+    }
+
+    /// The rows as the columns of a dense `n × rows` matrix (`n` the rows' length).
+    pub fn transposed(&self, n: usize) -> DMatrix<f64> {
+        let mut out = DMatrix::zeros(n, self.rows.len());
+        for (i, row) in self.rows.iter().enumerate() {
+            for &(c, a) in row {
+                out[(c, i)] = a;
+            }
+        }
+        out
+    }
+
     /// `A Y` for paths in the columns of `y`.
     pub fn times(&self, y: &DMatrix<f64>) -> DMatrix<f64> {
         let mut out = DMatrix::zeros(self.rows.len(), y.ncols());

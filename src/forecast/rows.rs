@@ -15,11 +15,14 @@
 //!   kept corridor quantities `z`; the polytope they cut out must have an interior (a small
 //!   linear programme, [`super::polytope`]), and draws of `z` are kept only inside it.
 
+use std::sync::Arc;
+
 use nalgebra::{DMatrix, DVector};
 
 use super::{
     ForecastError,
     conditions::{Conditions, Target},
+    corridor::LawRows,
     polytope,
     product::SparseRows,
     theta::Theta,
@@ -71,6 +74,10 @@ pub struct Rows {
     pub extra: Vec<Extra>,
     /// What was dropped or merged, for the report.
     pub notes: Vec<String>,
+    /// The non-zeros of the stacked rows `𝒢 = [R; S]`.
+    stacked: SparseRows,
+    /// The kept corridor rows as every θ's corridor law shares them.
+    law: Arc<LawRows>,
     /// Every pin and corridor row as given, to measure how well a path meets them.
     every_pin: (SparseRows, DVector<f64>),
     every_corridor: (SparseRows, DVector<f64>, DVector<f64>),
@@ -305,6 +312,21 @@ impl Rows {
         }
         let (pin_rows, pin_values, _) = stack(&kept_pins, big_n, |r| (r.lower, r.lower));
         let (corridor_rows, _, _) = stack(&kept, big_n, |r| (r.lower, r.upper));
+        let mut names: Vec<String> = Vec::new();
+        for r in &kept {
+            if !names.contains(&r.name) {
+                names.push(r.name.clone());
+            }
+        }
+        let law = Arc::new(LawRows {
+            lower: lower.clone(),
+            upper: upper.clone(),
+            extra: extra.clone(),
+            labels: kept.iter().map(|r| r.label.clone()).collect(),
+            names,
+        });
+        let mut stacked = SparseRows::new(&pin_rows);
+        stacked.extend(SparseRows::new(&corridor_rows));
         Ok(Rows {
             pins: pin_rows,
             values: pin_values,
@@ -317,6 +339,8 @@ impl Rows {
             corridor_labels: kept.into_iter().map(|r| r.label).collect(),
             extra,
             notes,
+            stacked,
+            law,
             every_pin: (SparseRows::new(&every_pin.0), every_pin.1),
             every_corridor: (
                 SparseRows::new(&every_corridor.0),
@@ -333,6 +357,16 @@ impl Rows {
         g.rows_mut(0, m).copy_from(&self.pins);
         g.rows_mut(m, q).copy_from(&self.corridors);
         g
+    }
+
+    /// The non-zeros of the stacked rows `𝒢`, row by row.
+    pub fn stacked_rows(&self) -> &SparseRows {
+        &self.stacked
+    }
+
+    /// The kept corridor rows for a corridor law (shared, not copied).
+    pub fn law_rows(&self) -> Arc<LawRows> {
+        self.law.clone()
     }
 
     /// Labels of the stacked rows.
