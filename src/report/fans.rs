@@ -84,33 +84,36 @@ pub fn fans(setup: &Setup, paths: &[Vec<f64>], weights: Option<&[f64]>, kind: Ki
     (0..setup.n())
         .into_par_iter()
         .flat_map_iter(|i| {
-            let mut values = Vec::with_capacity(paths.len());
-            (1..=h)
-                .map(|t| {
-                    values.clear();
-                    values.extend(paths.iter().map(|p| display_path_value(setup, p, i, t)));
-                    let (mean, quantiles) = match weights {
-                        None => {
-                            // Divide first: the sum of large finite values must not overflow.
-                            let count = values.len().max(1) as f64;
-                            (
-                                values.iter().map(|v| v / count).sum(),
-                                quantiles(&mut values),
-                            )
-                        }
-                        Some(w) => weighted(&values, w),
-                    };
-                    FanRow {
-                        series: setup.names[i].clone(),
-                        period: last.offset(t as i64),
-                        horizon: t,
-                        kind,
-                        units: setup.display[i],
-                        mean,
-                        quantiles,
+            // Path by path (each read once, in order), into one row of values per period.
+            let count = paths.len();
+            let mut by_period = vec![0.0; h * count];
+            for (j, p) in paths.iter().enumerate() {
+                for t in 1..=h {
+                    by_period[(t - 1) * count + j] = display_path_value(setup, p, i, t);
+                }
+            }
+            let mut rows = Vec::with_capacity(h);
+            for t in 1..=h {
+                let values = &mut by_period[(t - 1) * count..t * count];
+                let (mean, quantiles) = match weights {
+                    None => {
+                        // Divide first: the sum of large finite values must not overflow.
+                        let n = count.max(1) as f64;
+                        (values.iter().map(|v| v / n).sum(), quantiles(values))
                     }
-                })
-                .collect::<Vec<_>>()
+                    Some(w) => weighted(values, w),
+                };
+                rows.push(FanRow {
+                    series: setup.names[i].clone(),
+                    period: last.offset(t as i64),
+                    horizon: t,
+                    kind,
+                    units: setup.display[i],
+                    mean,
+                    quantiles,
+                });
+            }
+            rows
         })
         .collect()
 }
