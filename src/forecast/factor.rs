@@ -21,6 +21,8 @@
 
 use nalgebra::{DMatrix, SVD};
 
+use super::product::gram;
+
 /// Columns per block of the staircase products.
 const BLOCK: usize = 16;
 
@@ -292,33 +294,6 @@ fn cholesky_qr2(fjt: &DMatrix<f64>, reach: &[usize], places: &Places) -> Option<
         scale,
         places: places.clone(),
     })
-}
-
-/// `A'A` for columns zero below their first `reach[c]` rows: each block of columns times the
-/// columns up to it, over the rows the block reaches (the upper triangle), then mirrored.
-fn gram(a: &DMatrix<f64>, reach: &[usize]) -> DMatrix<f64> {
-    let k = a.ncols();
-    let at = a.transpose();
-    let mut g = DMatrix::zeros(k, k);
-    for j0 in (0..k).step_by(BLOCK) {
-        let j1 = (j0 + BLOCK).min(k);
-        let rows = reach[j0..j1].iter().copied().max().unwrap_or(0);
-        if rows == 0 {
-            continue;
-        }
-        g.view_mut((0, j0), (j1, j1 - j0)).gemm(
-            1.0,
-            &at.view((0, 0), (j1, rows)),
-            &a.view((0, j0), (rows, j1 - j0)),
-            0.0,
-        );
-    }
-    for j in 0..k {
-        for i in j + 1..k {
-            g[(i, j)] = g[(j, i)];
-        }
-    }
-    g
 }
 
 /// `A U` for an upper-triangular `U` whose product's column j is zero below row `reach[j]`

@@ -11,6 +11,36 @@ use nalgebra::DMatrix;
 /// Smallest dimension nalgebra multiplies with its blocked kernel.
 const BLOCKED: usize = 6;
 
+/// Columns per block of [`gram`].
+const GRAM_BLOCK: usize = 16;
+
+/// `A'A` for columns zero below their first `reach[c]` rows: each block of columns times the
+/// columns up to it, over the rows the block reaches (the upper triangle), then mirrored.
+pub fn gram(a: &DMatrix<f64>, reach: &[usize]) -> DMatrix<f64> {
+    let k = a.ncols();
+    let at = a.transpose();
+    let mut g = DMatrix::zeros(k, k);
+    for j0 in (0..k).step_by(GRAM_BLOCK) {
+        let j1 = (j0 + GRAM_BLOCK).min(k);
+        let rows = reach[j0..j1].iter().copied().max().unwrap_or(0);
+        if rows == 0 {
+            continue;
+        }
+        g.view_mut((0, j0), (j1, j1 - j0)).gemm(
+            1.0,
+            &at.view((0, 0), (j1, rows)),
+            &a.view((0, j0), (rows, j1 - j0)),
+            0.0,
+        );
+    }
+    for j in 0..k {
+        for i in j + 1..k {
+            g[(i, j)] = g[(j, i)];
+        }
+    }
+    g
+}
+
 /// `A B`, by the blocked kernel whatever the shapes.
 pub fn mul(a: &DMatrix<f64>, b: &DMatrix<f64>) -> DMatrix<f64> {
     let (r, k, c) = (a.nrows(), a.ncols(), b.ncols());

@@ -17,6 +17,7 @@
 use nalgebra::{DMatrix, DVector};
 
 use super::{reorder::Ordered, univariate};
+use crate::forecast::product::gram;
 
 /// Stop when `‖∇ψ‖_∞` is below this.
 const GRAD_TOL: f64 = 1e-10;
@@ -91,12 +92,23 @@ fn evaluate(o: &Ordered, lo: &[f64], hi: &[f64], v: &DVector<f64>) -> Eval {
     Eval { psi, grad, var }
 }
 
-/// `W'W = −U_xx = −[L̃'ΔL̃]₁₁` with `W = diag(√−Δ) L̃[:, :m]` (−1 < Δ ≤ 0), as one matrix
-/// product: the x block of the Hessian, negated.
+/// `W'W = −U_xx = −[L̃'ΔL̃]₁₁` with `W = diag(√−Δ) L̃[:, :m]` (−1 < Δ ≤ 0): the x block of
+/// the Hessian, negated.
 fn minus_xx(o: &Ordered, var: &[f64]) -> DMatrix<f64> {
+    let scale: Vec<f64> = var.iter().map(|v| (1.0 - v).max(0.0).sqrt()).collect();
+    lower_gram(o, &scale, 0.0)
+}
+
+/// `B'B` for `B = diag(s) (L̃ + c E)[:, :m]` (d × m, `E` the unit diagonal): column a of `B`
+/// is zero above row a, so with its rows reversed `B'B` is a staircase Gram product.
+fn lower_gram(o: &Ordered, s: &[f64], c: f64) -> DMatrix<f64> {
     let (d, m) = (o.dim(), o.dim() - 1);
-    let w = DMatrix::from_fn(d, m, |k, a| (1.0 - var[k]).max(0.0).sqrt() * o.lt[(k, a)]);
-    w.transpose() * &w
+    let reversed = DMatrix::from_fn(d, m, |r, a| {
+        let k = d - 1 - r;
+        s[k] * if a == k { c } else { o.lt[(k, a)] }
+    });
+    let reach: Vec<usize> = (0..m).map(|a| d - a).collect();
+    gram(&reversed, &reach)
 }
 
 /// `U_μx = [ΔL̃ − I]₁₁` (m × m, lower triangular with −1 on the diagonal).
@@ -144,11 +156,7 @@ fn newton_direction(o: &Ordered, e: &Eval) -> Option<DVector<f64>> {
                 }
             })
             .collect();
-        // L̃ is strictly lower triangular: the unit diagonal of I + L̃ₛ is added here.
-        let b = DMatrix::from_fn(d, m, |k, a| {
-            scale[k] * if a == k { 1.0 } else { o.lt[(k, a)] }
-        });
-        let mut schur = b.tr_mul(&b);
+        let mut schur = lower_gram(o, &scale, 1.0);
         for k in 0..m {
             schur[(k, k)] += 1.0;
         }
