@@ -2,7 +2,8 @@
 //!
 //! Stacked rows `𝒢 = [R; S]` (k = m + q: pins, then independent corridor rows;
 //! [`super::rows`]), pin values `r`, `r̃ = r − Rμ`, and the conditions in shock space
-//! `F = 𝒢 M` (k × N), computed as `(M'𝒢')'` by the backward recursion ([`Theta`]).
+//! `F = 𝒢 M` (k × N), computed as `(M'𝒢')'` from the moving-average rows of the series the
+//! conditions involve ([`Theta::conditions_in_shocks`]).
 //!
 //! Drivers `J` are the shock cells that may move (every cell when no drivers are named;
 //! Antolín-Díaz, Petrella and Rubio-Ramírez 2021). One factorisation serves everything: the
@@ -111,8 +112,7 @@ impl Plan {
     ) -> Result<Plan, ForecastError> {
         let (m, q) = (rows.pins.nrows(), rows.corridors.nrows());
         let (rtilde, smean) = departures_of_mean(theta, &rows);
-        let mut shock_rows = rows.stacked_rows().transposed(theta.len());
-        theta.adjoint_in_place(&mut shock_rows);
+        let shock_rows = theta.conditions_in_shocks(rows.stacked_rows());
         let labels = rows.labels();
         let (cells, rest) = match cond.driver_cells(theta.n(), theta.h) {
             None => (None, Vec::new()),

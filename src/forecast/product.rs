@@ -134,6 +134,11 @@ impl SparseRows {
         self.rows.len()
     }
 
+    /// Each row's non-zeros, `(column, value)`.
+    pub fn iter(&self) -> impl Iterator<Item = &[(usize, f64)]> {
+        self.rows.iter().map(Vec::as_slice)
+    }
+
     /// The rows of `more` below these.
     pub fn extend(&mut self, more: SparseRows) {
         self.rows.extend(more.rows);

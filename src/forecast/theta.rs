@@ -24,7 +24,7 @@ use nalgebra::{DMatrix, DVector};
 use rand::Rng;
 use rand_distr::{Distribution, StandardNormal};
 
-use super::ForecastError;
+use super::{ForecastError, product::SparseRows};
 use crate::model::Params;
 
 /// θ-level cache: coefficients, identification and the unconditional mean.
@@ -197,6 +197,80 @@ impl Theta {
         for (from, &(_, to)) in order.iter().enumerate() {
             v.column_mut(to).copy_from(&w.column(from));
         }
+    }
+
+    /// `F' = M'𝒢'` (N × k) for rows `𝒢` given by their non-zeros. `M` is block lower
+    /// Toeplitz (`M_ts = Ψ_{t−s} L`, the VAR's moving-average form), so the column of a row
+    /// with weight `a` on series `i` at period `t` is made of the moving-average rows
+    /// `φ_{i,k} = e_i'Ψ_k L` shifted: block `s ≤ t` of it is `a φ_{i,t−s}'`. The rows
+    /// `r_k = e_i'Ψ_k` follow `r_k = Σ_{j ≤ min(p,k)} r_{k−j} B_j` (`Ψ(z) = B(z)⁻¹` from either
+    /// side), for the series the rows involve only — a few, for pins and corridors. Rows that
+    /// involve so many series that this would cost more than the adjoint recursion (such as
+    /// conditions on shocks) take [`Theta::adjoint_in_place`].
+    pub fn conditions_in_shocks(&self, rows: &SparseRows) -> DMatrix<f64> {
+        let (n, p, h) = (self.n(), self.p(), self.h);
+        let mut slot = vec![usize::MAX; n];
+        let mut series = Vec::new();
+        let (mut assemble, mut adjoint) = (0, 0);
+        for row in rows.iter() {
+            let mut reach = 0;
+            for &(cell, _) in row {
+                let i = cell % n;
+                if slot[i] == usize::MAX {
+                    slot[i] = series.len();
+                    series.push(i);
+                }
+                assemble += (cell / n + 1) * n;
+                reach = reach.max(cell / n + 1);
+            }
+            adjoint += reach * n * (n * p + n);
+        }
+        let s = series.len();
+        if h * (p + 1) * s * n * n + assemble > adjoint {
+            let mut v = rows.transposed(self.len());
+            self.adjoint_in_place(&mut v);
+            return v;
+        }
+        // The rows as columns, c_k = r_k' = Σ_j B_j' c_{k−j} (n × s each, stacked by k, as
+        // many columns as the blocked product needs), then φ_k' = L' c_k in place.
+        let width = s.max(6);
+        let mut lags_t = DMatrix::zeros(n, n * p);
+        for (j, b) in self.lags.iter().enumerate() {
+            lags_t
+                .view_mut((0, (p - 1 - j) * n), (n, n))
+                .tr_copy_from(b);
+        }
+        let mut phi = DMatrix::zeros(self.len(), width);
+        for (a, &i) in series.iter().enumerate() {
+            phi[(i, a)] = 1.0;
+        }
+        for k in 1..h {
+            let m = p.min(k);
+            let (mut now, past) = phi.rows_range_pair_mut(k * n..(k + 1) * n, (k - m) * n..k * n);
+            now.gemm(1.0, &lags_t.columns((p - m) * n, m * n), &past, 0.0);
+        }
+        let l_t = self.impact.transpose();
+        let mut tmp = DMatrix::zeros(n, width);
+        for k in 0..h {
+            tmp.gemm(1.0, &l_t, &phi.rows(k * n, n), 0.0);
+            phi.rows_mut(k * n, n).copy_from(&tmp);
+        }
+        let big_n = self.len();
+        let phi = phi.as_slice();
+        let mut out = DMatrix::zeros(self.len(), rows.nrows());
+        for (k, row) in rows.iter().enumerate() {
+            let col = out.column_mut(k).data.into_slice_mut();
+            for &(cell, a) in row {
+                let (t, at) = (cell / n, slot[cell % n]);
+                for from in 0..=t {
+                    let src = &phi[at * big_n + (t - from) * n..][..n];
+                    for (d, v) in col[from * n..(from + 1) * n].iter_mut().zip(src) {
+                        *d += a * v;
+                    }
+                }
+            }
+        }
+        out
     }
 
     /// `V ← K⁻¹ V = M M' V`: the unconditional forecast covariance times `V`.
@@ -487,6 +561,26 @@ mod tests {
                 (&stairs - &want).amax() < tol * (1.0 + m_def.amax()),
                 "M' V for staircase columns"
             );
+            // Rows of conditions (a few non-zeros, on one series or a few; one on every
+            // cell, which takes the adjoint route): F' = M'𝒢' either way.
+            let mut g = DMatrix::zeros(5, big_n);
+            g[(0, big_n - 1)] = 1.0;
+            g[(1, 0)] = 0.5;
+            g[(2, (h - 1) * n)] = 2.0;
+            g[(2, (h / 2) * n + n - 1)] = -1.5;
+            g[(3, n - 1)] = -0.3;
+            for c in 0..big_n {
+                g[(4, c)] = (c as f64 * 0.41).sin();
+            }
+            for take in [4, 5] {
+                let rows = SparseRows::new(&g.rows(0, take).into_owned());
+                let want = m_def.transpose() * g.rows(0, take).transpose();
+                let got = theta.conditions_in_shocks(&rows);
+                assert!(
+                    (&got - &want).amax() < tol * (1.0 + want.amax()),
+                    "M'𝒢' from the moving-average rows ({take} rows)"
+                );
+            }
             let eps: Vec<f64> = (0..big_n).map(|i| (i as f64 * 0.91).cos()).collect();
             let y = theta.path_from_shocks(&eps);
             let back = theta.shocks_from_paths(std::slice::from_ref(&y)).unwrap();
