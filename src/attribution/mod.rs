@@ -73,6 +73,19 @@ impl Part {
                 *s += w * v;
             }
         }
+        Some(Part::of_sum(theta_index, theta, plan, cond, &sum, total))
+    }
+
+    /// The part of one θ from its plan and the (weighted) sum of its conditional paths with
+    /// the total of their weights (the count, unweighted).
+    pub fn of_sum(
+        theta_index: usize,
+        theta: &Theta,
+        plan: &Plan,
+        cond: &Conditions,
+        sum: &[f64],
+        total: f64,
+    ) -> Part {
         let gap: Vec<f64> = sum
             .iter()
             .zip(&theta.mean)
@@ -105,11 +118,11 @@ impl Part {
         }
         let by_condition = plan.shift(theta, &split);
         let free = DVector::from_vec(gap) - by_condition.column_sum();
-        Some(Part {
+        Part {
             theta: theta_index,
             by_condition,
             free,
-        })
+        }
     }
 }
 
