@@ -10,6 +10,9 @@ use crate::scenario::{Setup, Units, units::display_value};
 /// Probabilities of the fan quantiles: 90%, 68% and 50% central bands and the median.
 pub const QUANTILES: [f64; 7] = [0.05, 0.16, 0.25, 0.5, 0.75, 0.84, 0.95];
 
+/// Series summarised together by one piece of work (each path read once per piece).
+const SERIES_PER_TASK: usize = 8;
+
 /// Which distribution a fan summarises.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum Kind {
@@ -80,38 +83,48 @@ pub fn displayable(setup: &Setup, path: &[f64]) -> bool {
 pub fn fans(setup: &Setup, paths: &[Vec<f64>], weights: Option<&[f64]>, kind: Kind) -> Vec<FanRow> {
     let h = setup.file.horizon;
     let last = setup.last_period();
-    // One series per piece of work, gathered in series order.
-    (0..setup.n())
+    // A few series per piece of work, gathered in series order: each path is read once per
+    // piece, in order, into one row of values per series and period.
+    let n = setup.n();
+    (0..n)
+        .step_by(SERIES_PER_TASK)
+        .collect::<Vec<_>>()
         .into_par_iter()
-        .flat_map_iter(|i| {
-            // Path by path (each read once, in order), into one row of values per period.
+        .flat_map_iter(|first| {
+            let series = first..(first + SERIES_PER_TASK).min(n);
             let count = paths.len();
-            let mut by_period = vec![0.0; h * count];
+            let mut by_row = vec![0.0; series.len() * h * count];
             for (j, p) in paths.iter().enumerate() {
-                for t in 1..=h {
-                    by_period[(t - 1) * count + j] = display_path_value(setup, p, i, t);
+                for i in series.clone() {
+                    for t in 1..=h {
+                        by_row[((i - first) * h + t - 1) * count + j] =
+                            display_path_value(setup, p, i, t);
+                    }
                 }
             }
-            let mut rows = Vec::with_capacity(h);
-            for t in 1..=h {
-                let values = &mut by_period[(t - 1) * count..t * count];
-                let (mean, quantiles) = match weights {
-                    None => {
-                        // Divide first: the sum of large finite values must not overflow.
-                        let n = count.max(1) as f64;
-                        (values.iter().map(|v| v / n).sum(), quantiles(values))
-                    }
-                    Some(w) => weighted(values, w),
-                };
-                rows.push(FanRow {
-                    series: setup.names[i].clone(),
-                    period: last.offset(t as i64),
-                    horizon: t,
-                    kind,
-                    units: setup.display[i],
-                    mean,
-                    quantiles,
-                });
+            let mut rows = Vec::with_capacity(series.len() * h);
+            for i in series.clone() {
+                for t in 1..=h {
+                    let at = ((i - first) * h + t - 1) * count;
+                    let values = &mut by_row[at..at + count];
+                    let (mean, quantiles) = match weights {
+                        None => {
+                            // Divide first: the sum of large finite values must not overflow.
+                            let share = count.max(1) as f64;
+                            (values.iter().map(|v| v / share).sum(), quantiles(values))
+                        }
+                        Some(w) => weighted(values, w),
+                    };
+                    rows.push(FanRow {
+                        series: setup.names[i].clone(),
+                        period: last.offset(t as i64),
+                        horizon: t,
+                        kind,
+                        units: setup.display[i],
+                        mean,
+                        quantiles,
+                    });
+                }
             }
             rows
         })
