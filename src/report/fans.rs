@@ -136,21 +136,43 @@ pub fn fans(setup: &Setup, paths: &[Vec<f64>], weights: Option<&[f64]>, kind: Ki
 /// quantiles interpolate between these positions, clamped at the ends. The same rule as
 /// [`weighted`] with equal weights, so that reweighting with equal weights moves no band.
 pub fn quantiles(values: &mut [f64]) -> [f64; 7] {
-    values.sort_unstable_by(f64::total_cmp);
     let mut out = [f64::NAN; 7];
     if values.is_empty() {
         return out;
     }
     let count = values.len();
-    for (o, q) in out.iter_mut().zip(QUANTILES) {
-        let pos = (q * count as f64 - 0.5).clamp(0.0, (count - 1) as f64);
+    let places = QUANTILES.map(|q| (q * count as f64 - 0.5).clamp(0.0, (count - 1) as f64));
+    // The order statistics at the ranks next to each place, selected in increasing order of
+    // rank, each from the values above the last one (selection, not a full sort).
+    let mut ranks: Vec<usize> = places
+        .iter()
+        .flat_map(|p| {
+            let lo = p.floor() as usize;
+            [lo, (lo + 1).min(count - 1)]
+        })
+        .collect();
+    ranks.sort_unstable();
+    ranks.dedup();
+    let mut at = Vec::with_capacity(ranks.len());
+    let mut from = 0;
+    for &r in &ranks {
+        let (_, v, _) = values[from..].select_nth_unstable_by(r - from, f64::total_cmp);
+        at.push((r, *v));
+        from = r + 1;
+    }
+    let value = |r: usize| {
+        at.iter()
+            .find(|&&(k, _)| k == r)
+            .map_or(f64::NAN, |&(_, v)| v)
+    };
+    for (o, pos) in out.iter_mut().zip(places) {
         let lo = pos.floor() as usize;
-        let hi = (lo + 1).min(count - 1);
+        let (a, b) = (value(lo), value((lo + 1).min(count - 1)));
         // Equal neighbours (infinite ones included) need no interpolation: ∞ − ∞ is NaN.
-        *o = if values[hi] == values[lo] {
-            values[lo]
+        *o = if a == b {
+            a
         } else {
-            values[lo] + (pos - lo as f64) * (values[hi] - values[lo])
+            a + (pos - lo as f64) * (b - a)
         };
     }
     out
@@ -218,6 +240,39 @@ mod tests {
         let (_, w) = weighted(&odd, &vec![1.0 / 37.0; 37]);
         for (a, b) in quantiles(&mut odd).iter().zip(w) {
             assert!((a - b).abs() < 1e-14, "{a} against {b}");
+        }
+    }
+
+    /// Selection gives the order statistics a full sort gives: every size from 1 to 60, with
+    /// ties and infinite values, against the rule applied to the sorted values.
+    #[test]
+    fn selected_quantiles_match_the_sorted_rule() {
+        for count in 1..=60usize {
+            let values: Vec<f64> = (0..count)
+                .map(|k| match k % 11 {
+                    3 => 2.0,
+                    7 => f64::INFINITY,
+                    9 => f64::NEG_INFINITY,
+                    _ => ((k * 37 % 17) as f64 * 0.91).sin(),
+                })
+                .collect();
+            let mut sorted = values.clone();
+            sorted.sort_by(f64::total_cmp);
+            let got = quantiles(&mut values.clone());
+            for (o, q) in got.iter().zip(QUANTILES) {
+                let pos = (q * count as f64 - 0.5).clamp(0.0, (count - 1) as f64);
+                let lo = pos.floor() as usize;
+                let (a, b) = (sorted[lo], sorted[(lo + 1).min(count - 1)]);
+                let want = if a == b {
+                    a
+                } else {
+                    a + (pos - lo as f64) * (b - a)
+                };
+                assert!(
+                    o.total_cmp(&want).is_eq(),
+                    "{count} values, quantile {q}: {o} against {want}"
+                );
+            }
         }
     }
 
