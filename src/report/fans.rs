@@ -10,8 +10,9 @@ use crate::scenario::{Setup, Units, units::display_value};
 /// Probabilities of the fan quantiles: 90%, 68% and 50% central bands and the median.
 pub const QUANTILES: [f64; 7] = [0.05, 0.16, 0.25, 0.5, 0.75, 0.84, 0.95];
 
-/// Series summarised together by one piece of work (each path read once per piece).
-const SERIES_PER_TASK: usize = 8;
+/// Pieces of work the series are shared among (each path is read once per piece): enough
+/// for the cores, few enough that each piece reads its paths for several series.
+const PIECES: usize = 8;
 
 /// Which distribution a fan summarises.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -86,12 +87,13 @@ pub fn fans(setup: &Setup, paths: &[Vec<f64>], weights: Option<&[f64]>, kind: Ki
     // A few series per piece of work, gathered in series order: each path is read once per
     // piece, in order, into one row of values per series and period.
     let n = setup.n();
+    let per = n.div_ceil(PIECES).max(1);
     (0..n)
-        .step_by(SERIES_PER_TASK)
+        .step_by(per)
         .collect::<Vec<_>>()
         .into_par_iter()
         .flat_map_iter(|first| {
-            let series = first..(first + SERIES_PER_TASK).min(n);
+            let series = first..(first + per).min(n);
             let count = paths.len();
             let mut by_row = vec![0.0; series.len() * h * count];
             for (j, p) in paths.iter().enumerate() {
