@@ -63,22 +63,39 @@ impl Part {
         if paths.is_empty() {
             return None;
         }
-        // d = 𝒢(ȳ − μ): the pins' r̃ and the corridor quantities' mean shift.
-        let mut sum = vec![0.0; theta.len()];
+        // The (weighted) sum of the paths: pieces in parallel, added in order (the same sum
+        // whatever the threads).
+        let n = theta.len();
+        let pieces: Vec<(Vec<f64>, f64)> = paths
+            .par_chunks(SUM_CHUNK)
+            .enumerate()
+            .map(|(c, chunk)| {
+                let mut sum = vec![0.0; n];
+                let mut total = 0.0;
+                for (j, y) in chunk.iter().enumerate() {
+                    let w = weights.map_or(1.0, |w| w[c * SUM_CHUNK + j]);
+                    total += w;
+                    for (s, v) in sum.iter_mut().zip(y) {
+                        *s += w * v;
+                    }
+                }
+                (sum, total)
+            })
+            .collect();
+        let mut sum = vec![0.0; n];
         let mut total = 0.0;
-        for (j, y) in paths.iter().enumerate() {
-            let w = weights.map_or(1.0, |w| w[j]);
-            total += w;
-            for (s, v) in sum.iter_mut().zip(y) {
-                *s += w * v;
+        for (piece, weight) in pieces {
+            for (s, v) in sum.iter_mut().zip(&piece) {
+                *s += v;
             }
+            total += weight;
         }
         Some(Part::of_sum(theta_index, theta, plan, cond, &sum, total))
     }
 
     /// The part of one θ from its plan and the (weighted) sum of its conditional paths with
     /// the total of their weights (the count, unweighted).
-    pub fn of_sum(
+    fn of_sum(
         theta_index: usize,
         theta: &Theta,
         plan: &Plan,
@@ -125,6 +142,9 @@ impl Part {
         }
     }
 }
+
+/// Paths added up together as one piece of work.
+const SUM_CHUNK: usize = 64;
 
 fn condition_count(cond: &Conditions) -> usize {
     cond.pins.len() + cond.corridors.len()

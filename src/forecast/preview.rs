@@ -45,8 +45,6 @@ const CHUNK: usize = 64;
 struct Chunk {
     errors: (f64, f64),
     paths: Vec<Result<PathPair, Failure>>,
-    /// The sum of the chunk's kept conditional paths.
-    sum: Vec<f64>,
 }
 
 /// A conditional path and the unconditional path it was made from.
@@ -162,7 +160,7 @@ impl Preview {
                 } else {
                     plan.rows().errors(&y.select_columns(&kept))
                 };
-                let paths: Vec<Result<PathPair, Failure>> = failed
+                let paths = failed
                     .into_iter()
                     .enumerate()
                     .map(|(k, f)| {
@@ -181,13 +179,7 @@ impl Preview {
                         }
                     })
                     .collect();
-                let mut sum = vec![0.0; y.nrows()];
-                for (path, _) in paths.iter().flatten() {
-                    for (s, v) in sum.iter_mut().zip(path) {
-                        *s += v;
-                    }
-                }
-                Ok(Chunk { errors, paths, sum })
+                Ok(Chunk { errors, paths })
             })
             .collect::<Result<_, _>>()?;
         let mut out = PathSet {
@@ -196,11 +188,7 @@ impl Preview {
             attempted: count,
             ..PathSet::default()
         };
-        let mut sum = vec![0.0; self.theta.len()];
         for chunk in chunks {
-            for (s, v) in sum.iter_mut().zip(&chunk.sum) {
-                *s += v;
-            }
             out.max_pin_error = out.max_pin_error.max(chunk.errors.0);
             out.max_corridor_violation = out.max_corridor_violation.max(chunk.errors.1);
             for path in chunk.paths {
@@ -215,12 +203,14 @@ impl Preview {
                 }
             }
         }
-        // The parts from the chunks' sums (made in parallel, added in order).
-        if !out.conditional.is_empty() {
-            let total = out.conditional.len() as f64;
-            let part = Part::of_sum(0, &self.theta, &plan, cond, &sum, total);
-            out.parts.push(part);
-        }
+        out.parts.extend(Part::of_paths(
+            0,
+            &self.theta,
+            &plan,
+            cond,
+            &out.conditional,
+            None,
+        ));
         self.prepared = Some((plan, gy));
         Ok(out)
     }
