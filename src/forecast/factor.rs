@@ -67,32 +67,41 @@ impl Factor {
         // each by reach (stable).
         let reach: Vec<usize> = (0..k)
             .map(|c| {
-                (0..rows)
-                    .rev()
-                    .find(|&i| row(i).is_some_and(|j| ft[(j, c)] != 0.0))
-                    .map_or(0, |i| i + 1)
+                let last = match cells {
+                    None => ft.column(c).iter().rposition(|v| *v != 0.0),
+                    Some(_) => (0..rows)
+                        .rev()
+                        .find(|&i| row(i).is_some_and(|j| ft[(j, c)] != 0.0)),
+                };
+                last.map_or(0, |i| i + 1)
             })
             .collect();
         let mut order: Vec<usize> = (0..k).collect();
         order[..pins].sort_by_key(|&c| reach[c]);
         order[pins..].sort_by_key(|&c| reach[c]);
-        let mut fjt = DMatrix::zeros(rows, k);
-        for (p, &c) in order.iter().enumerate() {
-            let col = fjt.column_mut(p).data.into_slice_mut();
-            for (i, v) in col.iter_mut().enumerate().take(reach[c]) {
-                *v = row(i).map_or(0.0, |j| ft[(j, c)]);
+        let permuted = || {
+            let mut fjt = DMatrix::zeros(rows, k);
+            for (p, &c) in order.iter().enumerate() {
+                let col = fjt.column_mut(p).data.into_slice_mut();
+                for (i, v) in col.iter_mut().enumerate().take(reach[c]) {
+                    *v = row(i).map_or(0.0, |j| ft[(j, c)]);
+                }
             }
-        }
-        let reach: Vec<usize> = order.iter().map(|&c| reach[c]).collect();
+            fjt
+        };
         let mut place = vec![0; k];
         for (p, &c) in order.iter().enumerate() {
             place[c] = p;
         }
-        let places = Places { pins, order, place };
-        match cholesky_qr2(&fjt, &reach, &places) {
-            Some(f) => f,
-            None => householder(fjt, places),
-        }
+        let reach_p: Vec<usize> = order.iter().map(|&c| reach[c]).collect();
+        let places = Places {
+            pins,
+            order: order.clone(),
+            place,
+        };
+        // The fast route scales its copy in place; the rare fallback makes the copy again.
+        cholesky_qr2(permuted(), &reach_p, &places)
+            .unwrap_or_else(|| householder(permuted(), places))
     }
 
     pub fn size(&self) -> usize {
@@ -260,13 +269,12 @@ impl Factor {
 
 /// CholeskyQR2 of the permuted columns (each zero below its `reach`), or `None` when a
 /// Cholesky fails.
-fn cholesky_qr2(fjt: &DMatrix<f64>, reach: &[usize], places: &Places) -> Option<Factor> {
-    let k = fjt.ncols();
-    let scale: Vec<f64> = (0..k).map(|c| fjt.column(c).norm()).collect();
+fn cholesky_qr2(mut a: DMatrix<f64>, reach: &[usize], places: &Places) -> Option<Factor> {
+    let k = a.ncols();
+    let scale: Vec<f64> = (0..k).map(|c| a.column(c).norm()).collect();
     if scale.iter().any(|&s| !(s > 0.0 && s.is_finite())) {
         return None;
     }
-    let mut a = fjt.clone();
     for (mut col, s) in a.column_iter_mut().zip(&scale) {
         col.scale_mut(1.0 / s);
     }
