@@ -375,10 +375,26 @@ fn upper_times_upper(a: &DMatrix<f64>, b: &DMatrix<f64>) -> DMatrix<f64> {
     out
 }
 
-/// `U⁻¹` for an upper-triangular `U` by back substitution, column by column (`k³/6`
-/// multiply–adds); `None` when a diagonal entry is zero or the result overflows.
+/// Below this size a triangular inverse is made by back substitution.
+const INVERSE_BLOCK: usize = 16;
+
+/// `U⁻¹` for an upper-triangular `U`; `None` when a diagonal entry is zero or the result
+/// overflows. With `U = [[A, B], [0, C]]`, `U⁻¹ = [[A⁻¹, −A⁻¹ B C⁻¹], [0, C⁻¹]]`: the halves
+/// recursively, the corner by two matrix products (the blocked kernel); blocks of at most
+/// [`INVERSE_BLOCK`] by back substitution, column by column.
 pub fn upper_inverse(u: &DMatrix<f64>) -> Option<DMatrix<f64>> {
     let k = u.nrows();
+    if k > INVERSE_BLOCK {
+        let h = k / 2;
+        let a_inv = upper_inverse(&u.view((0, 0), (h, h)).into_owned())?;
+        let c_inv = upper_inverse(&u.view((h, h), (k - h, k - h)).into_owned())?;
+        let corner = -(&a_inv * u.view((0, h), (h, k - h))) * &c_inv;
+        let mut x = DMatrix::zeros(k, k);
+        x.view_mut((0, 0), (h, h)).copy_from(&a_inv);
+        x.view_mut((h, h), (k - h, k - h)).copy_from(&c_inv);
+        x.view_mut((0, h), (h, k - h)).copy_from(&corner);
+        return x.iter().all(|v| v.is_finite()).then_some(x);
+    }
     let mut x = DMatrix::zeros(k, k);
     for j in 0..k {
         // Column j solves U x = e_j; each step subtracts a contiguous column of U.
@@ -544,20 +560,27 @@ mod tests {
 
     #[test]
     fn upper_inverse_is_an_inverse() {
-        let k = 9;
-        let u = DMatrix::from_fn(k, k, |i, j| {
-            if j >= i {
-                1.0 + ((i + 2 * j) as f64).cos()
-            } else {
-                0.0
-            }
+        // Below the block size, and over it (two levels of halves, odd sizes).
+        for k in [9, 37, 70] {
+            inverse_of_size(k);
+        }
+    }
+
+    fn inverse_of_size(k: usize) {
+        // A well-conditioned triangle (diagonal 1.5 to 2.5, small entries above it).
+        let u = DMatrix::from_fn(k, k, |i, j| match j.cmp(&i) {
+            std::cmp::Ordering::Equal => 2.0 + 0.5 * ((3 * i) as f64).cos(),
+            std::cmp::Ordering::Greater => ((i + 2 * j) as f64).cos() / k as f64,
+            std::cmp::Ordering::Less => 0.0,
         });
         let x = upper_inverse(&u).unwrap();
-        assert!((&u * &x - DMatrix::identity(k, k)).amax() < 1e-12);
+        assert!((&u * &x - DMatrix::identity(k, k)).amax() < 1e-12, "{k}");
         assert!((upper_times_upper(&u, &x) - &u * &x).amax() < 1e-12);
         assert!((upper_times_upper(&x, &u) - &x * &u).amax() < 1e-12);
-        let mut singular = u.clone();
-        singular[(3, 3)] = 0.0;
-        assert!(upper_inverse(&singular).is_none());
+        for zero in [3, k - 2] {
+            let mut singular = u.clone();
+            singular[(zero, zero)] = 0.0;
+            assert!(upper_inverse(&singular).is_none(), "{k}, zero at {zero}");
+        }
     }
 }
