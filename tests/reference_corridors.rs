@@ -126,12 +126,13 @@ fn corridor_rows_match_numpy() {
         let lower = bounds(&case["rows"]["lower"], f64::NEG_INFINITY);
         let upper = bounds(&case["rows"]["upper"], f64::INFINITY);
         assert_eq!(rows.corridors.nrows(), s.nrows(), "{name}");
+        let law = rows.law_rows();
         for i in 0..s.nrows() {
             let norm = s.row(i).norm();
             let want = s.row(i) / norm;
             let err = (rows.corridors.row(i) - &want).amax();
             assert!(err < EXACT, "{name}: row {i} differs by {err:e}");
-            for (got, want) in [(rows.lower[i], lower[i]), (rows.upper[i], upper[i])] {
+            for (got, want) in [(law.lower[i], lower[i]), (law.upper[i], upper[i])] {
                 let want = want / norm;
                 assert!(
                     got == want || (got - want).abs() < EXACT * (1.0 + want.abs()),

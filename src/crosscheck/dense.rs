@@ -113,7 +113,7 @@ impl DensePlan {
                             let solved = c.solve(&gsr.transpose());
                             (&smean + solved.transpose() * &rtilde, gss - &gsr * solved)
                         };
-                        CorridorLaw::new(cov, law_mean, None, rows.law_rows(), None)
+                        CorridorLaw::new(cov, law_mean, None, rows.law_rows().clone(), None)
                     })
                     .transpose()?;
                 (Route::Free { chol, w }, law)
@@ -134,7 +134,7 @@ impl DensePlan {
                         let cov = &fsj * fsj.transpose() - &fsj_pr * (&frj * fsj.transpose());
                         let m0 = &smean + &fsj_pr * &rtilde;
                         let shift = fs_rest - &fsj_pr * fr_rest;
-                        CorridorLaw::new(cov, m0, Some(shift), rows.law_rows(), None)
+                        CorridorLaw::new(cov, m0, Some(shift), rows.law_rows().clone(), None)
                     })
                     .transpose()?;
                 let route = Route::Drivers {

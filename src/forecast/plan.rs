@@ -165,7 +165,7 @@ impl Plan {
     /// the rows differ.
     pub fn revalue(&self, theta: &Theta, rows: Arc<Rows>) -> Option<Result<Plan, ForecastError>> {
         if rows.stacked_rows() != self.rows.stacked_rows()
-            || rows.extra.len() != self.rows.extra.len()
+            || rows.law_rows().extra.len() != self.rows.law_rows().extra.len()
         {
             return None;
         }
@@ -367,7 +367,7 @@ impl Plan {
 
     /// `𝒢 Y` for paths in the columns of `y`.
     pub fn stacked_times(&self, y: &DMatrix<f64>) -> DMatrix<f64> {
-        self.rows.stacked_rows().times(y)
+        self.stacked().times(y)
     }
 
     /// The targets `(r; z)` of one path: the pin values, then the corridor quantities drawn
@@ -482,7 +482,7 @@ impl Plan {
         }
         let f = self.model_factor();
         let mean = &self.smean + f.corridor_on_pins() * &self.rtilde;
-        let rows = self.rows.law_rows();
+        let rows = self.rows.law_rows().clone();
         CorridorLaw::new(f.corridor_covariance(), mean, None, rows, self.law.as_ref()).map(Some)
     }
 
@@ -599,7 +599,7 @@ fn plan_law(
         let f_rest = DMatrix::from_fn(m + q, rest.len(), |i, c| shock_rows[(rest[c], i)]);
         f_rest.rows(m, q) - &on_pins * f_rest.rows(0, m)
     });
-    CorridorLaw::new(cov, m0, shift, rows.law_rows(), like).map(Some)
+    CorridorLaw::new(cov, m0, shift, rows.law_rows().clone(), like).map(Some)
 }
 
 /// `r̃ = r − Rμ` and `Sμ` under θ, from the stacked rows' non-zeros.

@@ -63,20 +63,17 @@ pub struct Rows {
     /// Euclidean norms of the kept pin rows before scaling (for densities in the pins' own
     /// units).
     pub pin_norms: Vec<f64>,
-    /// Kept corridor rows `S` (q×N) and their bounds `a`, `b`, with their labels.
+    /// Kept corridor rows `S` (q×N); their bounds, labels and dependent rows are in
+    /// [`Rows::law_rows`].
     pub corridors: DMatrix<f64>,
-    pub lower: DVector<f64>,
-    pub upper: DVector<f64>,
-    pub corridor_labels: Vec<String>,
     /// The corridor each kept row belongs to (its label).
     pub corridor_names: Vec<String>,
-    /// Dependent corridor rows, kept as inequalities on the corridor quantities.
-    pub extra: Vec<Extra>,
     /// What was dropped or merged, for the report.
     pub notes: Vec<String>,
     /// The non-zeros of the stacked rows `𝒢 = [R; S]`.
     stacked: SparseRows,
-    /// The kept corridor rows as every θ's corridor law shares them.
+    /// The kept corridor rows' bounds `a`, `b`, labels and dependent rows (kept as
+    /// inequalities on the corridor quantities), as every θ's corridor law shares them.
     law: Arc<LawRows>,
     /// Every pin and corridor row as given, to measure how well a path meets them.
     every_pin: (SparseRows, DVector<f64>),
@@ -319,9 +316,9 @@ impl Rows {
             }
         }
         let law = Arc::new(LawRows {
-            lower: lower.clone(),
-            upper: upper.clone(),
-            extra: extra.clone(),
+            lower,
+            upper,
+            extra,
             labels: kept.iter().map(|r| r.label.clone()).collect(),
             names,
         });
@@ -333,11 +330,7 @@ impl Rows {
             pin_norms: kept_pins.iter().map(|p| p.norm).collect(),
             pin_labels: kept_pins.into_iter().map(|p| p.label).collect(),
             corridors: corridor_rows,
-            lower,
-            upper,
-            corridor_names: kept.iter().map(|r| r.name.clone()).collect(),
-            corridor_labels: kept.into_iter().map(|r| r.label).collect(),
-            extra,
+            corridor_names: kept.into_iter().map(|r| r.name).collect(),
             notes,
             stacked,
             law,
@@ -365,15 +358,15 @@ impl Rows {
     }
 
     /// The kept corridor rows for a corridor law (shared, not copied).
-    pub fn law_rows(&self) -> Arc<LawRows> {
-        self.law.clone()
+    pub fn law_rows(&self) -> &Arc<LawRows> {
+        &self.law
     }
 
     /// Labels of the stacked rows.
     pub fn labels(&self) -> Vec<String> {
         self.pin_labels
             .iter()
-            .chain(&self.corridor_labels)
+            .chain(&self.law.labels)
             .cloned()
             .collect()
     }
