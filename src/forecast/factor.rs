@@ -21,7 +21,7 @@
 
 use nalgebra::{DMatrix, SVD};
 
-use super::product::gram;
+use super::product::{add_product, gram};
 
 /// Columns per block of the staircase products.
 const BLOCK: usize = 16;
@@ -315,11 +315,10 @@ fn times_upper(a: &DMatrix<f64>, u: &DMatrix<f64>, reach: &[usize]) -> DMatrix<f
         if rows == 0 {
             continue;
         }
-        out.view_mut((0, j0), (rows, j1 - j0)).gemm(
-            1.0,
+        add_product(
+            &mut out.view_mut((0, j0), (rows, j1 - j0)),
             &a.view((0, 0), (rows, j1)),
             &u.view((0, j0), (j1, j1 - j0)),
-            0.0,
         );
     }
     out

@@ -1,44 +1,275 @@
 //! Matrix products over chunks of paths: dense ones always as blocked matrix multiplication,
-//! and the conditions' rows (a few non-zeros each) as sparse rows.
+//! and the conditions' rows (a few non-zeros each) as sparse rows. Two products with a small
+//! dimension skip the blocked kernel's packing, which there costs as much as the arithmetic:
+//! the staircase Gram product [`gram`] (dot products of columns in place) and
+//! [`add_product`] (the VAR's recursions, period by period); each has an AVX2 and FMA kernel,
+//! chosen at run time, and a plain one.
 //!
 //! nalgebra hands a product to its blocked kernel only when every dimension exceeds five;
 //! otherwise it loops over matrix–vector products, which for a `3 × 800` conditions matrix
 //! times `800 × 300` paths is many times slower. Padding the small dimensions to six with
 //! zeros costs little and keeps the fast kernel.
 
-use nalgebra::DMatrix;
+use nalgebra::{DMatrix, DMatrixView, DMatrixViewMut};
 
 /// Smallest dimension nalgebra multiplies with its blocked kernel.
 const BLOCKED: usize = 6;
 
-/// Columns per block of [`gram`].
-const GRAM_BLOCK: usize = 16;
+/// Columns per side of a tile of [`gram`]: nine sums, each over four rows at once, stay in
+/// registers with the columns they read.
+const GRAM_TILE: usize = 3;
 
-/// `A'A` for columns zero below their first `reach[c]` rows: each block of columns times the
-/// columns up to it, over the rows the block reaches (the upper triangle), then mirrored.
+/// `A'A` for columns zero below their first `reach[c]` rows: each tile of the upper triangle
+/// as dot products of the columns in place (no transposed copy, no packing), over the rows
+/// both of its groups of columns reach, then mirrored.
 pub fn gram(a: &DMatrix<f64>, reach: &[usize]) -> DMatrix<f64> {
-    let k = a.ncols();
-    let at = a.transpose();
+    let (rows, k) = a.shape();
     let mut g = DMatrix::zeros(k, k);
-    for j0 in (0..k).step_by(GRAM_BLOCK) {
-        let j1 = (j0 + GRAM_BLOCK).min(k);
-        let rows = reach[j0..j1].iter().copied().max().unwrap_or(0);
-        if rows == 0 {
-            continue;
-        }
-        g.view_mut((0, j0), (j1, j1 - j0)).gemm(
-            1.0,
-            &at.view((0, 0), (j1, rows)),
-            &a.view((0, j0), (rows, j1 - j0)),
-            0.0,
-        );
+    if rows == 0 || k == 0 {
+        return g;
     }
-    for j in 0..k {
-        for i in j + 1..k {
-            g[(i, j)] = g[(j, i)];
+    let cols: Vec<&[f64]> = a.as_slice().chunks_exact(rows).collect();
+    let starts: Vec<usize> = (0..k).step_by(GRAM_TILE).collect();
+    let far: Vec<usize> = starts
+        .iter()
+        .map(|&c0| {
+            reach[c0..(c0 + GRAM_TILE).min(k)]
+                .iter()
+                .copied()
+                .max()
+                .unwrap_or(0)
+        })
+        .collect();
+    for (ti, &i0) in starts.iter().enumerate() {
+        for (tj, &j0) in starts.iter().enumerate().skip(ti) {
+            let len = far[ti].min(far[tj]).min(rows);
+            let sums = dot_tile(group(&cols, i0), group(&cols, j0), len);
+            for (a, row) in sums.iter().enumerate().filter(|(a, _)| i0 + a < k) {
+                for (b, &v) in row.iter().enumerate().filter(|(b, _)| j0 + b < k) {
+                    g[(i0 + a, j0 + b)] = v;
+                    g[(j0 + b, i0 + a)] = v;
+                }
+            }
         }
     }
     g
+}
+
+/// The columns `c0 …` of a tile; past the last column the tile reads its first column again
+/// (those sums are dropped).
+fn group<'a>(cols: &[&'a [f64]], c0: usize) -> [&'a [f64]; GRAM_TILE] {
+    std::array::from_fn(|t| cols.get(c0 + t).copied().unwrap_or(cols[c0]))
+}
+
+/// A tile's sums, by the AVX2 and FMA kernel when the processor has them.
+fn dot_tile(x: [&[f64]; GRAM_TILE], y: [&[f64]; GRAM_TILE], len: usize) -> Tile {
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx2") && std::arch::is_x86_feature_detected!("fma") {
+        // SAFETY: the processor has AVX2 and FMA, checked just above.
+        return unsafe { tile_fma(x, y, len) };
+    }
+    tile(x, y, len)
+}
+
+/// A tile's sums: `Σ_r x_a[r] y_b[r]` over the first `len` rows, for every pair of its
+/// columns (each at least `len` long).
+type Tile = [[f64; GRAM_TILE]; GRAM_TILE];
+
+/// A tile's sums in plain arithmetic, for processors without AVX2 and FMA.
+fn tile(x: [&[f64]; GRAM_TILE], y: [&[f64]; GRAM_TILE], len: usize) -> Tile {
+    std::array::from_fn(|a| {
+        std::array::from_fn(|b| {
+            x[a][..len]
+                .iter()
+                .zip(&y[b][..len])
+                .map(|(u, v)| u * v)
+                .sum()
+        })
+    })
+}
+
+/// A tile's sums four rows at a time: nine fused multiply–adds on six loads per four rows,
+/// the nine sums held in registers.
+///
+/// # Safety
+/// The processor must have AVX2 and FMA.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2,fma")]
+unsafe fn tile_fma(x: [&[f64]; GRAM_TILE], y: [&[f64]; GRAM_TILE], len: usize) -> Tile {
+    use std::arch::x86_64::{
+        __m256d, _mm256_fmadd_pd, _mm256_loadu_pd, _mm256_setzero_pd, _mm256_storeu_pd,
+    };
+    // No closures here: they would not inherit the target features.
+    for c in x.iter().chain(&y) {
+        assert!(c.len() >= len);
+    }
+    let mut acc: [[__m256d; GRAM_TILE]; GRAM_TILE] = [[_mm256_setzero_pd(); GRAM_TILE]; GRAM_TILE];
+    let mut ys = [_mm256_setzero_pd(); GRAM_TILE];
+    let mut r = 0;
+    while r + 4 <= len {
+        for b in 0..GRAM_TILE {
+            // SAFETY: r + 4 ≤ len ≤ the column's length (asserted above).
+            ys[b] = unsafe { _mm256_loadu_pd(y[b].as_ptr().add(r)) };
+        }
+        for a in 0..GRAM_TILE {
+            // SAFETY: as above.
+            let xv = unsafe { _mm256_loadu_pd(x[a].as_ptr().add(r)) };
+            for b in 0..GRAM_TILE {
+                acc[a][b] = _mm256_fmadd_pd(xv, ys[b], acc[a][b]);
+            }
+        }
+        r += 4;
+    }
+    let mut out = [[0.0; GRAM_TILE]; GRAM_TILE];
+    for a in 0..GRAM_TILE {
+        for b in 0..GRAM_TILE {
+            let mut lanes = [0.0; 4];
+            // SAFETY: `lanes` holds four values.
+            unsafe { _mm256_storeu_pd(lanes.as_mut_ptr(), acc[a][b]) };
+            let mut sum = (lanes[0] + lanes[1]) + (lanes[2] + lanes[3]);
+            for t in r..len {
+                sum += x[a][t] * y[b][t];
+            }
+            out[a][b] = sum;
+        }
+    }
+    out
+}
+
+/// `out += A B` (out: r × c, A: r × q, B: q × c) without packing the operands: for the
+/// products of a few dozen rows that the VAR's recursions make period by period, where the
+/// blocked kernel spends as long packing its operands as multiplying them. Without AVX2 and
+/// FMA, the blocked kernel.
+pub fn add_product(out: &mut DMatrixViewMut<f64>, a: &DMatrixView<f64>, b: &DMatrixView<f64>) {
+    assert_eq!(
+        (out.nrows(), out.ncols(), a.ncols()),
+        (a.nrows(), b.ncols(), b.nrows()),
+        "product shapes"
+    );
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx2") && std::arch::is_x86_feature_detected!("fma") {
+        // SAFETY: the processor has AVX2 and FMA, checked just above; the shapes agree.
+        unsafe { add_product_fma(out, a, b) };
+        return;
+    }
+    out.gemm(1.0, a, b, 1.0);
+}
+
+/// [`add_product`] by panels of four columns of `out` (then single columns), each by tiles
+/// of eight rows (then four, then one at a time).
+///
+/// # Safety
+/// The processor must have AVX2 and FMA, and the shapes must agree.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2,fma")]
+unsafe fn add_product_fma(
+    out: &mut DMatrixViewMut<f64>,
+    a: &DMatrixView<f64>,
+    b: &DMatrixView<f64>,
+) {
+    let c = b.ncols();
+    let operands = Operands {
+        rows: a.nrows(),
+        inner: a.ncols(),
+        a: a.as_ptr(),
+        a_col: a.strides().1,
+        b: b.as_ptr(),
+        b_col: b.strides().1,
+        out: out.as_mut_ptr(),
+        out_col: out.strides().1,
+    };
+    let mut j = 0;
+    while j + 4 <= c {
+        // SAFETY: columns j..j+4 exist in `b` and `out`.
+        unsafe { panel::<4>(&operands, j) };
+        j += 4;
+    }
+    while j < c {
+        // SAFETY: column j exists in `b` and `out`.
+        unsafe { panel::<1>(&operands, j) };
+        j += 1;
+    }
+}
+
+/// Where the operands of [`add_product_fma`] live: every view has unit row stride, and its
+/// columns are `*_col` apart.
+#[cfg(target_arch = "x86_64")]
+struct Operands {
+    rows: usize,
+    inner: usize,
+    a: *const f64,
+    a_col: usize,
+    b: *const f64,
+    b_col: usize,
+    out: *mut f64,
+    out_col: usize,
+}
+
+/// Columns `j..j+C` of `out += A B`.
+///
+/// # Safety
+/// AVX2 and FMA; columns `j..j+C` exist in `B` and `out`.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2,fma")]
+unsafe fn panel<const C: usize>(o: &Operands, j: usize) {
+    use std::arch::x86_64::{
+        _mm256_broadcast_sd, _mm256_fmadd_pd, _mm256_loadu_pd, _mm256_setzero_pd, _mm256_storeu_pd,
+    };
+    // SAFETY (every access below): row i < rows, inner index k < inner and column j + c with
+    // c < C are inside the views, whose elements sit at row + column × stride.
+    let at_out = |i: usize, c: usize| unsafe { o.out.add(i + (j + c) * o.out_col) };
+    let at_a = |i: usize, k: usize| unsafe { o.a.add(i + k * o.a_col) };
+    let at_b = |k: usize, c: usize| unsafe { o.b.add(k + (j + c) * o.b_col) };
+    // Tiles of eight rows (two vectors per column), then of four.
+    let mut i = 0;
+    while i + 8 <= o.rows {
+        let mut acc = [[_mm256_setzero_pd(); 2]; C];
+        for (c, pair) in acc.iter_mut().enumerate() {
+            pair[0] = unsafe { _mm256_loadu_pd(at_out(i, c)) };
+            pair[1] = unsafe { _mm256_loadu_pd(at_out(i + 4, c)) };
+        }
+        for k in 0..o.inner {
+            let a0 = unsafe { _mm256_loadu_pd(at_a(i, k)) };
+            let a1 = unsafe { _mm256_loadu_pd(at_a(i + 4, k)) };
+            for (c, pair) in acc.iter_mut().enumerate() {
+                let bk = unsafe { _mm256_broadcast_sd(&*at_b(k, c)) };
+                pair[0] = _mm256_fmadd_pd(a0, bk, pair[0]);
+                pair[1] = _mm256_fmadd_pd(a1, bk, pair[1]);
+            }
+        }
+        for (c, pair) in acc.iter().enumerate() {
+            unsafe { _mm256_storeu_pd(at_out(i, c), pair[0]) };
+            unsafe { _mm256_storeu_pd(at_out(i + 4, c), pair[1]) };
+        }
+        i += 8;
+    }
+    while i + 4 <= o.rows {
+        let mut acc = [_mm256_setzero_pd(); C];
+        for (c, v) in acc.iter_mut().enumerate() {
+            *v = unsafe { _mm256_loadu_pd(at_out(i, c)) };
+        }
+        for k in 0..o.inner {
+            let a0 = unsafe { _mm256_loadu_pd(at_a(i, k)) };
+            for (c, v) in acc.iter_mut().enumerate() {
+                let bk = unsafe { _mm256_broadcast_sd(&*at_b(k, c)) };
+                *v = _mm256_fmadd_pd(a0, bk, *v);
+            }
+        }
+        for (c, v) in acc.iter().enumerate() {
+            unsafe { _mm256_storeu_pd(at_out(i, c), *v) };
+        }
+        i += 4;
+    }
+    while i < o.rows {
+        for c in 0..C {
+            let mut sum = unsafe { *at_out(i, c) };
+            for k in 0..o.inner {
+                sum += unsafe { *at_a(i, k) * *at_b(k, c) };
+            }
+            unsafe { *at_out(i, c) = sum };
+        }
+        i += 1;
+    }
 }
 
 /// `A B`, by the blocked kernel whatever the shapes.
@@ -177,6 +408,71 @@ impl SparseRows {
 
 #[cfg(test)]
 mod tests {
+
+    /// A matrix whose column `c` is zero below row `reach[c]`, entries from a fixed formula.
+    fn staircase(rows: usize, reach: &[usize]) -> DMatrix<f64> {
+        DMatrix::from_fn(rows, reach.len(), |i, c| {
+            if i < reach[c] {
+                ((3 * i + 7 * c) as f64 * 0.37).sin()
+            } else {
+                0.0
+            }
+        })
+    }
+
+    /// The tiled Gram product, by the AVX2 kernel where the processor has it and by the plain
+    /// tile everywhere, equals nalgebra's dense `A'A` (a general-purpose library's product):
+    /// column counts around the tile, row counts around the four-row step, reaches in any
+    /// order, zero rows and zero reach.
+    #[test]
+    fn gram_is_the_dense_product() {
+        for (rows, k) in [(0, 3), (5, 1), (7, 2), (13, 3), (40, 4), (401, 65), (9, 10)] {
+            let reach: Vec<usize> = (0..k).map(|c| (c * 37 + 11) % (rows + 1)).collect();
+            let a = staircase(rows, &reach);
+            let dense = a.transpose() * &a;
+            let g = gram(&a, &reach);
+            let tol = 1e-13 * (1.0 + dense.amax());
+            assert!((&g - &dense).amax() < tol, "rows {rows}, k {k}");
+            assert_eq!(g, g.transpose(), "symmetric");
+            // The plain tile on its own, on the first columns.
+            if rows > 0 && k >= GRAM_TILE {
+                let cols: Vec<&[f64]> = a.as_slice().chunks_exact(rows).collect();
+                let sums = tile(group(&cols, 0), group(&cols, 0), rows);
+                for (x, row) in sums.iter().enumerate() {
+                    for (y, v) in row.iter().enumerate() {
+                        assert!((v - dense[(x, y)]).abs() < tol);
+                    }
+                }
+            }
+        }
+    }
+
+    /// `out += A B` on views with column strides (blocks of larger matrices), every shape
+    /// around the kernel's eight- and four-row tiles and four-column panels, equals nalgebra's
+    /// dense product added to `out`.
+    #[test]
+    fn add_product_is_the_dense_product() {
+        for (r, q, c) in [
+            (1, 1, 1),
+            (3, 5, 2),
+            (4, 7, 4),
+            (8, 3, 5),
+            (13, 80, 9),
+            (20, 80, 20),
+        ] {
+            let big_a = DMatrix::from_fn(r + 3, q + 2, |i, j| ((i * 5 + j * 3) as f64).cos());
+            let big_b = DMatrix::from_fn(q + 4, c + 1, |i, j| ((i * 2 + j * 7) as f64).sin());
+            let mut big_out = DMatrix::from_fn(r + 2, c + 3, |i, j| (i + j) as f64 * 0.1);
+            let (a, b) = (big_a.view((2, 1), (r, q)), big_b.view((3, 1), (q, c)));
+            let expected = big_out.view((1, 2), (r, c)) + a * b;
+            add_product(&mut big_out.view_mut((1, 2), (r, c)), &a, &b);
+            let got = big_out.view((1, 2), (r, c));
+            assert!((got - &expected).amax() < 1e-12 * q as f64, "{r}×{q}×{c}");
+            // Outside the block nothing changed.
+            assert_eq!(big_out[(0, 0)], 0.0);
+            assert_eq!(big_out[(r + 1, c + 2)], (r + 1 + c + 2) as f64 * 0.1);
+        }
+    }
 
     /// The blocked triangular product equals the dense one (both sizes around the block).
     #[test]

@@ -24,7 +24,10 @@ use nalgebra::{DMatrix, DVector};
 use rand::Rng;
 use rand_distr::{Distribution, StandardNormal};
 
-use super::{ForecastError, product::SparseRows};
+use super::{
+    ForecastError,
+    product::{SparseRows, add_product},
+};
 use crate::model::Params;
 
 /// θ-level cache: coefficients, identification and the unconditional mean.
@@ -113,7 +116,7 @@ impl Theta {
         for t in 1..self.h {
             let m = p.min(t);
             let (mut now, past) = x.rows_range_pair_mut(t * n..(t + 1) * n, (t - m) * n..t * n);
-            now.gemm(1.0, &lags.columns((p - m) * n, m * n), &past, 1.0);
+            add_product(&mut now, &lags.columns((p - m) * n, m * n), &past.into());
         }
     }
 
@@ -138,11 +141,10 @@ impl Theta {
             }
             let (mut now, future) =
                 x.rows_range_pair_mut(t * n..(t + 1) * n, (t + 1) * n..(t + 1 + m) * n);
-            now.columns_mut(0, active).gemm(
-                1.0,
+            add_product(
+                &mut now.columns_mut(0, active),
                 &lags_t.columns(0, m * n),
                 &future.columns(0, active),
-                1.0,
             );
         }
     }
@@ -247,12 +249,13 @@ impl Theta {
         for k in 1..h {
             let m = p.min(k);
             let (mut now, past) = phi.rows_range_pair_mut(k * n..(k + 1) * n, (k - m) * n..k * n);
-            now.gemm(1.0, &lags_t.columns((p - m) * n, m * n), &past, 0.0);
+            add_product(&mut now, &lags_t.columns((p - m) * n, m * n), &past.into());
         }
         let l_t = self.impact.transpose();
         let mut tmp = DMatrix::zeros(n, width);
         for k in 0..h {
-            tmp.gemm(1.0, &l_t, &phi.rows(k * n, n), 0.0);
+            tmp.fill(0.0);
+            add_product(&mut tmp.as_view_mut(), &l_t.as_view(), &phi.rows(k * n, n));
             phi.rows_mut(k * n, n).copy_from(&tmp);
         }
         let big_n = self.len();
