@@ -23,8 +23,8 @@ use rayon::prelude::*;
 use crate::attribution::{Attribution, Part, attribute};
 use crate::checks::{CheckReport, Finding, Severity, Status, check_conditions};
 use crate::forecast::{
-    Conditions, DrawSpec, ForecastError, ParamSource, PathSet, Plan, Theta, ThetaSet, build_thetas,
-    normalise, path_weights,
+    Conditions, DrawSpec, ForecastError, ParamSource, PathSet, Plan, PlanBasis, Theta, ThetaSet,
+    build_thetas, normalise, path_weights,
     random::{Purpose, stream},
 };
 use crate::model::FitSummary;
@@ -323,8 +323,11 @@ pub fn check_draws(
     }
     let settings = &setup.file.checks;
     let count = thetas.thetas.len().min(DRAWS_RECHECKED);
+    // Planned as a run plans them: shared rows, laid out like the first draw's law.
+    let basis = PlanBasis::new(thetas, conditions);
     let fails = |i: usize| -> Option<ForecastError> {
-        let plan = match Plan::new(&thetas.thetas[i], conditions, Some(i)) {
+        let planned = basis.as_ref().map_err(|e| e.clone().in_draw(i));
+        let plan = match planned.and_then(|b| b.plan(&thetas.thetas[i], conditions, Some(i))) {
             Ok(plan) => plan,
             Err(e) => return Some(e),
         };

@@ -436,28 +436,10 @@ pub fn sample_paths(
     how: Sampling,
     cancel: &AtomicBool,
 ) -> Result<PathSet, ForecastError> {
-    // Conditions on observables make the same rows under every θ: make them once.
-    let shared = match (cond.on_shocks(), set.thetas.get(range.start)) {
-        (false, Some(theta)) => Some(Arc::new(Rows::new(theta, cond, None)?)),
-        _ => None,
-    };
-    // Every θ's corridor law is laid out like the first θ's (the order of its variables only
-    // affects speed): no reordering search, and a warm start for its saddle point. The first
-    // θ of the whole set, so that blocks of a streamed run draw what one run would.
-    let reference = set.thetas.first().and_then(|theta| {
-        let plan = match &shared {
-            Some(rows) => Plan::with_rows(theta, rows.clone(), cond, None, None),
-            None => Plan::new(theta, cond, None),
-        };
-        plan.ok().and_then(|p| p.law().cloned())
-    });
-    let shared = Shared {
-        rows: shared.as_ref(),
-        law: reference.as_ref(),
-    };
+    let basis = PlanBasis::new(set, cond)?;
     let blocks = range
         .into_par_iter()
-        .map(|i| one_theta(set, i, &shared, cond, how, cancel))
+        .map(|i| one_theta(set, i, &basis, cond, how, cancel))
         .collect::<Vec<_>>();
     let mut all = PathSet {
         fixed: set.fixed,
@@ -469,11 +451,60 @@ pub fn sample_paths(
     Ok(all)
 }
 
-/// What every θ's plan starts from: the rows (when they do not depend on θ) and a corridor
-/// law to lay its own out like.
-struct Shared<'a> {
-    rows: Option<&'a Arc<Rows>>,
-    law: Option<&'a CorridorLaw>,
+/// What every θ's plan starts from: the rows, made once when the conditions are on
+/// observables (the same rows under every θ), and the first θ's corridor law, which every θ's
+/// law is laid out like (the order of its variables only affects speed): no reordering search,
+/// and a warm start for its saddle point. The first θ of the whole set, so that blocks of a
+/// streamed run draw what one run would.
+pub struct PlanBasis {
+    rows: Option<Arc<Rows>>,
+    law: Option<CorridorLaw>,
+}
+
+impl PlanBasis {
+    pub fn new(set: &ThetaSet, cond: &Conditions) -> Result<PlanBasis, ForecastError> {
+        let rows = match (cond.on_shocks(), set.thetas.first()) {
+            (false, Some(theta)) => Some(Arc::new(Rows::new(theta, cond, None)?)),
+            _ => None,
+        };
+        let mut basis = PlanBasis { rows, law: None };
+        basis.law = set.thetas.first().and_then(|theta| {
+            basis
+                .plan(theta, cond, None)
+                .ok()
+                .and_then(|p| p.law().cloned())
+        });
+        Ok(basis)
+    }
+
+    /// θ's rows: the shared ones, or its own.
+    fn rows(
+        &self,
+        theta: &Theta,
+        cond: &Conditions,
+        draw: Option<usize>,
+    ) -> Result<Arc<Rows>, ForecastError> {
+        match &self.rows {
+            Some(rows) => Ok(rows.clone()),
+            None => Rows::new(theta, cond, draw).map(Arc::new),
+        }
+    }
+
+    /// θ's plan, from the shared rows and laid out like the first θ's law.
+    pub fn plan(
+        &self,
+        theta: &Theta,
+        cond: &Conditions,
+        draw: Option<usize>,
+    ) -> Result<Plan, ForecastError> {
+        Plan::with_rows(
+            theta,
+            self.rows(theta, cond, draw)?,
+            cond,
+            draw,
+            self.law.as_ref(),
+        )
+    }
 }
 
 /// The paths of θ `i`: its plan, then its paths in chunks (in parallel for fixed
@@ -482,7 +513,7 @@ struct Shared<'a> {
 fn one_theta(
     set: &ThetaSet,
     i: usize,
-    shared: &Shared,
+    basis: &PlanBasis,
     cond: &Conditions,
     how: Sampling,
     cancel: &AtomicBool,
@@ -501,16 +532,15 @@ fn one_theta(
         ..PathSet::default()
     };
     let planned = match how.engine {
-        EngineKind::Main => plan_for(theta, shared, cond, how, i, draw)
+        EngineKind::Main => plan_for(theta, basis, cond, how, i, draw)
             .map(|(plan, w)| (Conditioner::Main(Box::new(plan)), w)),
         other if how.reweight => Err(ForecastError::Unsupported {
             engine: other.name().into(),
             what: "does not reweight posterior draws".into(),
         }),
-        other => shared
-            .rows
-            .map_or_else(|| Rows::new(theta, cond, draw), |r| Ok(Rows::clone(r)))
-            .and_then(|rows| Conditioner::cross_check(other, theta, rows, cond, draw))
+        other => basis
+            .rows(theta, cond, draw)
+            .and_then(|rows| Conditioner::cross_check(other, theta, Rows::clone(&rows), cond, draw))
             .map(|c| (c, None)),
     }
     .map_err(name);
@@ -591,19 +621,13 @@ fn one_theta(
 /// The plan of θ `i`, screened for hopeless corridors, and its log weight when reweighting.
 fn plan_for(
     theta: &Theta,
-    shared: &Shared,
+    basis: &PlanBasis,
     cond: &Conditions,
     how: Sampling,
     i: usize,
     draw: Option<usize>,
 ) -> Result<(Plan, Option<f64>), ForecastError> {
-    let plan = match shared.rows {
-        Some(rows) => Plan::with_rows(theta, rows.clone(), cond, draw, shared.law),
-        None => {
-            let rows = Arc::new(Rows::new(theta, cond, draw)?);
-            Plan::with_rows(theta, rows, cond, draw, shared.law)
-        }
-    }?;
+    let plan = basis.plan(theta, cond, draw)?;
     plan.expect_paths(theta, how.paths_per_theta);
     // Fail fast, naming the draw, rather than spend the path budget on a hopeless θ.
     let mut rng = stream(how.seed, Purpose::Acceptance, i as u64);

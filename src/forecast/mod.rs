@@ -29,8 +29,8 @@ pub mod theta;
 
 pub use conditions::{Bounded, Conditions, Corridor, Driver, Pin, Target};
 pub use engine::{
-    DrawSpec, Failure, ParamSource, PathSet, RootSummary, Sampling, ThetaSet, build_thetas,
-    normalise, path_weights, sample_paths,
+    DrawSpec, Failure, ParamSource, PathSet, PlanBasis, RootSummary, Sampling, ThetaSet,
+    build_thetas, normalise, path_weights, sample_paths,
 };
 pub use plan::Plan;
 pub use rows::{PathRow, path_rows};
