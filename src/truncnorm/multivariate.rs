@@ -89,7 +89,12 @@ impl TruncatedNormal {
         check_box(lower, upper)?;
         let order = reorder(sigma, lower, upper)?;
         let (lo, hi) = order.scale_bounds(lower, upper);
-        let tilt = tilting::solve(&order, &lo, &hi, tilting::cold_start(&order, &lo, &hi));
+        let tilt = tilting::solve(
+            &order,
+            &lo,
+            &hi,
+            vec![tilting::cold_start(&order, &lo, &hi)],
+        );
         Ok(TruncatedNormal {
             order,
             lo,
@@ -139,22 +144,14 @@ impl TruncatedNormal {
         check_box(lower, upper)?;
         let (lo, hi) = order.scale_bounds(lower, upper);
         let m = self.dim() - 1;
-        let cold = tilting::cold_start(&order, &lo, &hi);
-        let start = match self.tilt.status {
-            SolveStatus::Converged { .. } => {
-                let mut warm = DVector::zeros(2 * m);
-                warm.rows_mut(0, m).copy_from_slice(&self.tilt.x);
-                warm.rows_mut(m, m).copy_from_slice(&self.tilt.mu[..m]);
-                let size = |v: &DVector<f64>| tilting::gradient_size(&order, &lo, &hi, v);
-                if size(&warm) < size(&cold) {
-                    warm
-                } else {
-                    cold
-                }
-            }
-            SolveStatus::Fallback => cold,
-        };
-        let tilt = tilting::solve(&order, &lo, &hi, start);
+        let mut starts = vec![tilting::cold_start(&order, &lo, &hi)];
+        if let SolveStatus::Converged { .. } = self.tilt.status {
+            let mut warm = DVector::zeros(2 * m);
+            warm.rows_mut(0, m).copy_from_slice(&self.tilt.x);
+            warm.rows_mut(m, m).copy_from_slice(&self.tilt.mu[..m]);
+            starts.push(warm);
+        }
+        let tilt = tilting::solve(&order, &lo, &hi, starts);
         Ok(TruncatedNormal {
             order,
             lo,

@@ -188,19 +188,33 @@ fn half_sq(g: &DVector<f64>) -> f64 {
     0.5 * g.norm_squared()
 }
 
-/// Find the saddle point, starting from `start` (`v = (x, μ)`, length 2(d−1)).
-pub fn solve(o: &Ordered, lo: &[f64], hi: &[f64], start: DVector<f64>) -> Tilt {
+/// Find the saddle point, starting from whichever of `starts` (`v = (x, μ)`, length 2(d−1);
+/// at least one) has the smallest gradient, the first of equals.
+pub fn solve(o: &Ordered, lo: &[f64], hi: &[f64], starts: Vec<DVector<f64>>) -> Tilt {
     let d = o.dim();
     let m = d - 1;
+    let size = |e: &Eval| {
+        if e.grad.iter().all(|g| g.is_finite()) {
+            e.grad.amax()
+        } else {
+            f64::INFINITY
+        }
+    };
+    let (mut v, mut e) = starts
+        .into_iter()
+        .map(|v| {
+            let e = evaluate(o, lo, hi, &v);
+            (v, e)
+        })
+        .min_by(|a, b| size(&a.1).total_cmp(&size(&b.1)))
+        .expect("at least one start");
     if m == 0 {
-        return finish(o, lo, hi, start, 0);
+        return finish(o, lo, hi, v, e, 0);
     }
-    let mut v = start;
-    let mut e = evaluate(o, lo, hi, &v);
     for it in 0..NEWTON_ITERATIONS {
         let gmax = e.grad.amax();
         if gmax <= GRAD_TOL {
-            return finish(o, lo, hi, v, it);
+            return finish(o, lo, hi, v, e, it);
         }
         let Some(step) = newton_direction(o, &e).filter(|s| s.iter().all(|x| x.is_finite())) else {
             break;
@@ -226,24 +240,29 @@ pub fn solve(o: &Ordered, lo: &[f64], hi: &[f64], start: DVector<f64>) -> Tilt {
                 v = trial;
                 e = et;
                 if moved <= STEP_TOL * (1.0 + v.amax()) && e.grad.amax() <= GRAD_ACCEPT {
-                    return finish(o, lo, hi, v, it + 1);
+                    return finish(o, lo, hi, v, e, it + 1);
                 }
             }
-            None if gmax <= GRAD_ACCEPT => return finish(o, lo, hi, v, it),
+            None if gmax <= GRAD_ACCEPT => return finish(o, lo, hi, v, e, it),
             None => break,
         }
     }
-    levenberg_marquardt(o, lo, hi, v)
+    levenberg_marquardt(o, lo, hi, v, e)
 }
 
 /// Levenberg–Marquardt on `∇ψ = 0`: `(J'J + λ I) δ = −J' g`, λ adapted to the progress.
-fn levenberg_marquardt(o: &Ordered, lo: &[f64], hi: &[f64], mut v: DVector<f64>) -> Tilt {
+fn levenberg_marquardt(
+    o: &Ordered,
+    lo: &[f64],
+    hi: &[f64],
+    mut v: DVector<f64>,
+    mut e: Eval,
+) -> Tilt {
     let m2 = v.len();
-    let mut e = evaluate(o, lo, hi, &v);
     let mut lambda = 1e-3;
     for it in 0..LM_ITERATIONS {
         if e.grad.amax() <= GRAD_TOL {
-            return finish(o, lo, hi, v, NEWTON_ITERATIONS + it);
+            return finish(o, lo, hi, v, e, NEWTON_ITERATIONS + it);
         }
         let jac = hessian(o, &e.var);
         let jtj = jac.transpose() * &jac;
@@ -267,7 +286,7 @@ fn levenberg_marquardt(o: &Ordered, lo: &[f64], hi: &[f64], mut v: DVector<f64>)
         }
     }
     if e.grad.amax() <= GRAD_ACCEPT {
-        return finish(o, lo, hi, v, NEWTON_ITERATIONS + LM_ITERATIONS);
+        return finish(o, lo, hi, v, e, NEWTON_ITERATIONS + LM_ITERATIONS);
     }
     Tilt {
         mu: vec![0.0; o.dim()],
@@ -282,9 +301,16 @@ fn levenberg_marquardt(o: &Ordered, lo: &[f64], hi: &[f64], mut v: DVector<f64>)
 /// Newton step would still promise and a rounding allowance: the accept–reject step needs
 /// `ψ(w; μ*) ≤ ψ*` for every `w`, and a saddle point accepted at a gradient of 1e−6 (or found by
 /// Levenberg–Marquardt) only approximates the maximiser.
-fn finish(o: &Ordered, lo: &[f64], hi: &[f64], mut v: DVector<f64>, iterations: usize) -> Tilt {
+/// `e` is the evaluation at `v`.
+fn finish(
+    o: &Ordered,
+    lo: &[f64],
+    hi: &[f64],
+    mut v: DVector<f64>,
+    mut e: Eval,
+    iterations: usize,
+) -> Tilt {
     let m = o.dim() - 1;
-    let mut e = evaluate(o, lo, hi, &v);
     let mut promise = 0.0;
     for _ in 0..POLISH_ITERATIONS {
         let gx = e.grad.rows(0, m).into_owned();
@@ -349,19 +375,6 @@ pub fn cold_start(o: &Ordered, lo: &[f64], hi: &[f64]) -> DVector<f64> {
     let mut v = DVector::zeros(2 * m);
     v.rows_mut(0, m).copy_from_slice(&z[..m]);
     v
-}
-
-/// The gradient norm `‖∇ψ‖_∞` at `v`, to choose between starts.
-pub fn gradient_size(o: &Ordered, lo: &[f64], hi: &[f64], v: &DVector<f64>) -> f64 {
-    if o.dim() < 2 {
-        return 0.0;
-    }
-    let g = evaluate(o, lo, hi, v).grad;
-    if g.iter().all(|x| x.is_finite()) {
-        g.amax()
-    } else {
-        f64::INFINITY
-    }
 }
 
 #[cfg(test)]
@@ -449,7 +462,7 @@ mod tests {
         let start = cold_start(&o, &lo, &hi);
         let e0 = evaluate(&o, &lo, &hi, &start);
         assert!(e0.grad.rows(m, m).amax() < 1e-12);
-        let tilt = solve(&o, &lo, &hi, start);
+        let tilt = solve(&o, &lo, &hi, vec![start]);
         let SolveStatus::Converged { iterations } = tilt.status else {
             panic!("no convergence")
         };
@@ -473,9 +486,10 @@ mod tests {
     #[test]
     fn levenberg_marquardt_finds_the_same_saddle_point() {
         let (o, lo, hi) = problem(5);
-        let newton = solve(&o, &lo, &hi, cold_start(&o, &lo, &hi));
+        let newton = solve(&o, &lo, &hi, vec![cold_start(&o, &lo, &hi)]);
         let start = DVector::from_element(8, 0.7);
-        let lm = levenberg_marquardt(&o, &lo, &hi, start);
+        let e = evaluate(&o, &lo, &hi, &start);
+        let lm = levenberg_marquardt(&o, &lo, &hi, start, e);
         assert!(matches!(lm.status, SolveStatus::Converged { .. }));
         assert!((lm.psi_star - newton.psi_star).abs() < 1e-9);
         for (a, b) in lm.mu.iter().zip(&newton.mu) {
