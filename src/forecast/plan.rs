@@ -113,7 +113,6 @@ impl Plan {
         let (m, q) = (rows.pins.nrows(), rows.corridors.nrows());
         let (rtilde, smean) = departures_of_mean(theta, &rows);
         let shock_rows = theta.conditions_in_shocks(rows.stacked_rows());
-        let labels = rows.labels();
         let (cells, rest) = match cond.driver_cells(theta.n(), theta.h) {
             None => (None, Vec::new()),
             Some(mask) => (
@@ -125,15 +124,15 @@ impl Plan {
         if cells.is_some() {
             let width = cells.as_ref().map_or(0, Vec::len).max(m + q);
             reach::check(&factor, width).map_err(|involved| ForecastError::Unreachable {
-                conditions: involved.iter().map(|&i| labels[i].clone()).collect(),
+                conditions: involved.iter().map(|&i| rows.label(i).to_owned()).collect(),
                 drivers: cond.driver_names(),
                 draw,
             })?;
         }
-        well_conditioned(&factor, &labels, draw)?;
+        well_conditioned(&factor, &rows, draw)?;
         if !factor.invertible() {
             return Err(ForecastError::NearlyDependent {
-                conditions: labels.clone(),
+                conditions: rows.labels(),
                 draw,
             });
         }
@@ -560,7 +559,7 @@ const NEARLY_DEPENDENT: f64 = 1e12;
 /// scaled `Γ` has condition `cond(U)²`, screened first by [`Factor::condition_bound`].
 fn well_conditioned(
     factor: &Factor,
-    labels: &[String],
+    rows: &Rows,
     draw: Option<usize>,
 ) -> Result<(), ForecastError> {
     if factor.condition_bound().powi(2) <= NEARLY_DEPENDENT {
@@ -571,7 +570,7 @@ fn well_conditioned(
         return Ok(());
     }
     Err(ForecastError::NearlyDependent {
-        conditions: involved.iter().map(|&i| labels[i].clone()).collect(),
+        conditions: involved.iter().map(|&i| rows.label(i).to_owned()).collect(),
         draw,
     })
 }

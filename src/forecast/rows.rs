@@ -371,6 +371,16 @@ impl Rows {
             .collect()
     }
 
+    /// The label of stacked row `i` (pins first, then the kept corridor rows).
+    pub fn label(&self, i: usize) -> &str {
+        let m = self.pin_labels.len();
+        if i < m {
+            &self.pin_labels[i]
+        } else {
+            &self.law.labels[i - m]
+        }
+    }
+
     /// Largest pin error of a path over every pin as given, relative:
     /// `max |ρ'y − r| / (1 + |r|)`.
     pub fn pin_error(&self, y: &[f64]) -> f64 {
