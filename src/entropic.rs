@@ -103,8 +103,18 @@ pub fn tilt(base: &[f64], g: &[Vec<f64>], targets: &[f64]) -> Result<Tilt, TiltE
         });
         match trial {
             Some((l, v)) => (lambda, value) = (l, v),
-            // The dual cannot fall further: rounding's floor.
-            None => break,
+            // The dual cannot fall further: rounding's floor. Near the minimum it is flat to
+            // rounding while the gradient still shrinks under Newton's full step (quadratic
+            // convergence): take the step while it does.
+            None => {
+                let full: Vec<f64> = (0..k).map(|j| lambda[j] - step[j]).collect();
+                if residual_at(&full).3 < residual {
+                    value = dual(&pi, g, targets, &full).0;
+                    lambda = full;
+                } else {
+                    break;
+                }
+            }
         }
     }
     let (w, grad, _, residual) = residual_at(&lambda);
