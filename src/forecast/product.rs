@@ -304,18 +304,17 @@ pub fn mul(a: &DMatrix<f64>, b: &DMatrix<f64>) -> DMatrix<f64> {
 const TRIANGLE_BLOCK: usize = 32;
 
 /// `U Y` for an upper-triangular `U` (k × k): each block of `U`'s columns times the matching
-/// rows of `Y`, over the rows of `U` the block reaches — about half the dense product, still
-/// as blocked matrix products.
+/// rows of `Y`, over the rows of `U` the block reaches — about half the dense product, by
+/// [`add_product`].
 pub fn upper_times(u: &DMatrix<f64>, y: &DMatrix<f64>) -> DMatrix<f64> {
     let k = u.ncols();
     let mut out = DMatrix::zeros(u.nrows(), y.ncols());
     for j0 in (0..k).step_by(TRIANGLE_BLOCK) {
         let j1 = (j0 + TRIANGLE_BLOCK).min(k);
-        out.rows_mut(0, j1).gemm(
-            1.0,
+        add_product(
+            &mut out.rows_mut(0, j1),
             &u.view((0, j0), (j1, j1 - j0)),
             &y.rows(j0, j1 - j0),
-            1.0,
         );
     }
     out

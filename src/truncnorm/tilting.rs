@@ -77,11 +77,12 @@ fn evaluate(o: &Ordered, lo: &[f64], hi: &[f64], v: &DVector<f64>) -> Eval {
         let c = o.shift(k, x);
         let mk = if k < m { mu[k] } else { 0.0 };
         let (a, b) = (lo[k] - c - mk, hi[k] - c - mk);
-        psi += univariate::ln_prob(a, b);
+        let lp;
+        (lp, mean[k], var[k]) = univariate::ln_prob_mean_var(a, b);
+        psi += lp;
         if k < m {
             psi += 0.5 * mk * mk - mk * x[k];
         }
-        (mean[k], var[k]) = univariate::mean_var(a, b);
     }
     let mut grad = DVector::zeros(2 * m);
     for j in 0..m {

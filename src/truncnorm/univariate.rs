@@ -223,6 +223,19 @@ fn inverse_mills(x: f64) -> (f64, f64) {
 ///   variances `Var_x = 1 − r_x (r_x − x)`.
 /// - Otherwise the textbook ratios.
 pub fn mean_var(a: f64, b: f64) -> (f64, f64) {
+    moments(a, b, || ln_prob(a, b))
+}
+
+/// `ln P(a ≤ Z ≤ b)` with the truncated mean and variance, the probability made once (the
+/// moments of an interval around the centre need it too).
+pub fn ln_prob_mean_var(a: f64, b: f64) -> (f64, f64, f64) {
+    let lp = ln_prob(a, b);
+    let (mean, var) = moments(a, b, || lp);
+    (lp, mean, var)
+}
+
+/// [`mean_var`], given how to find `ln P(a ≤ Z ≤ b)` when the interval holds the centre.
+fn moments(a: f64, b: f64, ln_prob_ab: impl FnOnce() -> f64) -> (f64, f64) {
     if a.is_finite() && b.is_finite() {
         let (h, c) = (b - a, 0.5 * a + 0.5 * b);
         if h * c.abs().max(1.0) <= 4.0 {
@@ -236,7 +249,7 @@ pub fn mean_var(a: f64, b: f64) -> (f64, f64) {
         let (mean, var) = tail_moments(-b, -a);
         return (-mean, var);
     }
-    let lp = ln_prob(a, b);
+    let lp = ln_prob_ab();
     // φ(x)/P and x·φ(x)/P, with x·φ(x) = 0 at infinite x.
     let ratio = |x: f64| {
         if x.is_infinite() {
@@ -258,17 +271,14 @@ fn short_moments(c: f64, half: f64) -> (f64, f64) {
     let (nodes, weights) = gauss_legendre();
     let mut mass = 0.0;
     let mut first = 0.0;
-    let terms: Vec<(f64, f64)> = nodes
-        .iter()
-        .zip(weights)
-        .map(|(x, w)| {
-            let v = half * x;
-            let density = w * (-c * v - 0.5 * v * v).exp();
-            mass += density;
-            first += density * v;
-            (v, density)
-        })
-        .collect();
+    let mut terms = [(0.0, 0.0); GL_NODES];
+    for ((term, x), w) in terms.iter_mut().zip(nodes).zip(weights) {
+        let v = half * x;
+        let density = w * (-c * v - 0.5 * v * v).exp();
+        mass += density;
+        first += density * v;
+        *term = (v, density);
+    }
     let shift = first / mass;
     let var = terms
         .iter()
