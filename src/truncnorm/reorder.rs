@@ -135,24 +135,16 @@ pub fn reorder(sigma: &DMatrix<f64>, lower: &[f64], upper: &[f64]) -> Result<Ord
 pub fn in_order(sigma: &DMatrix<f64>, perm: &[usize]) -> Result<Ordered, TruncError> {
     let d = sigma.nrows();
     let s = DMatrix::from_fn(d, d, |a, b| sigma[(perm[a], perm[b])]);
-    let mut c = DMatrix::<f64>::zeros(d, d);
-    for j in 0..d {
-        let done: f64 = (0..j).map(|t| c[(j, t)] * c[(j, t)]).sum();
-        let pivot = s[(j, j)] - done;
-        if !pivot.is_finite() || pivot < -NEGATIVE_PIVOT * s[(j, j)].abs() {
-            return Err(TruncError::NotPositiveDefinite { index: perm[j] });
-        }
-        let cjj = pivot.max(0.0).sqrt();
-        if cjj <= SINGULAR_PIVOT * s[(j, j)].abs().sqrt() {
-            return Err(TruncError::Singular { index: perm[j] });
-        }
-        c[(j, j)] = cjj;
-        for i in j + 1..d {
-            let dot: f64 = (0..j).map(|t| c[(i, t)] * c[(j, t)]).sum();
-            c[(i, j)] = (s[(i, j)] - dot) / cjj;
-        }
-    }
+    // nalgebra's Cholesky (column-oriented, much faster than the row-wise loop below), which
+    // names nothing when it fails: then the loop finds the pivot that does.
+    let c = match s.clone().cholesky() {
+        Some(chol) => chol.unpack(),
+        None => return Err(failing_pivot(&s, perm)),
+    };
     let diag: Vec<f64> = (0..d).map(|k| c[(k, k)]).collect();
+    if !(0..d).all(|j| diag[j] > SINGULAR_PIVOT * s[(j, j)].abs().sqrt()) {
+        return Err(failing_pivot(&s, perm));
+    }
     let lt = DMatrix::from_fn(d, d, |k, j| if j < k { c[(k, j)] / diag[k] } else { 0.0 });
     Ok(Ordered {
         perm: perm.to_vec(),
@@ -161,9 +153,68 @@ pub fn in_order(sigma: &DMatrix<f64>, perm: &[usize]) -> Result<Ordered, TruncEr
     })
 }
 
+/// The first pivot of the Cholesky factor of `s` (`Σ[perm, perm]`) that is negative beyond
+/// rounding or too small, as the error naming its variable; if rounding lets every pivot pass
+/// here, the smallest relative to its variance.
+fn failing_pivot(s: &DMatrix<f64>, perm: &[usize]) -> TruncError {
+    let d = s.nrows();
+    let mut c = DMatrix::<f64>::zeros(d, d);
+    let mut smallest = (f64::INFINITY, 0);
+    for j in 0..d {
+        let done: f64 = (0..j).map(|t| c[(j, t)] * c[(j, t)]).sum();
+        let pivot = s[(j, j)] - done;
+        if !pivot.is_finite() || pivot < -NEGATIVE_PIVOT * s[(j, j)].abs() {
+            return TruncError::NotPositiveDefinite { index: perm[j] };
+        }
+        let cjj = pivot.max(0.0).sqrt();
+        let relative = cjj / s[(j, j)].abs().sqrt();
+        if relative.is_nan() || relative <= SINGULAR_PIVOT {
+            return TruncError::Singular { index: perm[j] };
+        }
+        if relative < smallest.0 {
+            smallest = (relative, j);
+        }
+        c[(j, j)] = cjj;
+        for i in j + 1..d {
+            let dot: f64 = (0..j).map(|t| c[(i, t)] * c[(j, t)]).sum();
+            c[(i, j)] = (s[(i, j)] - dot) / cjj;
+        }
+    }
+    TruncError::Singular {
+        index: perm[smallest.1],
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// In a given order: the factor reproduces `Σ[perm, perm]`; a variable that repeats another
+    /// is named as singular, one that makes `Σ` indefinite as not positive definite (the first
+    /// in the order whose pivot fails, by hand: with `Σ = [[1, ρ], [ρ, 1]]` the second pivot
+    /// is `1 − ρ²`).
+    #[test]
+    fn in_order_factors_or_names_the_failing_variable() {
+        let g = DMatrix::from_fn(6, 6, |i, j| ((i * 5 + j * 2) as f64 * 0.41).cos());
+        let sigma = &g * g.transpose() + DMatrix::identity(6, 6) * 0.3;
+        let perm = [3, 0, 5, 1, 4, 2];
+        let o = in_order(&sigma, &perm).unwrap();
+        let cmat = DMatrix::from_fn(6, 6, |k, j| {
+            o.diag[k] * (o.lt[(k, j)] + if j == k { 1.0 } else { 0.0 })
+        });
+        let permuted = DMatrix::from_fn(6, 6, |a, b| sigma[(perm[a], perm[b])]);
+        assert!((&cmat * cmat.transpose() - &permuted).amax() < 1e-12 * sigma.amax());
+        let pair = |rho: f64| DMatrix::from_row_slice(2, 2, &[1.0, rho, rho, 1.0]);
+        assert!(matches!(
+            in_order(&pair(1.0), &[1, 0]),
+            Err(TruncError::Singular { index: 0 })
+        ));
+        assert!(matches!(
+            in_order(&pair(1.5), &[0, 1]),
+            Err(TruncError::NotPositiveDefinite { index: 1 })
+        ));
+        assert!(in_order(&pair(0.999), &[0, 1]).is_ok());
+    }
 
     /// `Σ[perm, perm] = C C'` with `C = diag(c)(I + L̃)`, on a random SPD matrix.
     #[test]
