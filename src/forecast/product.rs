@@ -23,12 +23,49 @@ const GRAM_TILE: usize = 3;
 /// as dot products of the columns in place (no transposed copy, no packing), over the rows
 /// both of its groups of columns reach, then mirrored.
 pub fn gram(a: &DMatrix<f64>, reach: &[usize]) -> DMatrix<f64> {
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx2") && std::arch::is_x86_feature_detected!("fma") {
+        // SAFETY: the processor has AVX2 and FMA, checked just above.
+        return unsafe { gram_fma(a, reach) };
+    }
+    gram_by(a, reach, tile)
+}
+
+/// [`gram_by`] with the AVX2 and FMA tile, compiled with them so that the tile is inlined
+/// into the loop over tiles.
+///
+/// # Safety
+/// The processor must have AVX2 and FMA.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2,fma")]
+unsafe fn gram_fma(a: &DMatrix<f64>, reach: &[usize]) -> DMatrix<f64> {
+    // SAFETY: this function runs only where the processor has AVX2 and FMA.
+    gram_by(a, reach, |x, y, len| unsafe { tile_fma(x, y, len) })
+}
+
+#[inline(always)]
+fn gram_by(
+    a: &DMatrix<f64>,
+    reach: &[usize],
+    tile: impl Fn([&[f64]; GRAM_TILE], [&[f64]; GRAM_TILE], usize) -> Tile,
+) -> DMatrix<f64> {
     let (rows, k) = a.shape();
     let mut g = DMatrix::zeros(k, k);
     if rows == 0 || k == 0 {
         return g;
     }
     let cols: Vec<&[f64]> = a.as_slice().chunks_exact(rows).collect();
+    // The columns `c0 …` of a tile; past the last column the tile reads its first column
+    // again (those sums are dropped).
+    let group = |c0: usize| {
+        let mut out = [cols[c0]; GRAM_TILE];
+        for (t, col) in out.iter_mut().enumerate().skip(1) {
+            if let Some(c) = cols.get(c0 + t) {
+                *col = c;
+            }
+        }
+        out
+    };
     let starts: Vec<usize> = (0..k).step_by(GRAM_TILE).collect();
     let far: Vec<usize> = starts
         .iter()
@@ -43,9 +80,9 @@ pub fn gram(a: &DMatrix<f64>, reach: &[usize]) -> DMatrix<f64> {
     for (ti, &i0) in starts.iter().enumerate() {
         for (tj, &j0) in starts.iter().enumerate().skip(ti) {
             let len = far[ti].min(far[tj]).min(rows);
-            let sums = dot_tile(group(&cols, i0), group(&cols, j0), len);
-            for (a, row) in sums.iter().enumerate().filter(|(a, _)| i0 + a < k) {
-                for (b, &v) in row.iter().enumerate().filter(|(b, _)| j0 + b < k) {
+            let sums = tile(group(i0), group(j0), len);
+            for (a, row) in sums.iter().enumerate().take(k - i0) {
+                for (b, &v) in row.iter().enumerate().take(k - j0) {
                     g[(i0 + a, j0 + b)] = v;
                     g[(j0 + b, i0 + a)] = v;
                 }
@@ -53,22 +90,6 @@ pub fn gram(a: &DMatrix<f64>, reach: &[usize]) -> DMatrix<f64> {
         }
     }
     g
-}
-
-/// The columns `c0 …` of a tile; past the last column the tile reads its first column again
-/// (those sums are dropped).
-fn group<'a>(cols: &[&'a [f64]], c0: usize) -> [&'a [f64]; GRAM_TILE] {
-    std::array::from_fn(|t| cols.get(c0 + t).copied().unwrap_or(cols[c0]))
-}
-
-/// A tile's sums, by the AVX2 and FMA kernel when the processor has them.
-fn dot_tile(x: [&[f64]; GRAM_TILE], y: [&[f64]; GRAM_TILE], len: usize) -> Tile {
-    #[cfg(target_arch = "x86_64")]
-    if std::arch::is_x86_feature_detected!("avx2") && std::arch::is_x86_feature_detected!("fma") {
-        // SAFETY: the processor has AVX2 and FMA, checked just above.
-        return unsafe { tile_fma(x, y, len) };
-    }
-    tile(x, y, len)
 }
 
 /// A tile's sums: `Σ_r x_a[r] y_b[r]` over the first `len` rows, for every pair of its
@@ -435,8 +456,9 @@ mod tests {
             assert_eq!(g, g.transpose(), "symmetric");
             // The plain tile on its own, on the first columns.
             if rows > 0 && k >= GRAM_TILE {
-                let cols: Vec<&[f64]> = a.as_slice().chunks_exact(rows).collect();
-                let sums = tile(group(&cols, 0), group(&cols, 0), rows);
+                let cols: [&[f64]; GRAM_TILE] =
+                    std::array::from_fn(|t| &a.as_slice()[t * rows..(t + 1) * rows]);
+                let sums = tile(cols, cols, rows);
                 for (x, row) in sums.iter().enumerate() {
                     for (y, v) in row.iter().enumerate() {
                         assert!((v - dense[(x, y)]).abs() < tol);
