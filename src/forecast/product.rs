@@ -120,7 +120,8 @@ unsafe fn tile_fma(x: [&[f64]; GRAM_TILE], y: [&[f64]; GRAM_TILE], len: usize) -
     use std::arch::x86_64::{
         __m256d, _mm256_fmadd_pd, _mm256_loadu_pd, _mm256_setzero_pd, _mm256_storeu_pd,
     };
-    // No closures here: they would not inherit the target features.
+    // Plain loops, not the standard library's array helpers: those are compiled without the
+    // target features, and the closures they call with them.
     for c in x.iter().chain(&y) {
         assert!(c.len() >= len);
     }
