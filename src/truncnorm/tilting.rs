@@ -189,8 +189,8 @@ fn half_sq(g: &DVector<f64>) -> f64 {
     0.5 * g.norm_squared()
 }
 
-/// Find the saddle point, starting from whichever of `starts` (`v = (x, μ)`, length 2(d−1);
-/// at least one) has the smallest gradient, the first of equals.
+/// Find the saddle point, starting from whichever of `starts` (`v = (x, μ)`, length 2(d−1))
+/// has the smallest gradient, the first of equals (the cold start when none is given).
 pub fn solve(o: &Ordered, lo: &[f64], hi: &[f64], starts: Vec<DVector<f64>>) -> Tilt {
     let d = o.dim();
     let m = d - 1;
@@ -208,7 +208,11 @@ pub fn solve(o: &Ordered, lo: &[f64], hi: &[f64], starts: Vec<DVector<f64>>) -> 
             (v, e)
         })
         .min_by(|a, b| size(&a.1).total_cmp(&size(&b.1)))
-        .expect("at least one start");
+        .unwrap_or_else(|| {
+            let v = cold_start(o, lo, hi);
+            let e = evaluate(o, lo, hi, &v);
+            (v, e)
+        });
     if m == 0 {
         return finish(o, lo, hi, v, e, 0);
     }
