@@ -23,7 +23,7 @@
 
 use nalgebra::{DMatrix, SVD};
 
-use super::product::{add_product, gram};
+use super::product::{add_product, cholesky, gram};
 
 /// Columns per block of the staircase products.
 const BLOCK: usize = 16;
@@ -299,7 +299,7 @@ fn cholesky_qr2(mut a: DMatrix<f64>, reach: &[usize], places: &Places) -> Option
     for (mut col, s) in a.column_iter_mut().zip(&scale) {
         col.scale_mut(1.0 / s);
     }
-    let r1 = gram(&a, reach).cholesky()?.l().transpose();
+    let r1 = cholesky(gram(&a, reach))?.l().transpose();
     let r1_inv = upper_inverse(&r1)?;
     // Column j of Q_1 = A R_1⁻¹ combines the columns up to j: it reaches as far as they do.
     let reach_q: Vec<usize> = reach
@@ -310,7 +310,7 @@ fn cholesky_qr2(mut a: DMatrix<f64>, reach: &[usize], places: &Places) -> Option
         })
         .collect();
     let q1 = times_upper(&a, &r1_inv, &reach_q);
-    let r2 = gram(&q1, &reach_q).cholesky()?.l().transpose();
+    let r2 = cholesky(gram(&q1, &reach_q))?.l().transpose();
     // A second pass far from the identity means the first lost too much orthogonality for
     // the second to restore it surely (cond(A) near 10⁸): Householder takes over.
     let off = (&r2 - DMatrix::identity(k, k)).norm();

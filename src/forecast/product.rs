@@ -10,7 +10,7 @@
 //! times `800 × 300` paths is many times slower. Padding the small dimensions to six with
 //! zeros costs little and keeps the fast kernel.
 
-use nalgebra::{DMatrix, DMatrixView, DMatrixViewMut};
+use nalgebra::{Cholesky, DMatrix, DMatrixView, DMatrixViewMut, Dyn};
 
 /// Smallest dimension nalgebra multiplies with its blocked kernel.
 const BLOCKED: usize = 6;
@@ -294,6 +294,138 @@ unsafe fn panel<const C: usize>(o: &Operands, j: usize) {
     }
 }
 
+/// The Cholesky factor `L` (`A = L L'`, lower triangular) of a symmetric matrix given by its
+/// lower triangle, in nalgebra's form (the strict upper triangle is left as it was); `None`
+/// when a pivot is not positive (not positive definite, or NaN). Column by column from the
+/// columns before it (left-looking): with AVX2 and FMA, sixteen rows at a time with their
+/// sums in registers, about 2.4 times nalgebra's rate at the 60 × 60 systems of the
+/// saddle point and the factor; without them, nalgebra's.
+pub fn cholesky(m: DMatrix<f64>) -> Option<Cholesky<f64, Dyn>> {
+    assert!(m.is_square(), "Cholesky of a square matrix");
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx2") && std::arch::is_x86_feature_detected!("fma") {
+        // SAFETY: the processor has AVX2 and FMA, checked just above.
+        return unsafe { cholesky_fma(m) };
+    }
+    m.cholesky()
+}
+
+/// [`cholesky`] with AVX2 and FMA.
+///
+/// # Safety
+/// The processor must have AVX2 and FMA; `m` is square.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2,fma")]
+unsafe fn cholesky_fma(mut m: DMatrix<f64>) -> Option<Cholesky<f64, Dyn>> {
+    use std::arch::x86_64::{__m256d, _mm256_storeu_pd};
+    /// Rows `i..i+4R` of column `k` from their sums.
+    fn store<const R: usize>(a: &mut [f64], n: usize, k: usize, i: usize, sums: &[__m256d; R]) {
+        for (q, v) in sums.iter().enumerate() {
+            let at = i + 4 * q + k * n;
+            // SAFETY: the four rows lie inside column k (a slice of four checked by indexing).
+            unsafe { _mm256_storeu_pd(a[at..at + 4].as_mut_ptr(), *v) };
+        }
+    }
+    let n = m.nrows();
+    let a = m.as_mut_slice();
+    for k in 0..n {
+        // Rows k.. of column k less Σ_{j<k} L_ij L_kj: sixteen rows at a time, then the
+        // remaining groups of four together, then the last one to three rows as the matrix's
+        // last four (keeping the rows wanted).
+        let mut i = k;
+        // SAFETY (each call): rows i..i+4R and columns up to k lie inside the n × n matrix.
+        while i + 16 <= n {
+            let sums = unsafe { cholesky_sums::<4, 2>(a, n, k, i) };
+            store(a, n, k, i, &sums);
+            i += 16;
+        }
+        match (n - i) / 4 {
+            3 => store(a, n, k, i, &unsafe { cholesky_sums::<3, 2>(a, n, k, i) }),
+            2 => store(a, n, k, i, &unsafe { cholesky_sums::<2, 4>(a, n, k, i) }),
+            1 => store(a, n, k, i, &unsafe { cholesky_sums::<1, 4>(a, n, k, i) }),
+            _ => {}
+        }
+        i += (n - i) / 4 * 4;
+        if i < n && n >= 4 {
+            let [sums] = unsafe { cholesky_sums::<1, 4>(a, n, k, n - 4) };
+            let mut lanes = [0.0; 4];
+            unsafe { _mm256_storeu_pd(lanes.as_mut_ptr(), sums) };
+            for r in i..n {
+                a[r + k * n] = lanes[r + 4 - n];
+            }
+        } else {
+            for r in i..n {
+                let mut sum = a[r + k * n];
+                for j in 0..k {
+                    sum = (-a[r + j * n]).mul_add(a[k + j * n], sum);
+                }
+                a[r + k * n] = sum;
+            }
+        }
+        let pivot = a[k + k * n];
+        if pivot.is_nan() || pivot <= 0.0 {
+            return None;
+        }
+        let root = pivot.sqrt();
+        a[k + k * n] = root;
+        for v in &mut a[k + 1 + k * n..(k + 1) * n] {
+            *v /= root;
+        }
+    }
+    Some(Cholesky::pack_dirty(m))
+}
+
+/// The sums `a_ik − Σ_{j<k} a_ij a_kj` for rows `i..i+4R` of column `k` of
+/// [`cholesky_fma`], from `U` sets of `R` sums (`j` modulo `U`) so that `U R` chains of
+/// fused multiply–adds run side by side.
+///
+/// # Safety
+/// AVX2 and FMA; `a` is an `n × n` column-major matrix, `k < n` and `i + 4R ≤ n`.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2,fma")]
+unsafe fn cholesky_sums<const R: usize, const U: usize>(
+    a: &[f64],
+    n: usize,
+    k: usize,
+    i: usize,
+) -> [std::arch::x86_64::__m256d; R] {
+    use std::arch::x86_64::{
+        _mm256_add_pd, _mm256_broadcast_sd, _mm256_fnmadd_pd, _mm256_loadu_pd, _mm256_setzero_pd,
+    };
+    let p = a.as_ptr();
+    // SAFETY (every access below): row r < i + 4R ≤ n and column c ≤ k < n, at r + c n.
+    let at = |r: usize, c: usize| unsafe { p.add(r + c * n) };
+    let mut sums = [[_mm256_setzero_pd(); R]; U];
+    for (q, v) in sums[0].iter_mut().enumerate() {
+        *v = unsafe { _mm256_loadu_pd(at(i + 4 * q, k)) };
+    }
+    let mut j = 0;
+    while j + U <= k {
+        for (u, set) in sums.iter_mut().enumerate() {
+            let b = unsafe { _mm256_broadcast_sd(&*at(k, j + u)) };
+            for (q, v) in set.iter_mut().enumerate() {
+                let x = unsafe { _mm256_loadu_pd(at(i + 4 * q, j + u)) };
+                *v = _mm256_fnmadd_pd(x, b, *v);
+            }
+        }
+        j += U;
+    }
+    for j in j..k {
+        let b = unsafe { _mm256_broadcast_sd(&*at(k, j)) };
+        for (q, v) in sums[0].iter_mut().enumerate() {
+            let x = unsafe { _mm256_loadu_pd(at(i + 4 * q, j)) };
+            *v = _mm256_fnmadd_pd(x, b, *v);
+        }
+    }
+    let mut out = sums[0];
+    for set in &sums[1..] {
+        for (o, v) in out.iter_mut().zip(set) {
+            *o = _mm256_add_pd(*o, *v);
+        }
+    }
+    out
+}
+
 /// `A B`, by the blocked kernel whatever the shapes.
 pub fn mul(a: &DMatrix<f64>, b: &DMatrix<f64>) -> DMatrix<f64> {
     let (r, k, c) = (a.nrows(), a.ncols(), b.ncols());
@@ -466,6 +598,47 @@ mod tests {
                     }
                 }
             }
+        }
+    }
+
+    /// The Cholesky factor equals nalgebra's (a general-purpose library's) to rounding and
+    /// rebuilds the matrix, for sizes around the kernel's sixteen- and four-row steps; the
+    /// strict upper triangle is left as it was; an indefinite matrix and a NaN are refused.
+    #[test]
+    fn cholesky_is_nalgebras() {
+        for n in [1, 2, 3, 4, 5, 15, 16, 17, 20, 31, 33, 59, 60, 65, 70] {
+            let b = DMatrix::from_fn(n + 3, n, |i, j| ((7 * i + 3 * j) as f64 * 0.41).sin());
+            let mut a = b.transpose() * &b;
+            for i in 0..n {
+                a[(i, i)] += 0.1;
+                for j in i + 1..n {
+                    a[(i, j)] = 99.0; // never read
+                }
+            }
+            let mut sym = a.clone();
+            sym.fill_upper_triangle_with_lower_triangle();
+            let reference = sym.clone().cholesky().expect("positive definite").l();
+            let ours = cholesky(a.clone()).expect("positive definite");
+            let l = ours.l();
+            let tol = 1e-12 * reference.amax();
+            assert!((&l - &reference).amax() < tol, "n = {n}");
+            assert!(
+                (&l * l.transpose() - &sym).amax() < 1e-12 * sym.amax(),
+                "n = {n}"
+            );
+            let dirty = ours.unpack_dirty();
+            for i in 0..n {
+                for j in i + 1..n {
+                    assert_eq!(dirty[(i, j)], 99.0);
+                }
+            }
+            // Not positive definite: the last pivot made negative; a NaN.
+            let mut bad = a.clone();
+            bad[(n - 1, n - 1)] -= reference[(n - 1, n - 1)].powi(2) * 2.0;
+            assert!(cholesky(bad).is_none(), "n = {n}");
+            let mut nan = a.clone();
+            nan[(n / 2, 0)] = f64::NAN;
+            assert!(cholesky(nan).is_none(), "n = {n}");
         }
     }
 

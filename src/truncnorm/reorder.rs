@@ -11,6 +11,7 @@
 use nalgebra::DMatrix;
 
 use super::{TruncError, univariate};
+use crate::forecast::product::cholesky;
 
 /// A pivot whose squared value falls below `−NEGATIVE_PIVOT · Σ_jj` means `Σ` is not positive
 /// semi-definite; between that and zero it is rounding, clamped to zero.
@@ -135,9 +136,9 @@ pub fn reorder(sigma: &DMatrix<f64>, lower: &[f64], upper: &[f64]) -> Result<Ord
 pub fn in_order(sigma: &DMatrix<f64>, perm: &[usize]) -> Result<Ordered, TruncError> {
     let d = sigma.nrows();
     let s = DMatrix::from_fn(d, d, |a, b| sigma[(perm[a], perm[b])]);
-    // nalgebra's Cholesky (column-oriented, much faster than the row-wise loop below), which
-    // names nothing when it fails: then the loop finds the pivot that does.
-    let c = match s.clone().cholesky() {
+    // The column-oriented Cholesky (much faster than the row-wise loop below), which names
+    // nothing when it fails: then the loop finds the pivot that does.
+    let c = match cholesky(s.clone()) {
         Some(chol) => chol.unpack(),
         None => return Err(failing_pivot(&s, perm)),
     };

@@ -17,7 +17,7 @@
 use nalgebra::{DMatrix, DVector};
 
 use super::{reorder::Ordered, univariate};
-use crate::forecast::product::gram;
+use crate::forecast::product::{cholesky, gram};
 
 /// Stop when `‖∇ψ‖_∞` is below this.
 const GRAD_TOL: f64 = 1e-10;
@@ -170,7 +170,7 @@ fn newton_direction(o: &Ordered, e: &Eval) -> Option<DVector<f64>> {
                 .sum();
             gx[c] + w[c] - below
         });
-        if let Some(chol) = schur.cholesky() {
+        if let Some(chol) = cholesky(schur) {
             let dx = chol.solve(&rhs);
             // δ_μ = −U_μμ⁻¹ (g_μ + U_μx δ_x), (U_μx δ_x)_k = Δ_k (L̃ₛ δ_x)_k − δ_x,k.
             let mut step = DVector::zeros(2 * m);
@@ -273,7 +273,7 @@ fn levenberg_marquardt(
         let jtj = jac.transpose() * &jac;
         let jtg = jac.transpose() * &e.grad;
         let system = &jtj + DMatrix::identity(m2, m2) * (lambda * (1.0 + jtj.diagonal().amax()));
-        let Some(step) = system.cholesky().map(|c| -c.solve(&jtg)) else {
+        let Some(step) = cholesky(system).map(|c| -c.solve(&jtg)) else {
             lambda *= 10.0;
             continue;
         };
@@ -321,7 +321,7 @@ fn finish(
         let gx = e.grad.rows(0, m).into_owned();
         let neg = minus_xx(o, &e.var);
         let ridge = 1e-12 * (1.0 + neg.diagonal().amax());
-        let Some(chol) = (neg + DMatrix::identity(m, m) * ridge).cholesky() else {
+        let Some(chol) = cholesky(neg + DMatrix::identity(m, m) * ridge) else {
             break;
         };
         let step = chol.solve(&gx);
