@@ -87,9 +87,15 @@ impl Factor {
         let permuted = || {
             let mut fjt = DMatrix::zeros(rows, k);
             for (p, &c) in order.iter().enumerate() {
-                let col = fjt.column_mut(p).data.into_slice_mut();
-                for (i, v) in col.iter_mut().enumerate().take(reach[c]) {
-                    *v = row(i).map_or(0.0, |j| ft[(j, c)]);
+                let to = &mut fjt.column_mut(p).data.into_slice_mut()[..reach[c]];
+                let from = ft.column(c).data.into_slice();
+                match cells {
+                    None => to.copy_from_slice(&from[..reach[c]]),
+                    Some(cells) => {
+                        for (v, &j) in to.iter_mut().zip(cells) {
+                            *v = from[j];
+                        }
+                    }
                 }
             }
             fjt
@@ -196,8 +202,10 @@ impl Factor {
     pub fn corridor_covariance(&self) -> DMatrix<f64> {
         let m = self.places.pins;
         let q = self.size() - m;
-        let r_ss = self.r.view((m, m), (q, q));
-        let cov = r_ss.transpose() * r_ss;
+        // Column c of the upper-triangular R_SS reaches its first c + 1 rows.
+        let r_ss = self.r.view((m, m), (q, q)).into_owned();
+        let reach: Vec<usize> = (1..=q).collect();
+        let cov = gram(&r_ss, &reach);
         let place = &self.places.place;
         DMatrix::from_fn(q, q, |a, b| cov[(place[m + a] - m, place[m + b] - m)])
     }

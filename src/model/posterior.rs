@@ -16,7 +16,7 @@ use rand::Rng;
 use rand_distr::{ChiSquared, Distribution, StandardNormal};
 
 use super::{ModelError, Params, prior::PriorMoments};
-use crate::forecast::product::upper_times;
+use crate::forecast::product::{add_product, gram, upper_times};
 
 /// Posterior of `(B, Σ)`: everything needed for draws and for the marginal likelihood.
 #[derive(Debug, Clone)]
@@ -92,9 +92,15 @@ impl Posterior {
             .ok_or_else(|| ModelError::SigmaNotPositiveDefinite {
                 what: "a posterior draw of Σ (its Bartlett factor is singular)".into(),
             })?;
-        let mut sigma = lambda_t.transpose() * &lambda_t;
-        symmetrise(&mut sigma);
+        // Σ = Λ'Λ, symmetric as computed.
+        let sigma = gram(&lambda_t, &vec![n; n]);
         let z = DMatrix::from_fn(k, n, |_, _| StandardNormal.sample(rng));
+        let mut z_lambda = DMatrix::zeros(k, n);
+        add_product(
+            &mut z_lambda.as_view_mut(),
+            &z.as_view(),
+            &lambda_t.as_view(),
+        );
         let r_x_inv = self
             .r_x_inv
             .get_or_init(|| {
@@ -104,7 +110,7 @@ impl Posterior {
             })
             .as_ref()
             .ok_or(ModelError::Collinear)?;
-        let shift = upper_times(r_x_inv, &(z * &lambda_t));
+        let shift = upper_times(r_x_inv, &z_lambda);
         Ok(Params::from_stacked(&(&self.b_bar + shift), sigma))
     }
 }
