@@ -115,9 +115,9 @@ const EXPLOSIVE_MODULUS: f64 = 1.0 + 1e-8;
 /// fixed budget of arithmetic: an exact eigenvalue decomposition of the `np × np` companion
 /// matrix costs about `10 (np)³` flops (Golub and Van Loan 2013, §7.5.6) — more than the rest
 /// of a draw at 40 series — and the share it reports is shown with its standard error. The
-/// budget, 2·10⁹ flops (about 0.3 s of one core here), gives 100 draws up to np = 126
-/// (standard error at most 5 percentage points), 48 at np = 160 (7 points), and one at
-/// np ≥ 585 (a hundred lags), whose check would otherwise spend minutes on roots.
+/// budget, 2·10⁹ flops (about 0.25 s of one core here at np = 160), gives 100 draws up to
+/// np = 126 (standard error at most 5 percentage points), 48 at np = 160 (7 points), and one
+/// at np ≥ 585 (a hundred lags), whose check would otherwise spend minutes on roots.
 pub fn root_sample(np: usize) -> usize {
     const BUDGET: f64 = 2e9;
     let cost = 10.0 * (np as f64).powi(3);

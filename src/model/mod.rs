@@ -5,13 +5,15 @@
 //! - [`prior`]: prior moments, residual scales and dummy observations;
 //! - [`posterior`]: the closed-form posterior and exact draws;
 //! - [`marglik`]: the marginal likelihood and the choice of the overall tightness;
-//! - [`params`]: one parameter set θ = (B, Σ).
+//! - [`params`]: one parameter set θ = (B, Σ);
+//! - [`roots`]: the companion matrix's eigenvalues (the largest root).
 
 pub mod data;
 pub mod marglik;
 pub mod params;
 pub mod posterior;
 pub mod prior;
+pub mod roots;
 
 pub use data::Regression;
 pub use marglik::{TightnessChoice, choose_tightness, log_ml, posterior_and_log_ml};

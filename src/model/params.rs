@@ -98,19 +98,7 @@ impl Params {
 
     /// Largest modulus of the companion matrix's eigenvalues (≥ 1: explosive or unit root).
     pub fn spectral_radius(&self) -> f64 {
-        let (n, p) = (self.n(), self.p());
-        let np = n * p;
-        let mut f = DMatrix::zeros(np, np);
-        for (l, b) in self.lags.iter().enumerate() {
-            f.view_mut((0, l * n), (n, n)).copy_from(b);
-        }
-        for i in n..np {
-            f[(i, i - n)] = 1.0;
-        }
-        f.complex_eigenvalues()
-            .iter()
-            .map(|z| z.norm())
-            .fold(0.0, f64::max)
+        super::roots::spectral_radius(super::roots::companion(&self.lags))
     }
 }
 
