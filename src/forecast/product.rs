@@ -318,7 +318,9 @@ pub fn cholesky(m: DMatrix<f64>) -> Option<Cholesky<f64, Dyn>> {
 #[target_feature(enable = "avx2,fma")]
 unsafe fn cholesky_fma(mut m: DMatrix<f64>) -> Option<Cholesky<f64, Dyn>> {
     use std::arch::x86_64::{__m256d, _mm256_storeu_pd};
-    /// Rows `i..i+4R` of column `k` from their sums.
+    /// Rows `i..i+4R` of column `k` from their sums (compiled with AVX2 too, so that it is
+    /// inlined).
+    #[target_feature(enable = "avx2,fma")]
     fn store<const R: usize>(a: &mut [f64], n: usize, k: usize, i: usize, sums: &[__m256d; R]) {
         for (q, v) in sums.iter().enumerate() {
             let at = i + 4 * q + k * n;

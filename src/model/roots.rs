@@ -6,13 +6,13 @@
 //! rows and columns of deflated roots are never updated again), with the usual small
 //! subdiagonal test and an exceptional shift after every 10 steps without a deflation
 //! (the EISPACK `hqr` scheme, Wilkinson and Reinsch 1971, with LAPACK's allowance of 30
-//! steps per row). General-purpose Schur routines
-//! also update the deflated parts of the triangular factor; skipping them, keeping the
-//! sums and the column updates on contiguous memory, and compiling for AVX2 where the
-//! processor has it makes this 1.6 times as fast as nalgebra's at 20 series and 4 lags
-//! (0.78 against 1.22 ms) and 1.8 times at 40 (4.8 against 8.6 ms), on the benchmark machine. Where the steps run out,
-//! nalgebra's Schur decomposition answers instead, within a cap of its own (the largest root
-//! is NaN if that fails too).
+//! steps per row). General-purpose Schur routines also update the deflated parts of the
+//! triangular factor; skipping them, keeping the sums and the column updates on contiguous
+//! memory, and compiling for AVX2 where the processor has it makes this 1.6 times as fast as
+//! nalgebra's at 20 series and 4 lags (0.78 against 1.22 ms) and 1.8 times at 40 (4.8
+//! against 8.6 ms), on the benchmark machine. Where the steps run out, nalgebra's Schur
+//! decomposition answers instead, within a cap of its own (the largest root is NaN if that
+//! fails too).
 
 use nalgebra::{DMatrix, Schur};
 
